@@ -1,0 +1,472 @@
+"""The :class:`Network`: an immutable, undirected, weighted graph ready for spectral work.
+
+Every reader ends here and every later stage starts here. A network holds a
+symmetric CSR adjacency (float64 affinities, no self-loops, no stored zeros), the
+node ids as strings in row order, optional node coordinates and node sizes, and a
+per-input-link table so that results can be joined back to the user's own rows.
+
+Input policies (documented in ``docs/input-policy.md`` and counted in
+:attr:`Network.notes`, so that nothing is dropped silently):
+
+* a self-loop (a link from a node to itself) carries no information about zones;
+  it is left out of the adjacency and counted;
+* repeated links between the same two nodes, in either direction, are parallel
+  links: their affinities are **summed** (parallel pipes or lines conduct in sum)
+  and counted;
+* a link of affinity zero joins nothing; it is left out of the adjacency, its two
+  ends stay in the network, and it is counted.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from functools import cached_property
+from types import MappingProxyType
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+from .exceptions import InputError
+
+if TYPE_CHECKING:
+    import networkx as nx
+    import pandas as pd
+
+__all__ = ["Network", "affinity_from_distance"]
+
+#: Largest relative asymmetry ``max|A - A^T| / max|A|`` accepted as round-off
+#: when a matrix is handed in as symmetric (a few ulps of float64 summation).
+SYMMETRY_RTOL = 1e-12
+
+
+def affinity_from_distance(distance: np.ndarray) -> tuple[np.ndarray, dict[str, Any]]:
+    """Turn a length-like weight (length, impedance, latency) into an affinity.
+
+    The affinity is ``median(d) / d``: inversely proportional to the distance,
+    as for conductances of pipes or lines in series, and scaled by the median so
+    that the result does not depend on the unit (metres or kilometres give the
+    same network) and a typical link has affinity 1.
+
+    Parameters
+    ----------
+    distance : ndarray of float
+        Finite, strictly positive distances.
+
+    Returns
+    -------
+    affinity : ndarray of float
+        ``median(distance) / distance``.
+    record : dict
+        The rule and the median, for the run record.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> w, record = affinity_from_distance(np.array([10.0, 20.0, 40.0]))
+    >>> w.tolist()
+    [2.0, 1.0, 0.5]
+    >>> record["reference_distance"]
+    20.0
+    """
+    distance = np.asarray(distance, dtype=np.float64)
+    if distance.size and not (np.all(np.isfinite(distance)) and np.all(distance > 0)):
+        raise InputError("distances must be finite and > 0 to be converted to affinities")
+    reference = float(np.median(distance)) if distance.size else 1.0
+    record = {
+        "rule": "affinity = reference_distance / distance",
+        "reference_distance": reference,
+    }
+    return reference / distance, record
+
+
+def _readonly(array: np.ndarray) -> np.ndarray:
+    array.flags.writeable = False
+    return array
+
+
+@dataclass(frozen=True, eq=False, repr=False)
+class Network:
+    """An undirected weighted network, frozen once built.
+
+    Build one with a reader (:func:`specgraph.read_edges`) or one of the
+    ``from_*`` constructors rather than by hand; the constructor checks the
+    invariants but does not repair input.
+
+    Parameters
+    ----------
+    adjacency : sparse array of shape (n, n)
+        Symmetric, non-negative affinities, zero diagonal.
+    node_ids : sequence of str
+        One unique id per row, in row order.
+    coordinates : ndarray of shape (n, 2), optional
+        Planar node coordinates (x, y), for maps and GIS export.
+    sizes : ndarray of shape (n,), optional
+        Non-negative node sizes (for example connections served); zone sizes
+        and size bounds count in this unit when given, in nodes otherwise.
+    links : pandas.DataFrame, optional
+        One row per input link, with columns ``source``, ``target`` (node ids),
+        ``weight`` (affinity) and any columns passed through from the input.
+        Boundary tables are cut from it so users can join them to their own
+        rows. Built from the upper triangle of ``adjacency`` when not given.
+    notes : mapping, optional
+        What was done to the input on the way in (counts of self-loops,
+        merged duplicates, zero-weight links, weight conversion).
+
+    Attributes
+    ----------
+    n_nodes, n_links : int
+        Number of nodes and of distinct undirected links in the adjacency.
+    degrees : ndarray
+        Weighted degree of each node.
+    component_labels : ndarray of int
+        Connected component of each node, numbered from 0 by first node.
+    n_components : int
+        Number of connected components (isolated nodes count as one each).
+    """
+
+    adjacency: sp.csr_array
+    node_ids: np.ndarray
+    coordinates: np.ndarray | None = None
+    sizes: np.ndarray | None = None
+    links: pd.DataFrame | None = None
+    notes: Mapping[str, Any] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        adjacency = sp.csr_array(self.adjacency, dtype=np.float64)
+        adjacency.sum_duplicates()
+        adjacency.eliminate_zeros()
+        adjacency.sort_indices()
+        n = adjacency.shape[0]
+        if adjacency.shape != (n, n):
+            raise InputError(f"adjacency must be square; got shape {adjacency.shape}")
+        data = adjacency.data
+        if data.size and not (np.all(np.isfinite(data)) and data.min() > 0):
+            raise InputError("adjacency must hold finite, non-negative affinities")
+        if adjacency.diagonal().any():
+            raise InputError("adjacency must have a zero diagonal (no self-loops)")
+        asym = abs(adjacency - adjacency.T)
+        if asym.nnz and asym.max() > SYMMETRY_RTOL * (data.max() if data.size else 1.0):
+            raise InputError("adjacency must be symmetric (an undirected network)")
+        ids = np.asarray([str(i) for i in self.node_ids], dtype=object)
+        if ids.shape != (n,):
+            raise InputError(f"node_ids must hold {n} ids, one per row; got {ids.size}")
+        if len(set(ids.tolist())) != n:
+            raise InputError("node_ids must be unique")
+        object.__setattr__(self, "adjacency", adjacency)
+        object.__setattr__(self, "node_ids", _readonly(ids))
+        object.__setattr__(self, "coordinates", self._checked_coordinates(n))
+        object.__setattr__(self, "sizes", self._checked_sizes(n))
+        object.__setattr__(self, "notes", MappingProxyType(dict(self.notes)))
+
+    def _checked_coordinates(self, n: int) -> np.ndarray | None:
+        if self.coordinates is None:
+            return None
+        xy = np.array(self.coordinates, dtype=np.float64)
+        if xy.shape != (n, 2) or not np.all(np.isfinite(xy)):
+            raise InputError(f"coordinates must be finite, of shape ({n}, 2); got {xy.shape}")
+        return _readonly(xy)
+
+    def _checked_sizes(self, n: int) -> np.ndarray | None:
+        if self.sizes is None:
+            return None
+        sizes = np.array(self.sizes, dtype=np.float64)
+        if sizes.shape != (n,) or not np.all(np.isfinite(sizes)) or np.any(sizes < 0):
+            raise InputError(f"sizes must be {n} finite numbers >= 0")
+        return _readonly(sizes)
+
+    # ------------------------------------------------------------------ shape
+    @property
+    def n_nodes(self) -> int:
+        return int(self.adjacency.shape[0])
+
+    @property
+    def n_links(self) -> int:
+        return int(self.adjacency.nnz // 2)
+
+    @cached_property
+    def degrees(self) -> np.ndarray:
+        return _readonly(np.asarray(self.adjacency.sum(axis=1)).ravel())
+
+    @cached_property
+    def node_weights(self) -> np.ndarray:
+        """Node sizes when given, otherwise one per node."""
+        return self.sizes if self.sizes is not None else _readonly(np.ones(self.n_nodes))
+
+    @cached_property
+    def _components(self) -> tuple[int, np.ndarray]:
+        count, labels = connected_components(self.adjacency, directed=False)
+        return int(count), _readonly(labels.astype(np.int64))
+
+    @property
+    def n_components(self) -> int:
+        return self._components[0]
+
+    @property
+    def component_labels(self) -> np.ndarray:
+        return self._components[1]
+
+    @cached_property
+    def index_of(self) -> Mapping[str, int]:
+        """Mapping from node id to row index."""
+        return MappingProxyType({node: i for i, node in enumerate(self.node_ids.tolist())})
+
+    @cached_property
+    def link_table(self) -> pd.DataFrame:
+        """Per-input-link table (``links`` if given, else the adjacency's upper triangle)."""
+        if self.links is not None:
+            return self.links
+        import pandas as pd
+
+        upper = sp.triu(self.adjacency, k=1, format="coo")
+        return pd.DataFrame(
+            {
+                "source": self.node_ids[upper.row],
+                "target": self.node_ids[upper.col],
+                "weight": upper.data,
+            }
+        )
+
+    @cached_property
+    def link_ends(self) -> tuple[np.ndarray, np.ndarray]:
+        """Row indices of the two ends of each row of :attr:`link_table`."""
+        import pandas as pd
+
+        index = pd.Index(self.node_ids)
+        table = self.link_table
+        src = index.get_indexer(table["source"].to_numpy(dtype=object))
+        dst = index.get_indexer(table["target"].to_numpy(dtype=object))
+        return _readonly(src.astype(np.int64)), _readonly(dst.astype(np.int64))
+
+    def __repr__(self) -> str:
+        return (
+            f"Network(n_nodes={self.n_nodes}, n_links={self.n_links}, "
+            f"n_components={self.n_components})"
+        )
+
+    # ----------------------------------------------------------- sub-networks
+    def subnetwork(self, nodes: np.ndarray) -> Network:
+        """The network induced on ``nodes`` (row indices), in that order.
+
+        The link table is not carried over: the sub-network lists its links
+        from the adjacency.
+        """
+        nodes = np.asarray(nodes, dtype=np.int64)
+        sub = self.adjacency[nodes][:, nodes]
+        return Network(
+            sub,
+            self.node_ids[nodes],
+            coordinates=None if self.coordinates is None else self.coordinates[nodes],
+            sizes=None if self.sizes is None else self.sizes[nodes],
+        )
+
+    # ---------------------------------------------------------- constructors
+    @classmethod
+    def from_links(
+        cls,
+        source: Sequence[Any] | np.ndarray,
+        target: Sequence[Any] | np.ndarray,
+        weight: Sequence[float] | np.ndarray | None = None,
+        *,
+        node_ids: Sequence[Any] | None = None,
+        coordinates: np.ndarray | None = None,
+        sizes: np.ndarray | None = None,
+        extra: pd.DataFrame | None = None,
+        notes: Mapping[str, Any] | None = None,
+    ) -> Network:
+        """Build a network from parallel arrays of link ends and affinities.
+
+        Applies the input policies of this module (self-loops left out,
+        repeated links summed, zero-affinity links left out, each counted in
+        ``notes``). Ids are compared as strings.
+
+        Parameters
+        ----------
+        source, target : array-like
+            Node ids at the two ends of each link.
+        weight : array-like of float, optional
+            Affinity of each link (finite, >= 0). Default 1 for every link.
+        node_ids : sequence, optional
+            All node ids in row order; must contain every link end. Nodes
+            listed here but on no link become isolated nodes. Default: ids in
+            order of first appearance in ``source``/``target`` (interleaved).
+        coordinates, sizes : ndarray, optional
+            Per node, aligned with ``node_ids``.
+        extra : pandas.DataFrame, optional
+            Further per-link columns to carry into :attr:`link_table`.
+        notes : mapping, optional
+            Notes to keep beside the policy counts.
+
+        Returns
+        -------
+        Network
+
+        Examples
+        --------
+        >>> net = Network.from_links(["a", "b", "b"], ["b", "c", "a"], [1.0, 2.0, 0.5])
+        >>> net.n_nodes, net.n_links, net.notes["duplicate_links_merged"]
+        (3, 2, 1)
+        """
+        import pandas as pd
+
+        src = np.asarray([str(s) for s in source], dtype=object)
+        dst = np.asarray([str(t) for t in target], dtype=object)
+        if src.shape != dst.shape:
+            raise InputError("source and target must have the same length")
+        w = np.ones(src.size) if weight is None else np.asarray(weight, dtype=np.float64)
+        if w.shape != src.shape:
+            raise InputError("weight must have one value per link")
+        if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
+            raise InputError("weights must be finite and >= 0")
+        ids, i, j = _index_links(src, dst, node_ids)
+        adjacency, counts = _adjacency_from_links(i, j, w, ids.size)
+        table = pd.DataFrame({"source": src, "target": dst, "weight": w})
+        if extra is not None:
+            table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
+        return cls(
+            adjacency,
+            ids,
+            coordinates=coordinates,
+            sizes=sizes,
+            links=table,
+            notes={**counts, **(notes or {})},
+        )
+
+    @classmethod
+    def from_scipy(
+        cls,
+        matrix: Any,
+        *,
+        node_ids: Sequence[Any] | None = None,
+        symmetrize: bool = False,
+    ) -> Network:
+        """Build a network from a square sparse or dense adjacency matrix.
+
+        Parameters
+        ----------
+        matrix : sparse or dense array of shape (n, n)
+            Non-negative affinities. The diagonal (self-loops) is left out and
+            counted.
+        node_ids : sequence, optional
+            Ids in row order; default ``"0"`` .. ``"n-1"``.
+        symmetrize : bool, default=False
+            When True, a directed matrix is made undirected as ``A + A^T``;
+            when False, an asymmetric matrix is refused.
+
+        Returns
+        -------
+        Network
+        """
+        adjacency = sp.csr_array(matrix, dtype=np.float64)
+        n = adjacency.shape[0]
+        loops = int(np.count_nonzero(adjacency.diagonal()))
+        adjacency = adjacency - sp.diags_array(adjacency.diagonal())
+        if symmetrize:
+            adjacency = adjacency + adjacency.T
+        ids = np.arange(n).astype(str) if node_ids is None else node_ids
+        return cls(adjacency, np.asarray(ids, dtype=object), notes={"self_loops_dropped": loops})
+
+    @classmethod
+    def from_networkx(
+        cls,
+        graph: nx.Graph,
+        *,
+        weight: str | None = "weight",
+        distance: bool = False,
+        size: str | None = None,
+        pos: str | None = None,
+    ) -> Network:
+        """Build a network from a networkx graph (directed graphs are made undirected).
+
+        Parameters
+        ----------
+        graph : networkx.Graph
+            Any networkx graph; node labels become string ids.
+        weight : str or None, default="weight"
+            Edge attribute holding the weight; missing attributes count as 1.
+            ``None`` gives every link weight 1.
+        distance : bool, default=False
+            Read ``weight`` as a length and convert it with
+            :func:`affinity_from_distance`.
+        size : str, optional
+            Node attribute holding node sizes.
+        pos : str, optional
+            Node attribute holding ``(x, y)`` coordinates.
+
+        Returns
+        -------
+        Network
+        """
+        nodes = list(graph.nodes)
+        edges = list(graph.edges(data=True))
+        w = np.array([1.0 if weight is None else d.get(weight, 1.0) for _, _, d in edges])
+        notes: dict[str, Any] = {}
+        if distance:
+            w, notes["weight_conversion"] = affinity_from_distance(w)
+        data = graph.nodes
+        return cls.from_links(
+            [u for u, _, _ in edges],
+            [v for _, v, _ in edges],
+            w,
+            node_ids=nodes,
+            sizes=None if size is None else np.array([data[v][size] for v in nodes], float),
+            coordinates=None if pos is None else np.array([data[v][pos] for v in nodes], float),
+            notes=notes,
+        )
+
+    @classmethod
+    def from_pandas(cls, edges: pd.DataFrame, **options: Any) -> Network:
+        """Build a network from an edge frame (and optional node frame).
+
+        Takes the options of :func:`specgraph.io.network_from_frames`.
+        """
+        from .io import network_from_frames
+
+        return network_from_frames(edges, **options)
+
+
+def _index_links(
+    src: np.ndarray, dst: np.ndarray, node_ids: Sequence[Any] | None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Map link ends to row indices, fixing the node order."""
+    import pandas as pd
+
+    if node_ids is None:
+        interleaved = np.column_stack([src, dst]).ravel()
+        ids = np.asarray(pd.unique(interleaved), dtype=object)
+    else:
+        ids = np.asarray([str(v) for v in node_ids], dtype=object)
+    index = pd.Index(ids)
+    if not index.is_unique:
+        raise InputError("node ids must be unique")
+    i = index.get_indexer(src)
+    j = index.get_indexer(dst)
+    missing = np.flatnonzero((i < 0) | (j < 0))
+    if missing.size:
+        k = int(missing[0])
+        bad = src[k] if i[k] < 0 else dst[k]
+        raise InputError(f"link {k} names node {bad!r}, which is not among the node ids")
+    return ids, i.astype(np.int64), j.astype(np.int64)
+
+
+def _adjacency_from_links(
+    i: np.ndarray, j: np.ndarray, w: np.ndarray, n: int
+) -> tuple[sp.csr_array, dict[str, int]]:
+    """Symmetric adjacency with the module's input policies, and their counts."""
+    loops = i == j
+    zero = (w == 0) & ~loops
+    keep = ~loops & ~zero
+    lo = np.minimum(i[keep], j[keep])
+    hi = np.maximum(i[keep], j[keep])
+    pair_keys = lo * n + hi
+    distinct = np.unique(pair_keys).size
+    upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()  # sums repeats
+    counts = {
+        "input_links": int(i.size),
+        "self_loops_dropped": int(loops.sum()),
+        "zero_weight_links_dropped": int(zero.sum()),
+        "duplicate_links_merged": int(keep.sum() - distinct),
+    }
+    return (upper + upper.T).tocsr(), counts
