@@ -1,0 +1,458 @@
+"""Reading edge and node tables from CSV or Parquet files into frames of strings.
+
+Every cell is read as text, exactly as written, so that node ids keep leading
+zeros and words such as ``NA`` or ``null`` stay ordinary ids; numbers are parsed
+later, column by column, where the column's meaning is known.
+
+Line numbers are only worked out when an error has to be reported: the success
+path reads the file once with pandas and nothing else.
+"""
+
+from __future__ import annotations
+
+import csv
+import itertools
+import logging
+import os
+import re
+import warnings
+from collections.abc import Callable, Iterable, Iterator
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, TextIO
+
+import pandas as pd
+
+from ..exceptions import InputError, ParameterError
+from ..network import Network
+from ._frames import Columns, Origin, build_network
+
+__all__ = ["read_edges", "read_table"]
+
+logger = logging.getLogger(__name__)
+
+#: File suffixes (lower case) read as Parquet; every other suffix is read as CSV.
+PARQUET_SUFFIXES = frozenset({".parquet", ".pq"})
+#: Delimiter used unless the header shows another one.
+DEFAULT_DELIMITER = ","
+#: Delimiters recognised in a header that holds no comma (semicolon: spreadsheets in
+#: locales with a decimal comma; tab: copied tables; bar: database dumps).
+ALTERNATIVE_DELIMITERS = (";", "\t", "|")
+#: UTF-8, with an optional byte-order mark (spreadsheet programs write one).
+ENCODING = "utf-8-sig"
+_BOM = b"\xef\xbb\xbf"
+#: Characters that make a line blank when nothing else is on it (pandas skips such lines).
+_BLANK_CHARACTERS = " \t\r\n"
+#: The pandas C parser's message for a row with too many fields.
+_PANDAS_RAGGED = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
+_EMPTY_FILE = "the file is empty; expected a header row such as 'source,target'"
+_NO_FILE = "no such file; check the path (a relative path starts from the current folder)"
+_FOLDER = "this is a folder, not a file; give the path of the table file"
+
+
+@dataclass(frozen=True)
+class _Header:
+    """The first non-blank record of a CSV file."""
+
+    line: int
+    names: list[str]
+    delimiter: str
+    detected: bool
+
+
+@dataclass(frozen=True)
+class _Table:
+    """A table read from a file: its frame of strings, its line finder and a record."""
+
+    frame: pd.DataFrame
+    locate: Callable[[int], int | None]
+    record: dict[str, Any]
+
+
+class _NoLines:
+    """Line finder of a file without lines (Parquet): always ``None``."""
+
+    header_line = None
+
+    def __call__(self, row_position: int) -> int | None:
+        return None
+
+
+class _LineLocator:
+    """Physical line (1-based) on which data row ``row_position`` (0-based) starts.
+
+    The file is scanned with the :mod:`csv` module only when asked, that is
+    when an error is being reported; blank lines and quoted fields that hold
+    line breaks are accounted for. Returns ``None`` when the row cannot be found.
+    """
+
+    def __init__(self, path: Path, header: _Header) -> None:
+        self.path = path
+        self.delimiter = header.delimiter
+        self.header_line = header.line
+        self._starts: list[int] = []
+
+    def __call__(self, row_position: int) -> int | None:
+        if row_position < 0:
+            return None
+        if row_position >= len(self._starts):
+            self._starts = self._scan(until=row_position)
+        return self._starts[row_position] if row_position < len(self._starts) else None
+
+    def _scan(self, *, until: int) -> list[int]:
+        starts: list[int] = []
+        try:
+            with _open_text(self.path) as handle:
+                records = _records(handle, self.delimiter)
+                next(records, None)  # the header
+                for start, _ in records:
+                    starts.append(start)
+                    if len(starts) > until:
+                        break
+        except (OSError, UnicodeDecodeError, csv.Error) as exc:
+            logger.debug("could not locate rows of %s: %s", self.path, exc)
+        return starts
+
+
+def _open_text(path: Path) -> TextIO:
+    """The file as text for the csv module (which wants ``newline=''``)."""
+    return open(path, encoding=ENCODING, newline="")
+
+
+def _records(handle: Iterable[str], delimiter: str) -> Iterator[tuple[int, list[str]]]:
+    """Non-blank CSV records with the physical line each starts on, as pandas sees them.
+
+    A line holding only spaces or tabs (and not the delimiter) is blank, as for
+    pandas; a quoted field may span lines.
+    """
+    raw: list[str] = []
+
+    def lines() -> Iterator[str]:
+        for line in handle:
+            raw.append(line)
+            yield line
+
+    reader = csv.reader(lines(), delimiter=delimiter)
+    previous_end = 0
+    for fields in reader:
+        start, previous_end = previous_end + 1, reader.line_num
+        consumed, raw[:] = list(raw), []
+        if len(consumed) == 1 and _is_blank(consumed[0], delimiter):
+            continue
+        yield start, fields
+
+
+def _is_blank(line: str, delimiter: str) -> bool:
+    return delimiter not in line and not line.strip(_BLANK_CHARACTERS)
+
+
+# ----------------------------------------------------------------- files
+def _checked_path(path: Any) -> Path:
+    if not isinstance(path, str | os.PathLike):
+        raise ParameterError(f"path must be a str or os.PathLike; got {path!r}.")
+    path = Path(path)
+    if not path.exists():
+        raise InputError(_NO_FILE, path=path)
+    if path.is_dir():
+        raise InputError(_FOLDER, path=path)
+    return path
+
+
+def _checked_delimiter(delimiter: Any) -> str | None:
+    if delimiter is None:
+        return None
+    if not isinstance(delimiter, str) or len(delimiter) != 1 or delimiter in '"\r\n':
+        raise ParameterError(
+            f"delimiter must be None or one character other than a quote or line break; "
+            f"got {delimiter!r}."
+        )
+    return delimiter
+
+
+def _unreadable(path: Path, exc: OSError) -> InputError:
+    reason = exc.strerror or str(exc)
+    return InputError(f"the file cannot be read ({reason}); check its permissions", path=path)
+
+
+def _encoding_error(path: Path) -> InputError:
+    """Find the first line that is not valid UTF-8 and say how to fix it."""
+    line = 1
+    with open(path, "rb") as handle:
+        for number, raw in enumerate(handle):
+            chunk = raw[len(_BOM) :] if number == 0 and raw.startswith(_BOM) else raw
+            try:
+                chunk.decode("utf-8")
+            except UnicodeDecodeError as exc:
+                # Old-style files end lines with a lone carriage return.
+                before = chunk[: exc.start]
+                line += before.count(b"\r") - before.count(b"\r\n")
+                byte = chunk[exc.start]
+                return InputError(
+                    f"byte 0x{byte:02x} at byte {exc.start + 1} of this line is not UTF-8; "
+                    "re-export the file as UTF-8 (in a spreadsheet: save as 'CSV UTF-8')",
+                    path=path,
+                    line=line,
+                )
+            line += 1 + chunk.count(b"\r") - chunk.count(b"\r\n")
+    return InputError("the file is not valid UTF-8; re-export it as UTF-8", path=path)
+
+
+# ------------------------------------------------------------------ CSV
+def _sniff_delimiter(line: str) -> tuple[str, bool]:
+    """Comma, unless the header has none and exactly one alternative delimiter."""
+    if DEFAULT_DELIMITER in line:
+        return DEFAULT_DELIMITER, False
+    present = [d for d in ALTERNATIVE_DELIMITERS if d in line]
+    if len(present) == 1:
+        return present[0], True
+    return DEFAULT_DELIMITER, False
+
+
+def _read_header(path: Path, delimiter: str | None) -> _Header:
+    try:
+        with _open_text(path) as handle:
+            for number, line in enumerate(handle, start=1):
+                if not line.strip(_BLANK_CHARACTERS):
+                    continue
+                chosen, detected = (
+                    (delimiter, False) if delimiter is not None else _sniff_delimiter(line)
+                )
+                # A quoted name may span lines: let the csv module read on.
+                _, names = next(_records(itertools.chain([line], handle), chosen))
+                return _Header(number, names, chosen, detected)
+    except UnicodeDecodeError:
+        raise _encoding_error(path) from None
+    except csv.Error as exc:
+        raise InputError(f"the header cannot be read as CSV ({exc})", path=path) from None
+    raise InputError(_EMPTY_FILE, path=path, line=1)
+
+
+def _check_header(path: Path, header: _Header) -> None:
+    seen: dict[str, int] = {}
+    for number, name in enumerate(header.names, start=1):
+        if name in seen and name:
+            raise InputError(
+                f"the header names this column twice (columns {seen[name]} and {number}); "
+                "rename one of them",
+                path=path,
+                line=header.line,
+                column=name,
+                column_number=number,
+            )
+        seen[name] = number
+
+
+def _parse_csv(path: Path, header: _Header) -> pd.DataFrame:
+    with warnings.catch_warnings():
+        # A first data row longer than the header only warns; make it a ragged row.
+        warnings.simplefilter("error", pd.errors.ParserWarning)
+        try:
+            return pd.read_csv(
+                path,
+                sep=header.delimiter,
+                dtype=str,
+                keep_default_na=False,
+                na_filter=False,
+                encoding=ENCODING,
+                index_col=False,
+                engine="c",
+            )
+        except UnicodeDecodeError:
+            raise _encoding_error(path) from None
+        except pd.errors.EmptyDataError:
+            raise InputError(_EMPTY_FILE, path=path, line=1) from None
+        except (pd.errors.ParserError, pd.errors.ParserWarning) as exc:
+            raise _ragged_error(path, header, str(exc)) from None
+
+
+def _ragged_error(path: Path, header: _Header, pandas_message: str) -> InputError:
+    """Find the first row with more fields than the header."""
+    expected = len(header.names)
+    line, seen = None, None
+    try:
+        with _open_text(path) as handle:
+            for start, fields in _records(handle, header.delimiter):
+                if start > header.line and len(fields) > expected:
+                    line, seen = start, len(fields)
+                    break
+    except (OSError, UnicodeDecodeError, csv.Error):
+        pass
+    if line is None:
+        match = _PANDAS_RAGGED.search(pandas_message)
+        if match is None:
+            return InputError(f"the file cannot be read as CSV ({pandas_message})", path=path)
+        line, seen = int(match.group(2)), int(match.group(3))
+    return InputError(
+        f"this row has {seen} fields but the header has {expected}; a value probably "
+        f"holds the delimiter {header.delimiter!r}: put that value in double quotes, "
+        "or remove the extra fields",
+        path=path,
+        line=line,
+    )
+
+
+def _read_csv(path: Path, delimiter: str | None) -> _Table:
+    header = _read_header(path, delimiter)
+    _check_header(path, header)
+    if header.detected:
+        logger.info("%s: no comma in the header; using delimiter %r", path, header.delimiter)
+    frame = _parse_csv(path, header)
+    record = {
+        "path": str(path),
+        "format": "csv",
+        "delimiter": header.delimiter,
+        "delimiter_detected": header.detected,
+    }
+    return _Table(frame, _LineLocator(path, header), record)
+
+
+# --------------------------------------------------------------- Parquet
+def _read_parquet(path: Path) -> _Table:
+    try:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+    except ImportError:
+        raise InputError(
+            "reading Parquet needs pyarrow; install it with: pip install 'specgraph[parquet]'",
+            path=path,
+        ) from None
+    try:
+        table = pq.read_table(path)
+    except (pa.ArrowException, OSError) as exc:
+        raise InputError(
+            f"this is not a readable Parquet file ({exc}); check the file, or save the "
+            "table as CSV",
+            path=path,
+        ) from None
+    names = table.column_names
+    duplicated = sorted({name for name in names if names.count(name) > 1})
+    if duplicated:
+        raise InputError(
+            f"the table names a column more than once: {duplicated}; rename the copies",
+            path=path,
+        )
+    frame = pd.DataFrame({name: _parquet_text(table.column(name)) for name in names})
+    return _Table(frame, _NoLines(), {"path": str(path), "format": "parquet"})
+
+
+def _parquet_text(column: Any) -> pd.Series:
+    """A Parquet column as exact text (missing values as ''), or as is if not textual."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    try:
+        text = pc.cast(column, pa.string()).fill_null("")
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return column.to_pandas()
+    return text.to_pandas()
+
+
+# ------------------------------------------------------------ public API
+def _load_table(path: Any, *, delimiter: str | None) -> _Table:
+    checked = _checked_path(path)
+    delimiter = _checked_delimiter(delimiter)
+    try:
+        if checked.suffix.lower() in PARQUET_SUFFIXES:
+            return _read_parquet(checked)
+        return _read_csv(checked, delimiter)
+    except IsADirectoryError:
+        raise InputError(_FOLDER, path=checked) from None
+    except FileNotFoundError:
+        raise InputError(_NO_FILE, path=checked) from None
+    except OSError as exc:
+        raise _unreadable(checked, exc) from None
+
+
+def read_table(
+    path: str | os.PathLike[str], *, delimiter: str | None = None
+) -> tuple[pd.DataFrame, Callable[[int], int | None]]:
+    """Read a CSV or Parquet table as a frame of strings, with a line finder.
+
+    Parameters
+    ----------
+    path : str or path-like
+        A ``.parquet`` or ``.pq`` file is read as Parquet (this needs
+        ``pyarrow``: ``pip install 'specgraph[parquet]'``); any other file as
+        CSV in UTF-8, with or without a byte-order mark.
+    delimiter : str, default=None
+        Field delimiter of a CSV file. ``None`` means a comma, except that when
+        the header holds no comma and exactly one of ``;``, tab or ``|``, that
+        one is used (and logged).
+
+    Returns
+    -------
+    frame : pandas.DataFrame
+        Every cell as text, exactly as written: nothing is stripped and no word
+        (``NA``, ``null``, ...) is read as missing. An empty cell is ``''``;
+        a missing Parquet value is ``''`` too.
+    locate : callable
+        ``locate(row_position)`` gives the 1-based physical line of the file on
+        which data row ``row_position`` (0-based position in ``frame``)
+        starts, counting blank lines and line breaks inside quoted fields
+        (the header is line 1 unless blank lines precede it). The file is
+        scanned only when ``locate`` is called. For Parquet, always ``None``.
+
+    Raises
+    ------
+    InputError
+        For a missing or unreadable file, a folder, an empty file, bytes that
+        are not UTF-8, a column named twice, or a row with more fields than
+        the header; the message names the file and line.
+    """
+    table = _load_table(path, delimiter=delimiter)
+    return table.frame, table.locate
+
+
+def read_edges(
+    path: str | os.PathLike[str],
+    *,
+    source: str = "source",
+    target: str = "target",
+    weight: str | None = None,
+    distance: bool = False,
+    nodes: str | os.PathLike[str] | None = None,
+    node: str = "node",
+    x: str | None = None,
+    y: str | None = None,
+    size: str | None = None,
+    delimiter: str | None = None,
+) -> Network:
+    """Read an edge table (and optionally a node table) from CSV or Parquet files.
+
+    Both tables are read with :func:`read_table` and turned into a network by
+    :func:`network_from_frames`; errors name the file, line and column.
+
+    Parameters
+    ----------
+    path : str or path-like
+        The edge table: one row per link.
+    source, target, weight, distance, node, x, y, size
+        As for :func:`network_from_frames`.
+    nodes : str or path-like, default=None
+        Optional node table, read the same way.
+    delimiter : str, default=None
+        CSV delimiter of both tables; ``None`` chooses per file as in
+        :func:`read_table`.
+
+    Returns
+    -------
+    Network
+        Its ``notes`` also record, under ``"edge_table"`` (and ``"node_table"``),
+        the file, its format and the delimiter used.
+    """
+    edges = _load_table(path, delimiter=delimiter)
+    node_table = None if nodes is None else _load_table(nodes, delimiter=delimiter)
+    notes = {"edge_table": edges.record}
+    if node_table is not None:
+        notes["node_table"] = node_table.record
+    columns = Columns(source, target, weight, distance, node, x, y, size)
+    return build_network(
+        edges.frame,
+        None if node_table is None else node_table.frame,
+        columns,
+        edge_origin=Origin(edges.record["path"], edges.locate),
+        node_origin=(
+            Origin() if node_table is None else Origin(node_table.record["path"], node_table.locate)
+        ),
+        notes=notes,
+    )
