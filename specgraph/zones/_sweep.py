@@ -1,0 +1,83 @@
+"""Sweep cuts: the best prefix of nodes ordered by a vector."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import scipy.sparse as sp
+
+from ..network import Network
+
+__all__ = ["SweepCut", "sweep_cut"]
+
+
+@dataclass(frozen=True, eq=False)
+class SweepCut:
+    """The best prefix cut of a sweep.
+
+    Attributes
+    ----------
+    inside : ndarray of bool
+        Nodes on the smaller-volume side of the best cut.
+    conductance : float
+        Its conductance.
+    profile : ndarray
+        Conductance of every prefix ``1..n-1`` in sweep order.
+    """
+
+    inside: np.ndarray
+    conductance: float
+    profile: np.ndarray
+
+
+def sweep_cut(network: Network, vector: np.ndarray, *, degree_scaled: bool = True) -> SweepCut:
+    """Best-conductance prefix of the nodes sorted by ``vector``.
+
+    With ``vector`` the second eigenvector :math:`u_2` of the normalized
+    Laplacian and ``degree_scaled=True`` (sweep over :math:`D^{-1/2} u_2`), the
+    cut found has conductance at most :math:`\\sqrt{2 \\lambda_2}` (Cheeger's
+    inequality, F. Chung, *Spectral Graph Theory*, AMS 1997, Thm 2.2). All
+    ``n - 1`` prefixes are scored in one vectorized pass: adding node ``v``
+    changes the cut by ``d_v - 2 w(v, earlier nodes)``.
+
+    Parameters
+    ----------
+    network : Network
+        A network with at least two nodes and non-zero volume.
+    vector : ndarray of shape (n,)
+    degree_scaled : bool, default=True
+        Sort by :math:`D^{-1/2}` ``vector`` instead of ``vector``.
+
+    Returns
+    -------
+    SweepCut
+
+    Examples
+    --------
+    >>> from specgraph import gallery
+    >>> cut = sweep_cut(gallery.path(4), np.array([-2.0, -1.0, 1.0, 2.0]), degree_scaled=False)
+    >>> cut.inside.tolist(), round(cut.conductance, 4)
+    ([True, True, False, False], 0.3333)
+    """
+    d = network.degrees
+    key = np.asarray(vector, dtype=np.float64)
+    if degree_scaled:
+        key = key / np.sqrt(np.where(d > 0, d, 1.0))
+    order = np.argsort(key, kind="stable")
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    coo = sp.triu(network.adjacency, k=1, format="coo")
+    later = np.where(rank[coo.row] > rank[coo.col], coo.row, coo.col)
+    earlier_weight = np.bincount(later, weights=coo.data, minlength=d.size)
+    cut = np.cumsum(d[order] - 2.0 * earlier_weight[order])[:-1]
+    vol = np.cumsum(d[order])[:-1]
+    smaller = np.minimum(vol, d.sum() - vol)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        profile = np.where(smaller > 0, cut / smaller, np.inf)
+    best = int(np.argmin(profile))
+    inside = np.zeros(d.size, dtype=bool)
+    inside[order[: best + 1]] = True
+    if vol[best] > d.sum() - vol[best]:
+        inside = ~inside
+    return SweepCut(inside=inside, conductance=float(profile[best]), profile=profile)
