@@ -1,0 +1,48 @@
+"""specgraph: spectral partitioning of infrastructure networks.
+
+Split a water, power, road or telecom network into well-connected zones with
+few and weak links between them, and get the evidence to defend the split.
+
+The pipeline, one module or subpackage per stage::
+
+    specgraph.io -> Network -> specgraph.operators -> specgraph.eigen
+        -> specgraph.zones -> specgraph.diagnostics -> specgraph.export
+
+Zones are decision support only: validate them in a hydraulic, power-flow or
+traffic model and defer to local codes and licensed engineers before acting.
+"""
+
+from importlib.metadata import PackageNotFoundError, version
+
+from . import gallery
+from .diagnostics import boundary_links, zone_table
+from .eigen import EigenResult, smallest_eigenpairs
+from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
+from .io import read_edges
+from .network import Network
+from .operators import GraphOperator, laplacian
+from .zones import Zoning, find_zones
+
+try:
+    __version__ = version("specgraph")
+except PackageNotFoundError:  # running from a source tree that is not installed
+    __version__ = "0+unknown"
+
+__all__ = [
+    "ConvergenceError",
+    "EigenResult",
+    "GraphOperator",
+    "InputError",
+    "Network",
+    "ParameterError",
+    "SpecgraphError",
+    "Zoning",
+    "__version__",
+    "boundary_links",
+    "find_zones",
+    "gallery",
+    "laplacian",
+    "read_edges",
+    "smallest_eigenpairs",
+    "zone_table",
+]

@@ -1,0 +1,321 @@
+"""The ``specgraph`` command: argument parsing over the library, nothing more.
+
+Exit codes: 0 success; 2 bad usage or bad input; 3 an eigen-solve missed its
+tolerance (nothing is written as if it had converged); 1 an unexpected
+internal error. Data goes to files (and ``--json`` summaries to stdout);
+messages go to stderr.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import logging
+import os
+import sys
+import textwrap
+from collections.abc import Sequence
+from typing import Any
+
+from . import __version__
+from .diagnostics import suggest_zone_counts
+from .eigen import DEFAULT_TOL, smallest_eigenpairs
+from .exceptions import ConvergenceError, SpecgraphError
+from .export import CAUTION, file_checksum, run_record, write_outputs, zoning_tables
+from .io import read_edges
+from .network import Network
+from .operators import laplacian
+from .zones import find_zones
+
+__all__ = ["build_parser", "main", "run"]
+
+logger = logging.getLogger("specgraph")
+
+EXIT_OK, EXIT_INTERNAL, EXIT_INPUT, EXIT_NOT_CONVERGED = 0, 1, 2, 3
+
+#: Eigenvalues ``specgraph spectrum`` computes when ``--count`` is not given.
+DEFAULT_SPECTRUM_COUNT = 20
+
+_EXIT_CODES = """\
+exit codes:
+  0  success
+  2  bad usage or bad input (the message names the file, line and column)
+  3  the eigen-solve did not reach its tolerance; no zones were written
+  1  unexpected internal error (please report it with --debug output)
+"""
+
+
+def _caution_epilog(examples: str) -> str:
+    return f"examples:\n{examples}\n{_EXIT_CODES}\ncaution:\n" + textwrap.fill(
+        CAUTION, width=78, initial_indent="  ", subsequent_indent="  "
+    )
+
+
+def _add_reading(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("reading the network")
+    group.add_argument("edges", metavar="EDGES", help="edge table (CSV, or Parquet)")
+    group.add_argument("--nodes", metavar="NODES", help="node table (ids, coordinates, sizes)")
+    group.add_argument("--source", default="source", metavar="COL", help="link start column")
+    group.add_argument("--target", default="target", metavar="COL", help="link end column")
+    group.add_argument(
+        "--weight", metavar="COL", help="weight column (affinity: bigger = more strongly tied)"
+    )
+    group.add_argument(
+        "--distance",
+        action="store_true",
+        help="read --weight as a length, impedance or latency and convert it to an affinity",
+    )
+    group.add_argument("--node-col", default="node", metavar="COL", help="node id column")
+    group.add_argument("--x-col", metavar="COL", help="x coordinate column of the node table")
+    group.add_argument("--y-col", metavar="COL", help="y coordinate column of the node table")
+    group.add_argument(
+        "--size-col", metavar="COL", help="node size column (e.g. connections served)"
+    )
+
+
+def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
+    parser.add_argument("--out", default=out, metavar="DIR", help=f"output folder (default {out})")
+    parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
+    parser.add_argument("--quiet", action="store_true", help="only errors on stderr")
+    parser.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
+
+
+def _add_solving(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("solving")
+    group.add_argument(
+        "--laplacian",
+        choices=("normalized", "random_walk", "combinatorial"),
+        default="normalized",
+        help="operator (default normalized)",
+    )
+    group.add_argument(
+        "--tol",
+        type=float,
+        default=DEFAULT_TOL,
+        help=f"eigen residual bound (default {DEFAULT_TOL})",
+    )
+    group.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``specgraph`` command."""
+    parser = argparse.ArgumentParser(
+        prog="specgraph",
+        description="Split infrastructure networks into well-connected zones by spectral methods.",
+        epilog=_EXIT_CODES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"specgraph {__version__}")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    raw = argparse.RawDescriptionHelpFormatter
+
+    zones = commands.add_parser(
+        "zones",
+        help="split a network into zones and write zones, boundary links and a summary",
+        description="Split a network into K well-connected zones with few, weak links between.",
+        epilog=_caution_epilog(
+            "  specgraph zones pipes.csv --zones 8\n"
+            "  specgraph zones pipes.csv --nodes junctions.csv --node-col node \\\n"
+            "      --weight length_m --distance --size-col connections --zones 12 --out districts"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(zones)
+    zones.add_argument("--zones", type=int, required=True, metavar="K", help="number of zones")
+    _add_solving(zones)
+    _add_common(zones, out="specgraph-zones")
+
+    spectrum = commands.add_parser(
+        "spectrum",
+        help="smallest eigenvalues, residuals and suggested zone counts",
+        description="Smallest Laplacian eigenvalues, their residuals, and zone counts "
+        "suggested by the eigengaps.",
+        epilog=_caution_epilog("  specgraph spectrum pipes.csv --count 30"),
+        formatter_class=raw,
+    )
+    _add_reading(spectrum)
+    spectrum.add_argument(
+        "--count",
+        type=int,
+        default=DEFAULT_SPECTRUM_COUNT,
+        metavar="M",
+        help=f"eigenvalues to compute (default {DEFAULT_SPECTRUM_COUNT})",
+    )
+    _add_solving(spectrum)
+    _add_common(spectrum, out="specgraph-spectrum")
+
+    demo = commands.add_parser(
+        "demo",
+        help="zone the bundled demo network (the invented town of Quillmere)",
+        description="Run `zones` on the bundled demo water network and write the results.",
+        epilog=_caution_epilog("  specgraph demo --out quillmere-zones"),
+        formatter_class=raw,
+    )
+    demo.add_argument("--zones", type=int, default=None, metavar="K", help="number of zones")
+    _add_solving(demo)
+    _add_common(demo, out="specgraph-demo")
+    return parser
+
+
+def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
+    network = read_edges(
+        args.edges,
+        source=args.source,
+        target=args.target,
+        weight=args.weight,
+        distance=args.distance,
+        nodes=args.nodes,
+        node=args.node_col,
+        x=args.x_col,
+        y=args.y_col,
+        size=args.size_col,
+    )
+    inputs = [{"role": "edges", "path": args.edges, "checksum": file_checksum(args.edges)}]
+    if args.nodes:
+        inputs.append({"role": "nodes", "path": args.nodes, "checksum": file_checksum(args.nodes)})
+    return network, inputs
+
+
+def _zone_and_write(
+    network: Network, inputs: list[dict[str, Any]], args: argparse.Namespace, argv: list[str]
+) -> dict[str, Any]:
+    zoning = find_zones(
+        network, args.zones, laplacian_kind=args.laplacian, tol=args.tol, rng=args.seed
+    )
+    record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
+    written = write_outputs(args.out, {**zoning_tables(zoning), "run.json": record})
+    for message in zoning.warnings:
+        logger.warning("warning: %s", message)
+    scores = zoning.scores
+    logger.info(
+        "%d zones, normalized cut %.4g, %d boundary links, all zones connected: %s",
+        scores["zones"],
+        scores["normalized_cut"],
+        scores["boundary_links"],
+        "yes" if scores["all_connected"] else "NO",
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "scores": scores, "warnings": list(zoning.warnings)}
+
+
+def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    logger.info("read %r", network)
+    return _zone_and_write(network, inputs, args, argv)
+
+
+def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    from .demo import DEMO_ZONES, demo_files, load_demo
+
+    network = load_demo()
+    files = demo_files()
+    inputs = [
+        {"role": role, "path": f"<demo>/{path.name}", "checksum": file_checksum(path)}
+        for role, path in (("edges", files.pipes), ("nodes", files.junctions))
+    ]
+    args.zones = DEMO_ZONES if args.zones is None else args.zones
+    logger.info("demo: the invented town of Quillmere, %r", network)
+    return _zone_and_write(network, inputs, args, argv)
+
+
+def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    import pandas as pd
+
+    network, inputs = _read(args)
+    count = min(args.count, network.n_nodes)
+    result = smallest_eigenpairs(
+        laplacian(network, kind=args.laplacian), count, tol=args.tol, rng=args.seed
+    )
+    table = pd.DataFrame(
+        {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
+    )
+    suggested = suggest_zone_counts(result.values, n_components=network.n_components)
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": inputs,
+        "network": {
+            "nodes": network.n_nodes,
+            "links": network.n_links,
+            "components": network.n_components,
+        },
+        "eigen_solve": {
+            "method": result.method,
+            "pairs": result.k,
+            "tol": result.tol,
+            "max_residual": result.max_residual,
+            "matvecs": result.matvecs,
+            "iterations": result.iterations,
+            "converged": result.converged,
+        },
+        "suggested_zone_counts": suggested,
+        "caution": CAUTION,
+    }
+    write_outputs(args.out, {"spectrum.csv": table, "run.json": record})
+    for row in suggested:
+        logger.info(
+            "suggested zones: %d (relative eigengap %.2f)", row["zones"], row["relative_gap"]
+        )
+    return {"out": str(args.out), "eigenvalues": result.values.tolist(), "suggested": suggested}
+
+
+_COMMANDS = {"zones": _cmd_zones, "spectrum": _cmd_spectrum, "demo": _cmd_demo}
+
+
+def _configure_logging(quiet: bool) -> None:
+    handler = logging.StreamHandler(sys.stderr)
+    handler.setFormatter(logging.Formatter("specgraph: %(message)s"))
+    logger.handlers[:] = [handler]
+    logger.setLevel(logging.WARNING if quiet else logging.INFO)
+    logger.propagate = False
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    """Run the command line; return the exit code (callable from tests)."""
+    argv = list(sys.argv[1:] if argv is None else argv)
+    parser = build_parser()
+    try:
+        args = parser.parse_args(argv)
+    except SystemExit as exc:  # argparse exits 2 on bad usage, 0 on --help
+        return int(exc.code or 0)
+    _configure_logging(args.quiet)
+    if args.command in ("zones", "demo"):
+        logger.info("caution: %s", CAUTION)
+    try:
+        summary = _COMMANDS[args.command](args, argv)
+    except ConvergenceError as exc:
+        partial = exc.partial
+        logger.error("error: %s", exc)
+        logger.error(
+            "partial residuals: %s; nothing was written", [f"{r:.3g}" for r in partial.residuals]
+        )
+        return EXIT_NOT_CONVERGED
+    except (SpecgraphError, ValueError) as exc:
+        if args.debug:
+            raise
+        logger.error("error: %s", exc)
+        return EXIT_INPUT
+    except Exception as exc:
+        if args.debug:
+            raise
+        logger.error(
+            "internal error: %s: %s (rerun with --debug and report it)", type(exc).__name__, exc
+        )
+        return EXIT_INTERNAL
+    if args.json:
+        print(json.dumps(summary, indent=2))
+    return EXIT_OK
+
+
+def run() -> None:
+    """Console-script entry point."""
+    try:
+        code = main()
+        sys.stdout.flush()
+    except BrokenPipeError:
+        # The reader of stdout went away (e.g. `| head`): not an error of ours.
+        # Point stdout at devnull so the interpreter's final flush stays quiet.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        code = EXIT_OK
+    sys.exit(code)
