@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import numpy as np
-from sklearn.cluster import KMeans
 
 __all__ = ["KMEANS_RESTARTS", "kmeans_labels"]
 
@@ -23,6 +22,10 @@ def kmeans_labels(points: np.ndarray, k: int, rng: np.random.Generator) -> np.nd
     >>> bool(labels[0] == labels[1] != labels[2] == labels[3])
     True
     """
+    # Imported here: scikit-learn takes half a second to import, which every
+    # command (even --help) would otherwise pay.
+    from sklearn.cluster import KMeans
+
     seed = int(rng.integers(np.iinfo(np.int32).max))
     model = KMeans(n_clusters=k, n_init=KMEANS_RESTARTS, random_state=seed)
     return model.fit_predict(points).astype(np.int64)
