@@ -9,12 +9,13 @@ messages go to stderr.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import logging
 import os
 import sys
 import textwrap
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
 from typing import Any
 
 from . import __version__
@@ -43,6 +44,36 @@ exit codes:
   3  the eigen-solve did not reach its tolerance; no zones were written
   1  unexpected internal error (please report it with --debug output)
 """
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 1; got {text!r}") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 1; got {text!r}")
+    return value
+
+
+def _seed(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 0; got {text!r}") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a whole number >= 0; got {text!r}")
+    return value
+
+
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number > 0; got {text!r}") from None
+    if not (value > 0 and value < float("inf")):
+        raise argparse.ArgumentTypeError(f"expected a finite number > 0; got {text!r}")
+    return value
 
 
 def _caution_epilog(examples: str) -> str:
@@ -90,11 +121,11 @@ def _add_solving(parser: argparse.ArgumentParser) -> None:
     )
     group.add_argument(
         "--tol",
-        type=float,
+        type=_positive_float,
         default=DEFAULT_TOL,
         help=f"eigen residual bound (default {DEFAULT_TOL})",
     )
-    group.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    group.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -121,7 +152,9 @@ def build_parser() -> argparse.ArgumentParser:
         formatter_class=raw,
     )
     _add_reading(zones)
-    zones.add_argument("--zones", type=int, required=True, metavar="K", help="number of zones")
+    zones.add_argument(
+        "--zones", type=_positive_int, required=True, metavar="K", help="number of zones"
+    )
     _add_solving(zones)
     _add_common(zones, out="specgraph-zones")
 
@@ -136,7 +169,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_reading(spectrum)
     spectrum.add_argument(
         "--count",
-        type=int,
+        type=_positive_int,
         default=DEFAULT_SPECTRUM_COUNT,
         metavar="M",
         help=f"eigenvalues to compute (default {DEFAULT_SPECTRUM_COUNT})",
@@ -151,10 +184,24 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=_caution_epilog("  specgraph demo --out quillmere-zones"),
         formatter_class=raw,
     )
-    demo.add_argument("--zones", type=int, default=None, metavar="K", help="number of zones")
+    demo.add_argument(
+        "--zones", type=_positive_int, default=None, metavar="K", help="number of zones"
+    )
     _add_solving(demo)
     _add_common(demo, out="specgraph-demo")
     return parser
+
+
+def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespace) -> None:
+    if getattr(args, "edges", None) is None or args.nodes:
+        return
+    for option, value in (
+        ("--size-col", args.size_col),
+        ("--x-col", args.x_col),
+        ("--y-col", args.y_col),
+    ):
+        if value is not None:
+            parser.error(f"{option} names a column of the node table, so it needs --nodes")
 
 
 def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
@@ -262,12 +309,20 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 _COMMANDS = {"zones": _cmd_zones, "spectrum": _cmd_spectrum, "demo": _cmd_demo}
 
 
-def _configure_logging(quiet: bool) -> None:
+@contextlib.contextmanager
+def _messages_to_stderr(quiet: bool) -> Iterator[None]:
+    """Route the library's log records to stderr for one command, then restore."""
     handler = logging.StreamHandler(sys.stderr)
     handler.setFormatter(logging.Formatter("specgraph: %(message)s"))
+    saved = (logger.handlers[:], logger.level, logger.propagate)
     logger.handlers[:] = [handler]
     logger.setLevel(logging.WARNING if quiet else logging.INFO)
     logger.propagate = False
+    try:
+        yield
+    finally:
+        logger.handlers[:], level, logger.propagate = saved
+        logger.setLevel(level)
 
 
 def main(argv: Sequence[str] | None = None) -> int:
@@ -276,9 +331,18 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser()
     try:
         args = parser.parse_args(argv)
+        _check_node_options(parser, args)
     except SystemExit as exc:  # argparse exits 2 on bad usage, 0 on --help
         return int(exc.code or 0)
-    _configure_logging(args.quiet)
+    with _messages_to_stderr(args.quiet):
+        code, summary = _dispatch(args, argv)
+    if summary is not None and args.json:
+        print(json.dumps(summary, indent=2))
+    return code
+
+
+def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
+    """Run one command; map every failure to its exit code and a one-line message."""
     if args.command in ("zones", "demo"):
         logger.info("caution: %s", CAUTION)
     try:
@@ -289,22 +353,20 @@ def main(argv: Sequence[str] | None = None) -> int:
         logger.error(
             "partial residuals: %s; nothing was written", [f"{r:.3g}" for r in partial.residuals]
         )
-        return EXIT_NOT_CONVERGED
+        return EXIT_NOT_CONVERGED, None
     except (SpecgraphError, ValueError) as exc:
         if args.debug:
             raise
         logger.error("error: %s", exc)
-        return EXIT_INPUT
+        return EXIT_INPUT, None
     except Exception as exc:
         if args.debug:
             raise
         logger.error(
             "internal error: %s: %s (rerun with --debug and report it)", type(exc).__name__, exc
         )
-        return EXIT_INTERNAL
-    if args.json:
-        print(json.dumps(summary, indent=2))
-    return EXIT_OK
+        return EXIT_INTERNAL, None
+    return EXIT_OK, summary
 
 
 def run() -> None:

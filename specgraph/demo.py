@@ -42,9 +42,7 @@ def _data_folder() -> Path:
     checkout = Path(__file__).resolve().parent.parent / "datasets" / _NAME
     if checkout.is_dir():
         return checkout
-    raise SpecgraphError(
-        "the demo tables are missing from this installation; reinstall specgraph"
-    )
+    raise SpecgraphError("the demo tables are missing from this installation; reinstall specgraph")
 
 
 def demo_files() -> DemoFiles:

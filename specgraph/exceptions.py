@@ -17,6 +17,7 @@ from typing import Any
 __all__ = [
     "ConvergenceError",
     "InputError",
+    "OutputError",
     "ParameterError",
     "SpecgraphError",
 ]
@@ -74,6 +75,10 @@ class InputError(SpecgraphError, ValueError):
             where.append(f"column '{self.column}'{position}")
         prefix = ", ".join(where)
         return f"{prefix}: {self.reason}" if prefix else self.reason
+
+
+class OutputError(SpecgraphError, OSError):
+    """Results cannot be written where they were asked to go."""
 
 
 class ConvergenceError(SpecgraphError, RuntimeError):

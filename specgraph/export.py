@@ -26,6 +26,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .exceptions import OutputError
 from .zones import Zoning
 
 __all__ = [
@@ -225,15 +226,20 @@ def write_outputs(
         The files written, in the order given.
     """
     folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
     staged: list[tuple[Path, Path]] = []
     try:
+        folder.mkdir(parents=True, exist_ok=True)
         for name, content in files.items():
             staged.append((_write_temp(folder, name, content), folder / name))
-    except BaseException:
+    except BaseException as exc:
         for temp, _ in staged:
             with contextlib.suppress(OSError):
                 temp.unlink()
+        if isinstance(exc, OSError):
+            raise OutputError(
+                f"cannot write results into folder '{folder}': {exc.strerror or exc}; "
+                "choose another output folder"
+            ) from exc
         raise
     mode = _default_file_mode()
     for temp, final in staged:

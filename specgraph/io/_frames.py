@@ -146,6 +146,12 @@ def _check_options(edges: Any, nodes: Any, columns: Columns) -> None:
         )
     if columns.weight is not None and columns.weight in (columns.source, columns.target):
         raise ParameterError(f"weight must not be a node id column; got {columns.weight!r}.")
+    node_columns = {"x": columns.x, "y": columns.y, "size": columns.size}
+    given = [name for name, value in node_columns.items() if value is not None]
+    if nodes is None and given:
+        raise ParameterError(
+            f"{given[0]} names a node-table column, so nodes must be given; got nodes=None."
+        )
     if (columns.x is None) != (columns.y is None):
         raise ParameterError(
             f"x and y must be given together (both or neither); got x={columns.x!r}, "
