@@ -135,7 +135,9 @@ class Network:
     notes: Mapping[str, Any] = field(default_factory=dict)
 
     def __post_init__(self) -> None:
-        adjacency = sp.csr_array(self.adjacency, dtype=np.float64)
+        # A private copy: the canonicalization below works in place, and neither
+        # the caller's matrix nor another network's read-only arrays may change.
+        adjacency = sp.csr_array(self.adjacency, dtype=np.float64, copy=True)
         adjacency.sum_duplicates()
         adjacency.eliminate_zeros()
         adjacency.sort_indices()
@@ -155,6 +157,8 @@ class Network:
             raise InputError(f"node_ids must hold {n} ids, one per row; got {ids.size}")
         if len(set(ids.tolist())) != n:
             raise InputError("node_ids must be unique")
+        for part in (adjacency.data, adjacency.indices, adjacency.indptr):
+            _readonly(part)
         object.__setattr__(self, "adjacency", adjacency)
         object.__setattr__(self, "node_ids", _readonly(ids))
         object.__setattr__(self, "coordinates", self._checked_coordinates(n))

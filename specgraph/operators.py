@@ -79,12 +79,14 @@ class GraphOperator:
         """Map eigenvectors of :attr:`matrix` to eigenvectors of the named Laplacian.
 
         Identity except for ``random_walk``, where ``v = D^{-1/2} u``, scaled to
-        unit Euclidean norm per column.
+        unit Euclidean norm per column. An isolated node's entry is kept as it
+        is: its row of :math:`I - D^{-1}A` is zero, like its row of ``N``.
         """
         if self.kind != "random_walk":
             return vectors
-        inv_sqrt = _inverse_sqrt(self.degrees)
-        mapped = vectors * inv_sqrt[:, None]
+        degrees = self.degrees
+        scale = np.where(degrees > 0, _inverse_sqrt(degrees), 1.0)
+        mapped = vectors * scale[:, None]
         norms = np.linalg.norm(mapped, axis=0)
         return mapped / np.where(norms > 0, norms, 1.0)
 

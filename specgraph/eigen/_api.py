@@ -123,11 +123,10 @@ def smallest_eigenpairs(
     values, vectors, used, matvecs, iterations = _solve_components(
         operator, k, method, tol, maxiter, generator
     )
-    vectors = _fix_signs(vectors)
     residuals = _scaled_residuals(operator, values, vectors)
     result = EigenResult(
         values=values,
-        vectors=operator.to_user_vectors(vectors),
+        vectors=_fix_signs(operator.to_user_vectors(vectors)),
         residuals=residuals,
         tol=tol,
         method="+".join(sorted(used)) or "trivial",
@@ -136,10 +135,10 @@ def smallest_eigenpairs(
         converged=bool(values.size == k and np.all(residuals <= tol)),
     )
     if not result.converged:
+        shortfall = f"found {values.size} of {k} pairs" if values.size < k else "found all pairs"
         raise ConvergenceError(
-            f"the eigen-solve ({result.method}) found {values.size} of {k} pairs with "
-            f"largest scaled residual {result.max_residual:.3g}, above tol={tol:.3g}; "
-            "raise maxiter or loosen tol",
+            f"the eigen-solve ({result.method}) {shortfall}, largest scaled residual "
+            f"{result.max_residual:.3g} against tol={tol:.3g}; raise maxiter or loosen tol",
             partial=result,
         )
     return result

@@ -2,17 +2,24 @@
 
 With a shift :math:`-s < 0` the operator :math:`(M + sI)^{-1}` is positive
 definite and its largest eigenvalues :math:`1/(\\lambda + s)` belong to the
-smallest :math:`\\lambda`, which Lanczos finds in few steps. The cost is a
-sparse LU factorization whose fill grows faster than linearly on large meshes.
+smallest :math:`\\lambda`, which Lanczos finds in few steps. The cost is one
+sparse LU factorization, whose fill grows faster than linearly on large meshes.
+
+Single-vector Lanczos sees only one direction of each eigenspace in exact
+arithmetic, so copies of a repeated eigenvalue are found through rounding
+alone and can be missed. After each run the pairs found are therefore locked
+and deflated, and Lanczos runs again on the rest: a pair it finds below the
+current edge was missing, and the loop repeats until a run finds none.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.linalg import ArpackNoConvergence, eigsh
+from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh, splu
 
 from ._problem import Problem, Solution
+from ._subspace import deflate, rayleigh_ritz
 
 __all__ = ["solve_shift_invert"]
 
@@ -22,43 +29,69 @@ __all__ = ["solve_shift_invert"]
 #: shifted matrix to factorize stably (condition number about 1/SHIFT_FRACTION).
 SHIFT_FRACTION = 1e-7
 
-#: Extra pairs requested beyond those wanted, at least this many or half the
-#: wanted count. Single-vector Lanczos finds the second copy of a repeated
-#: eigenvalue only through rounding, and asked for exactly k pairs it can
-#: return the next eigenvalue instead of the copy at the edge (seen on grid
-#: graphs); the guard pairs let the copy converge before the edge is read.
+#: Extra pairs asked of each Lanczos run beyond those still wanted, so that
+#: the edge of the wanted set converges among neighbours rather than last.
 GUARD_PAIRS = 2
 
 
-def solve_shift_invert(problem: Problem) -> Solution:
-    """Smallest nontrivial pairs by shift-invert Lanczos, null vector included then removed."""
+def _inverse(problem: Problem) -> LinearOperator:
+    """``(M + sI)^{-1}`` through one sparse LU factorization (SuperLU)."""
     n = problem.matrix.shape[0]
-    guard = max(GUARD_PAIRS, problem.count // 2)
-    # The trivial pair comes along (and is dropped below); eigsh needs k < n.
-    wanted = min(problem.count + 1 + guard, n - 1)
     shift = SHIFT_FRACTION * problem.norm_bound
-    v0 = problem.rng.standard_normal(n)
-    matrix = sp.csc_matrix(problem.matrix)
+    shifted = sp.csc_matrix(problem.matrix + shift * sp.eye_array(n, format="csr"))
+    factor = splu(shifted)
+    return LinearOperator((n, n), matvec=factor.solve, matmat=factor.solve, dtype=float)
+
+
+def _lanczos_run(
+    inverse: LinearOperator, locked: np.ndarray, wanted: int, problem: Problem
+) -> np.ndarray:
+    """Ritz vectors of the largest eigenvalues of the inverse, deflated against ``locked``."""
+    n = inverse.shape[0]
+
+    def apply(x: np.ndarray) -> np.ndarray:
+        x = deflate(x.reshape(n, -1), locked)
+        return deflate(inverse.matmat(x), locked).reshape(x.shape if x.ndim > 1 else -1)
+
+    operator = LinearOperator((n, n), matvec=apply, matmat=apply, dtype=float)
+    start = deflate(problem.rng.standard_normal((n, 1)), locked).ravel()
+    k = min(wanted, n - locked.shape[1] - 1)
+    if k < 1:
+        return np.zeros((n, 0))
     try:
-        values, vectors = eigsh(
-            matrix,
-            k=wanted,
-            sigma=-shift,
-            which="LM",
-            v0=v0,
-            tol=problem.tol,
-            maxiter=problem.maxiter,
+        _, vectors = eigsh(
+            operator, k=k, which="LA", v0=start, tol=problem.tol, maxiter=problem.maxiter
         )
-        iterations = 1
     except ArpackNoConvergence as exc:
-        values, vectors, iterations = exc.eigenvalues, exc.eigenvectors, -1
-    order = np.argsort(values)
-    values, vectors = values[order], vectors[:, order]
-    overlap = np.abs(problem.null_vector @ vectors)
-    keep = np.ones(values.size, bool)
-    if values.size:
-        keep[int(np.argmax(overlap))] = False
-    values, vectors = values[keep][: problem.count], vectors[:, keep][:, : problem.count]
-    vectors -= np.outer(problem.null_vector, problem.null_vector @ vectors)
-    vectors /= np.linalg.norm(vectors, axis=0)
-    return Solution(values, vectors, matvecs=0, iterations=iterations)
+        vectors = exc.eigenvectors  # partial pairs; the residual check judges them
+    return np.asarray(vectors)
+
+
+def solve_shift_invert(problem: Problem) -> Solution:
+    """Smallest nontrivial pairs by shift-invert Lanczos with locking and deflation."""
+    n = problem.matrix.shape[0]
+    inverse = _inverse(problem)
+    null = problem.null_vector.reshape(n, 1)
+    slack = problem.tol * problem.norm_bound
+
+    def apply(x: np.ndarray) -> np.ndarray:
+        return problem.matrix @ x
+
+    found = np.zeros((n, 0))
+    values = np.zeros(0)
+    runs = 0
+    # Ritz values on a larger subspace can only move down (Cauchy interlacing),
+    # so a run that lowers none of them found nothing missing and ends the loop;
+    # every other run adds at least one pair, so count + 1 runs suffice.
+    while runs <= problem.count:
+        still = problem.count - found.shape[1]
+        vectors = _lanczos_run(inverse, np.hstack([null, found]), still + GUARD_PAIRS, problem)
+        runs += 1
+        if vectors.shape[1] == 0:
+            break
+        previous = values
+        values, ritz = rayleigh_ritz(apply, deflate(np.hstack([found, vectors]), null))
+        values, found = values[: problem.count], ritz[:, : problem.count]
+        if previous.size == problem.count and np.all(values >= previous - slack):
+            break
+    return Solution(values, found, matvecs=0, iterations=runs)

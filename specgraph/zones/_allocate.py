@@ -2,23 +2,27 @@
 
 from __future__ import annotations
 
+import heapq
+
 import numpy as np
 
 __all__ = ["allocate_zones"]
 
 
 def allocate_zones(weights: np.ndarray, nodes: np.ndarray, k: int) -> np.ndarray:
-    """Zones per component: at least one each, the rest in proportion to weight.
+    """Zones per component: one each, then each further zone where zones are largest.
 
     A zone never spans two components (it could not be connected), so each
-    component gets at least one zone. The remaining ``k - c`` zones go in
-    proportion to component weight by the largest-remainder rule, never more
-    than a component has nodes. Ties go to the earlier component.
+    component gets one zone first. Each further zone goes to the component
+    whose zones are currently the largest on average (weight over zones), never
+    more zones than a component has nodes; ties go to the earlier component.
+    This greatest-average rule (D'Hondt's, from seat apportionment) makes the
+    largest average zone size as small as it can be for the count.
 
     Parameters
     ----------
     weights : ndarray of shape (c,)
-        Component weights (node count or summed node size).
+        Component weights (node count or summed node size), >= 0.
     nodes : ndarray of shape (c,)
         Node count of each component (caps its zones).
     k : int
@@ -33,24 +37,17 @@ def allocate_zones(weights: np.ndarray, nodes: np.ndarray, k: int) -> np.ndarray
     --------
     >>> allocate_zones(np.array([90.0, 9.0, 1.0]), np.array([90, 9, 1]), 10).tolist()
     [8, 1, 1]
+    >>> allocate_zones(np.array([10.0, 20.0, 5.0, 1.0]), np.array([10, 20, 5, 1]), 7).tolist()
+    [2, 3, 1, 1]
     """
-    c = weights.size
-    counts = np.ones(c, dtype=np.int64)
-    spare = k - c
-    while spare > 0:
-        room = counts < nodes
-        share = np.where(room, weights, 0.0)
-        if share.sum() <= 0:
-            share = room.astype(float)
-        ideal = counts + spare * share / share.sum()
-        extra = np.minimum(np.floor(ideal).astype(np.int64), nodes) - counts
-        extra = np.maximum(extra, 0)
-        if extra.sum() == 0:
-            # Largest remainder: one more zone to the component furthest below its ideal.
-            remainder = np.where(room, ideal - counts, -np.inf)
-            extra[int(np.argmax(remainder))] = 1
-        extra = np.minimum(extra, spare - np.concatenate([[0], np.cumsum(extra)[:-1]]))
-        extra = np.maximum(extra, 0)
-        counts += extra
-        spare -= int(extra.sum())
+    weights = np.asarray(weights, dtype=np.float64)
+    counts = np.ones(weights.size, dtype=np.int64)
+    # Max-heap on average zone weight (negated), then component index for ties.
+    heap = [(-float(w), i) for i, w in enumerate(weights) if nodes[i] > 1]
+    heapq.heapify(heap)
+    for _ in range(k - weights.size):
+        _, i = heapq.heappop(heap)
+        counts[i] += 1
+        if counts[i] < nodes[i]:
+            heapq.heappush(heap, (-float(weights[i]) / counts[i], i))
     return counts
