@@ -12,6 +12,7 @@ import argparse
 import contextlib
 import json
 import logging
+import math
 import os
 import sys
 import textwrap
@@ -46,34 +47,26 @@ exit codes:
 """
 
 
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 1; got {text!r}") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 1; got {text!r}")
-    return value
+def _bounded(kind: type, minimum: float, *, strict: bool, expected: str) -> Any:
+    """An argparse ``type`` that parses ``kind`` and refuses values below ``minimum``."""
+
+    def parse(text: str) -> Any:
+        try:
+            value = kind(text)
+        except ValueError:
+            value = None
+        ok = value is not None and math.isfinite(value)
+        ok = ok and (value > minimum if strict else value >= minimum)
+        if not ok:
+            raise argparse.ArgumentTypeError(f"expected {expected}; got {text!r}")
+        return value
+
+    return parse
 
 
-def _seed(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 0; got {text!r}") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a whole number >= 0; got {text!r}")
-    return value
-
-
-def _positive_float(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number > 0; got {text!r}") from None
-    if not (value > 0 and value < float("inf")):
-        raise argparse.ArgumentTypeError(f"expected a finite number > 0; got {text!r}")
-    return value
+_positive_int = _bounded(int, 1, strict=False, expected="a whole number >= 1")
+_seed = _bounded(int, 0, strict=False, expected="a whole number >= 0")
+_positive_float = _bounded(float, 0.0, strict=True, expected="a finite number > 0")
 
 
 def _caution_epilog(examples: str) -> str:
