@@ -8,13 +8,26 @@ Springer 2012, ch. 1), which is why tests use them.
 
 from __future__ import annotations
 
+from typing import Any
+
 import networkx as nx
 import numpy as np
+import scipy.sparse as sp
 
-from ._validation import check_int, check_positive_float
+from ._validation import check_int, check_positive_float, check_rng
 from .network import Network
 
-__all__ = ["barbell", "complete", "grid", "hypercube", "path", "ring", "star", "two_zone"]
+__all__ = [
+    "barbell",
+    "complete",
+    "grid",
+    "hypercube",
+    "path",
+    "ring",
+    "road_like",
+    "star",
+    "two_zone",
+]
 
 
 def _from_nx(graph: nx.Graph) -> Network:
@@ -97,3 +110,55 @@ def two_zone(size: int, *, p_in: float = 0.3, links_between: int = 2, seed: int 
     b = rng.choice(size, links_between, replace=False) + size
     graph.add_edges_from(zip(a.tolist(), b.tolist(), strict=True))
     return _from_nx(graph)
+
+
+#: Mean degree the road-like family is thinned to: near that of street
+#: networks, whose junctions mostly join three or four segments (common practice).
+ROAD_MEAN_DEGREE = 4.0
+
+
+def road_like(n: int, *, mean_degree: float = ROAD_MEAN_DEGREE, rng: Any = None) -> Network:
+    """A connected near-planar network like a road or pipe network.
+
+    Uniform random points in the unit square are joined by their Delaunay
+    triangulation (mean degree just under 6), which is thinned to
+    ``mean_degree``: a Euclidean minimum spanning tree is kept, so the network
+    stays connected, and random other triangulation links are added to it.
+    Link affinities are the inverse link lengths.
+
+    Parameters
+    ----------
+    n : int
+        Number of nodes, at least 4.
+    mean_degree : float, default=4.0
+        Target mean degree, between 2 and the triangulation's (about 6).
+    rng : None, int or numpy.random.Generator
+        Seeds the points and the thinning.
+
+    Returns
+    -------
+    Network
+        With node coordinates.
+    """
+    from scipy.sparse.csgraph import minimum_spanning_tree
+    from scipy.spatial import Delaunay
+
+    n = check_int(n, "n", minimum=4)
+    generator = check_rng(rng)
+    points = generator.random((n, 2))
+    simplices = Delaunay(points).simplices
+    pairs = np.vstack([simplices[:, [0, 1]], simplices[:, [1, 2]], simplices[:, [0, 2]]])
+    pairs = np.unique(np.sort(pairs, axis=1), axis=0)
+    length = np.linalg.norm(points[pairs[:, 0]] - points[pairs[:, 1]], axis=1)
+    graph = sp.coo_array((length, (pairs[:, 0], pairs[:, 1])), shape=(n, n)).tocsr()
+    tree = minimum_spanning_tree(graph).tocoo()
+    lo, hi = np.minimum(tree.row, tree.col), np.maximum(tree.row, tree.col)
+    in_tree = np.isin(pairs[:, 0].astype(np.int64) * n + pairs[:, 1], lo.astype(np.int64) * n + hi)
+    rest = np.flatnonzero(~in_tree)
+    wanted = round(mean_degree * n / 2) - tree.nnz
+    extra = generator.choice(rest, size=min(max(wanted, 0), rest.size), replace=False)
+    keep_rows = np.concatenate([tree.row, pairs[extra, 0]])
+    keep_cols = np.concatenate([tree.col, pairs[extra, 1]])
+    weights = 1.0 / np.linalg.norm(points[keep_rows] - points[keep_cols], axis=1)
+    upper = sp.coo_array((weights, (keep_rows, keep_cols)), shape=(n, n)).tocsr()
+    return Network(upper + upper.T, np.arange(n).astype(str), coordinates=points)

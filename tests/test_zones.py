@@ -29,7 +29,7 @@ from specgraph.zones import (
 )
 
 KINDS = ["normalized", "random_walk", "combinatorial"]
-METHODS = ["dense", "shift_invert"]
+METHODS = ["dense", "lanczos", "multilevel"]
 #: Recovery threshold for a planted partition far above the detectability limit
 #: (common practice).
 ARI_PLANTED = 0.95

@@ -5,13 +5,21 @@ The public entry point is :func:`smallest_eigenpairs`; every method returns an
 :class:`~specgraph.exceptions.ConvergenceError` carrying the partial pairs.
 """
 
-from ._api import DEFAULT_TOL, DENSE_LIMIT, METHODS, choose_method, smallest_eigenpairs
+from ._api import (
+    DEFAULT_TOL,
+    DENSE_LIMIT,
+    METHODS,
+    MULTILEVEL_LIMIT,
+    choose_method,
+    smallest_eigenpairs,
+)
 from ._result import EigenResult
 
 __all__ = [
     "DEFAULT_TOL",
     "DENSE_LIMIT",
     "METHODS",
+    "MULTILEVEL_LIMIT",
     "EigenResult",
     "choose_method",
     "smallest_eigenpairs",

@@ -26,11 +26,18 @@ from .._validation import check_choice, check_int, check_positive_float, check_r
 from ..exceptions import ConvergenceError
 from ..operators import GraphOperator
 from ._dense import solve_dense
+from ._lanczos import solve_lanczos, solve_lanczos_flip
+from ._multilevel import solve_multilevel
 from ._problem import Problem, Solution
 from ._result import EigenResult
-from ._shift_invert import solve_shift_invert
 
-__all__ = ["DEFAULT_TOL", "DENSE_LIMIT", "choose_method", "smallest_eigenpairs"]
+__all__ = [
+    "DEFAULT_TOL",
+    "DENSE_LIMIT",
+    "MULTILEVEL_LIMIT",
+    "choose_method",
+    "smallest_eigenpairs",
+]
 
 logger = logging.getLogger(__name__)
 
@@ -46,23 +53,37 @@ DEFAULT_TOL = 1e-6
 #: rounding; above it memory (8 n^2 bytes) and time (n^3) grow too fast.
 DENSE_LIMIT = 2000
 
+#: Components of at least this many nodes go to the multilevel method, whose
+#: cost grows linearly with size; below it thick-restart Lanczos with one
+#: sparse factorization is faster (measured: docs/benchmarks.md).
+MULTILEVEL_LIMIT = 50_000
+
 _SOLVERS: dict[str, Callable[[Problem], Solution]] = {
     "dense": solve_dense,
-    "shift_invert": solve_shift_invert,
+    "lanczos": solve_lanczos,
+    "lanczos_flip": solve_lanczos_flip,
+    "multilevel": solve_multilevel,
 }
 
 METHODS = ("auto", *_SOLVERS)
 
 
 def choose_method(n: int) -> str:
-    """The ``auto`` rule: ``'dense'`` up to :data:`DENSE_LIMIT` nodes, else ``'shift_invert'``.
+    """The ``auto`` rule for a connected component of ``n`` nodes.
+
+    ``'dense'`` up to :data:`DENSE_LIMIT` nodes, ``'lanczos'`` (thick restart,
+    shift-invert by one sparse LU) up to :data:`MULTILEVEL_LIMIT`, and
+    ``'multilevel'`` beyond, where the factorization's fill makes Lanczos grow
+    faster than linearly.
 
     Examples
     --------
-    >>> choose_method(500), choose_method(50_000)
-    ('dense', 'shift_invert')
+    >>> choose_method(500), choose_method(20_000), choose_method(2_000_000)
+    ('dense', 'lanczos', 'multilevel')
     """
-    return "dense" if n <= DENSE_LIMIT else "shift_invert"
+    if n <= DENSE_LIMIT:
+        return "dense"
+    return "lanczos" if n < MULTILEVEL_LIMIT else "multilevel"
 
 
 def smallest_eigenpairs(
@@ -83,9 +104,11 @@ def smallest_eigenpairs(
     k : int
         Number of pairs, ``1 <= k <= n``. The first ``c`` pairs of a network
         with ``c`` components are the exact trivial pairs (eigenvalue 0).
-    method : {'auto', 'dense', 'shift_invert'}, default='auto'
+    method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
         Solver for each component; ``'auto'`` follows :func:`choose_method`
-        per component.
+        per component. ``'lanczos'`` is thick-restart Lanczos on the
+        shift-inverted operator, ``'lanczos_flip'`` on :math:`\\|M\\| I - M`
+        (no factorization), ``'multilevel'`` the aggregation cascade.
 
     Returns
     -------

@@ -186,7 +186,7 @@ def find_zones(
         Operator whose eigenvectors embed the nodes.
     assign : {'kmeans'}, default='kmeans'
         How embedded nodes become zones.
-    eigen_method : {'auto', 'dense', 'shift_invert'}, default='auto'
+    eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
         See :func:`specgraph.smallest_eigenpairs`.
     tol : float, default=1e-6
         Bound on scaled eigen-residuals.
