@@ -15,10 +15,45 @@ Tests compare every kernel with its scipy/numpy equivalent.
 
 from __future__ import annotations
 
+import numba
 import numpy as np
 from numba import njit, prange
 
-__all__ = ["csr_matmat", "jacobi_sweep", "prolong_add", "residual_block", "restrict_sum"]
+__all__ = [
+    "PARALLEL_MIN_ROWS",
+    "column_dots",
+    "combine",
+    "csr_matmat",
+    "fcg_update",
+    "jacobi_sweep",
+    "prolong_add",
+    "residual_block",
+    "restrict_sum",
+    "scale_rows",
+    "subtract_scaled",
+    "threads_for",
+]
+
+
+#: Blocks with fewer rows than this run on one thread. Below it, starting a
+#: parallel region and waiting at its closing barrier costs more than the
+#: pass itself (a 20,000 x 12 block of doubles is about 2 MB, a fraction of a
+#: millisecond of work), and on a shared machine a parallel region waits for
+#: its slowest thread: a descheduled thread turns microseconds into a time slice.
+PARALLEL_MIN_ROWS = 20_000
+
+_MAX_THREADS = numba.config.NUMBA_NUM_THREADS  # type: ignore[attr-defined]
+
+# numba's own thread pool sleeps between parallel regions. The OpenMP pool
+# spins instead, and its spinning threads steal the cores that LAPACK and BLAS
+# (with threads of their own) need between our kernels: seen here to slow a
+# small dense eigen-solve fiftyfold.
+numba.config.THREADING_LAYER = "workqueue"  # type: ignore[attr-defined]
+
+
+def threads_for(rows: int) -> None:
+    """Use every core for blocks of at least :data:`PARALLEL_MIN_ROWS` rows, one below."""
+    numba.set_num_threads(_MAX_THREADS if rows >= PARALLEL_MIN_ROWS else 1)
 
 
 @njit(parallel=True, cache=True)
@@ -94,3 +129,75 @@ def prolong_add(aggregate, weights, coarse, x):  # pragma: no cover - compiled
         w = weights[i]
         for c in range(b):
             x[i, c] += w * coarse[g, c]
+
+
+@njit(parallel=True, cache=True)
+def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
+    """``out = x @ kx + w @ kw + p @ kp`` in one pass over the rows (any block may be empty)."""
+    n, b = out.shape
+    for i in prange(n):
+        acc = np.zeros(b)
+        for a in range(x.shape[1]):
+            v = x[i, a]
+            for c in range(b):
+                acc[c] += v * kx[a, c]
+        for a in range(w.shape[1]):
+            v = w[i, a]
+            for c in range(b):
+                acc[c] += v * kw[a, c]
+        for a in range(p.shape[1]):
+            v = p[i, a]
+            for c in range(b):
+                acc[c] += v * kp[a, c]
+        for c in range(b):
+            out[i, c] = acc[c]
+
+
+@njit(parallel=True, cache=True)
+def fcg_update(x, r, d, md, alpha):  # pragma: no cover - compiled
+    """Flexible CG step per column: ``x += d * alpha``; ``r -= md * alpha``."""
+    n, b = x.shape
+    for i in prange(n):
+        for c in range(b):
+            x[i, c] += d[i, c] * alpha[c]
+            r[i, c] -= md[i, c] * alpha[c]
+
+
+@njit(parallel=True, cache=True)
+def subtract_scaled(d, d_prev, beta):  # pragma: no cover - compiled
+    """``d -= d_prev * beta`` per column."""
+    n, b = d.shape
+    for i in prange(n):
+        for c in range(b):
+            d[i, c] -= d_prev[i, c] * beta[c]
+
+
+@njit(parallel=True, cache=True)
+def scale_rows(x, scale, out):  # pragma: no cover - compiled
+    """``out = x * scale[:, None]`` (also casts to ``out``'s dtype)."""
+    n, b = x.shape
+    for i in prange(n):
+        s = scale[i]
+        for c in range(b):
+            out[i, c] = x[i, c] * s
+
+
+@njit(parallel=True, cache=True)
+def column_dots(a, b_, chunks):  # pragma: no cover - compiled
+    """Per-column inner products ``sum_i a[i, c] * b_[i, c]``, summed in fixed chunks.
+
+    Partial sums over ``chunks`` fixed row ranges are added in order, so the
+    result does not depend on how rows are spread over threads.
+    """
+    n, b = a.shape
+    partial = np.zeros((chunks, b))
+    step = (n + chunks - 1) // chunks
+    for k in prange(chunks):
+        for i in range(k * step, min(n, (k + 1) * step)):
+            for c in range(b):
+                partial[k, c] += a[i, c] * b_[i, c]
+    out = np.zeros(b)
+    for k in range(chunks):
+        for c in range(b):
+            out[c] += partial[k, c]
+    return out

@@ -4,11 +4,15 @@ The locally optimal block preconditioned conjugate gradient method (Knyazev,
 SIAM J. Sci. Comput. 23(2), 2001, doi:10.1137/S1064827500366124): each
 iteration finds the best block in the span of the current block ``X``, the
 preconditioned residuals ``W`` and the previous search directions ``P`` by
-Rayleigh-Ritz. The basis is orthonormalized by SVQB (Stathopoulos and Wu,
-SIAM J. Sci. Comput. 23(6), 2002, doi:10.1137/S1064827500370883), which drops
-directions that have become dependent instead of failing like Cholesky.
-Converged columns stop receiving new directions (soft locking, Knyazev et al.
-2007) but stay in the Rayleigh-Ritz, so they keep improving for free.
+Rayleigh-Ritz. The basis is orthonormalized implicitly by SVQB (Stathopoulos
+and Wu, SIAM J. Sci. Comput. 23(6), 2002, doi:10.1137/S1064827500370883) on
+its Gram matrix, which drops directions that have become dependent instead of
+failing as a Cholesky factorization would.
+
+Large blocks are allocated once and reused: on this workload a fresh array of
+a few hundred megabytes costs more in page faults than the arithmetic done on
+it. The new block and search directions are formed by one fused pass over the
+rows (:func:`._kernels.combine`) instead of a chain of temporaries.
 
 The known null vector is projected out of every new direction, so the
 iteration sees only the nontrivial part of the spectrum.
@@ -22,49 +26,91 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.linalg as la
 
-from ._subspace import deflate
+from . import _kernels as kern
 
 __all__ = ["LobpcgOutcome", "lobpcg"]
 
-#: Basis directions whose Gram eigenvalue falls below this share of the
-#: largest are dropped as linearly dependent (about sqrt(eps) of float64, as
-#: SVQB recommends: below it the orthonormalized direction is mostly rounding).
+#: Basis directions whose normalized Gram eigenvalue falls below this are
+#: dropped as linearly dependent (SVQB's rule; near eps of float64 the
+#: orthonormalized direction would be mostly rounding).
 DEPENDENCE_RTOL = 1e-12
 
-Block = Callable[[np.ndarray], np.ndarray]
+Apply = Callable[[np.ndarray, np.ndarray], object]  # f(x, out) writes into out
 
 
 @dataclass(frozen=True, eq=False)
 class LobpcgOutcome:
+    """Ritz values and vectors, their absolute residual norms, and the work done."""
+
     values: np.ndarray
     vectors: np.ndarray
-    residuals: np.ndarray  # absolute residual norms
+    residuals: np.ndarray
     iterations: int
     matvecs: int
 
 
-def _svqb(basis: np.ndarray, applied: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Orthonormalize ``basis`` (and carry ``applied = A @ basis`` along)."""
-    gram = basis.T @ basis
+class _Blocks:
+    """The iteration's blocks, each ``(n, width)`` in row-major order."""
+
+    def __init__(self, n: int, width: int) -> None:
+        shape = (n, width)
+        self.x, self.ax, self.w, self.aw = (np.empty(shape) for _ in range(4))
+        self.p, self.ap = np.zeros(shape), np.zeros(shape)
+        self.x_new, self.ax_new, self.p_new, self.ap_new = (np.empty(shape) for _ in range(4))
+        self.empty = np.empty((n, 0))  # a block with no columns, for unused terms
+
+
+def _orthogonalize(block: np.ndarray, basis: np.ndarray, passes: int = 2) -> None:
+    """Remove from ``block``, in place, its components along the orthonormal ``basis``.
+
+    Two passes by default ('twice is enough': Giraud, Langou and Rozloznik,
+    Comput. Math. Appl. 50, 2005). Each pass is one fused sweep over the rows
+    (row ``i`` of the output depends on row ``i`` of the input only, so the
+    update can overwrite its input).
+    """
+    identity = np.eye(block.shape[1])
+    empty = np.empty((block.shape[0], 0))
+    for _ in range(passes):
+        kern.combine(block, identity, basis, -(basis.T @ block), empty, identity[:0], block)
+
+
+def _gram(blocks: list[np.ndarray], applied: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
+    """``B^T B`` and ``B^T A B`` for the basis ``B = [blocks]`` without forming ``B``."""
+    gram = np.block([[u.T @ v for v in blocks] for u in blocks])
+    projected = np.block([[u.T @ v for v in applied] for u in blocks])
+    return (gram + gram.T) / 2.0, (projected + projected.T) / 2.0
+
+
+def _ritz(gram: np.ndarray, projected: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
+    """Smallest Ritz pairs of the pencil (projected, gram) by SVQB: values, coefficients."""
     scale = 1.0 / np.sqrt(np.maximum(np.diag(gram), np.finfo(float).tiny))
     values, vectors = la.eigh(gram * scale[:, None] * scale[None, :])
     keep = values > DEPENDENCE_RTOL * values[-1]
     transform = (scale[:, None] * vectors[:, keep]) / np.sqrt(values[keep])
-    return basis @ transform, applied @ transform
+    small = transform.T @ projected @ transform
+    ritz, coefficients = la.eigh((small + small.T) / 2.0)
+    return ritz[:width], transform @ coefficients[:, :width]
 
 
-def _rayleigh_ritz(
-    basis: np.ndarray, applied: np.ndarray, width: int
-) -> tuple[np.ndarray, np.ndarray]:
-    """The ``width`` smallest Ritz values and coefficients on an orthonormal basis."""
-    projected = basis.T @ applied
-    values, coefficients = la.eigh((projected + projected.T) / 2.0)
-    return values[:width], coefficients[:, :width]
+def _start(apply: Apply, start: np.ndarray, null: np.ndarray, st: _Blocks) -> np.ndarray:
+    """Rayleigh-Ritz on the start block: the first ``X``, ``AX`` and Ritz values."""
+    width = start.shape[1]
+    st.w[...] = start
+    _orthogonalize(st.w, null)
+    apply(st.w, st.aw)
+    values, coefficients = _ritz(*_gram([st.w], [st.aw]), width)
+    kern.combine(
+        st.w, coefficients, st.p[:, :0], coefficients[:0], st.p[:, :0], coefficients[:0], st.x
+    )
+    kern.combine(
+        st.aw, coefficients, st.p[:, :0], coefficients[:0], st.p[:, :0], coefficients[:0], st.ax
+    )
+    return values
 
 
 def lobpcg(
-    apply: Block,
-    precondition: Block,
+    apply: Apply,
+    precondition: Apply,
     start: np.ndarray,
     null: np.ndarray,
     *,
@@ -77,7 +123,8 @@ def lobpcg(
     Parameters
     ----------
     apply, precondition : callable
-        Products with the operator and the preconditioner, on row-major blocks.
+        ``f(x, out)`` writes the operator's (preconditioner's) product with the
+        row-major block ``x`` into ``out``.
     start : ndarray of shape (n, b)
         Initial block; ``b >= count`` (the extra columns are guard vectors).
     null : ndarray of shape (n, 1)
@@ -89,33 +136,36 @@ def lobpcg(
     maxiter : int
         Iteration cap.
     """
-    width = start.shape[1]
-    x, ax = _svqb(deflate(start, null), apply(deflate(start, null)))
-    matvecs = width
-    values, coefficients = _rayleigh_ritz(x, ax, width)
-    x, ax = x @ coefficients, ax @ coefficients
-    p: np.ndarray | None = None
-    ap = np.empty((0, 0))
-    iterations = 0
+    n, width = start.shape
+    kern.threads_for(n)
+    st = _Blocks(n, width)
+    values = _start(apply, start, null, st)
+    matvecs, iterations, have_p = width, 0, False
     while True:
-        residual = ax - x * values
-        norms = np.linalg.norm(residual, axis=0)
+        np.multiply(st.x, values, out=st.w)
+        np.subtract(st.ax, st.w, out=st.w)  # residuals
+        norms = np.linalg.norm(st.w, axis=0)
         if np.all(norms[:count] <= tol) or iterations >= maxiter:
-            return LobpcgOutcome(values, x, norms, iterations, matvecs)
-        active = norms > tol
-        w = deflate(precondition(np.ascontiguousarray(residual[:, active])), null)
-        w -= x @ (x.T @ w)
-        aw = apply(np.ascontiguousarray(w))
-        matvecs += w.shape[1]
-        blocks, applied = [x, w], [ax, aw]
-        if p is not None:
-            blocks.append(p[:, active])
-            applied.append(ap[:, active])
-        basis, abasis = _svqb(np.hstack(blocks), np.hstack(applied))
-        values, coefficients = _rayleigh_ritz(basis, abasis, width)
-        new_x, new_ax = basis @ coefficients, abasis @ coefficients
-        # New search directions: the part of the update outside the old block.
-        shift = x.T @ new_x
-        p, ap = new_x - x @ shift, new_ax - ax @ shift
-        x, ax = new_x, new_ax
+            return LobpcgOutcome(values, st.x.copy(), norms, iterations, matvecs)
+        precondition(st.w, st.w)
+        kern.threads_for(n)
+        _orthogonalize(st.w, null)
+        _orthogonalize(st.w, st.x, passes=1)
+        apply(st.w, st.aw)
+        matvecs += width
+        blocks = [st.x, st.w] + ([st.p] if have_p else [])
+        applied = [st.ax, st.aw] + ([st.ap] if have_p else [])
+        values, coefficients = _ritz(*_gram(blocks, applied), width)
+        kx, kw = coefficients[:width], coefficients[width : 2 * width]
+        kp = coefficients[2 * width :] if have_p else coefficients[:0]
+        none, no_rows, identity = st.empty, kp[:0], np.eye(width)
+        p_old = st.p if have_p else none
+        ap_old = st.ap if have_p else none
+        kern.combine(st.w, kw, p_old, kp, none, no_rows, st.p_new)  # new directions
+        kern.combine(st.aw, kw, ap_old, kp, none, no_rows, st.ap_new)
+        kern.combine(st.x, kx, st.p_new, identity, none, no_rows, st.x_new)
+        kern.combine(st.ax, kx, st.ap_new, identity, none, no_rows, st.ax_new)
+        st.x, st.x_new, st.ax, st.ax_new = st.x_new, st.x, st.ax_new, st.ax
+        st.p, st.p_new, st.ap, st.ap_new = st.p_new, st.p, st.ap_new, st.ap
+        have_p = True
         iterations += 1

@@ -98,8 +98,8 @@ def _iterate(
 ) -> LobpcgOutcome:
     """LOBPCG on level ``index``, preconditioned by flexible CG with the K-cycle."""
     return lobpcg(
-        lambda x: hierarchy.apply(index, x),
-        lambda r: hierarchy.solve(index, r, PRECONDITIONER_STEPS),
+        lambda x, out: hierarchy.apply(index, x, out),
+        lambda r, out: hierarchy.precondition(index, r, PRECONDITIONER_STEPS, out),
         np.ascontiguousarray(block),
         null,
         count=problem.count,
