@@ -9,7 +9,6 @@ from ._api import (
     DEFAULT_TOL,
     DENSE_LIMIT,
     METHODS,
-    MULTILEVEL_LIMIT,
     choose_method,
     smallest_eigenpairs,
 )
@@ -19,7 +18,6 @@ __all__ = [
     "DEFAULT_TOL",
     "DENSE_LIMIT",
     "METHODS",
-    "MULTILEVEL_LIMIT",
     "EigenResult",
     "choose_method",
     "smallest_eigenpairs",

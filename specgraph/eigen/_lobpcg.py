@@ -35,6 +35,9 @@ __all__ = ["LobpcgOutcome", "lobpcg"]
 #: orthonormalized direction would be mostly rounding).
 DEPENDENCE_RTOL = 1e-12
 
+#: Fixed row chunks of the deterministic column inner products.
+DOT_CHUNKS = 64
+
 Apply = Callable[[np.ndarray, np.ndarray], object]  # f(x, out) writes into out
 
 
@@ -50,28 +53,36 @@ class LobpcgOutcome:
 
 
 class _Blocks:
-    """The iteration's blocks, each ``(n, width)`` in row-major order."""
+    """The iteration's blocks, each ``(n, width)`` in row-major order.
+
+    ``ax`` and ``ap`` are recomputed by a product with the operator rather
+    than updated by linear combination: a sparse product with a block costs
+    less than combining three dense blocks, and it keeps them exact.
+    """
 
     def __init__(self, n: int, width: int) -> None:
         shape = (n, width)
         self.x, self.ax, self.w, self.aw = (np.empty(shape) for _ in range(4))
         self.p, self.ap = np.zeros(shape), np.zeros(shape)
-        self.x_new, self.ax_new, self.p_new, self.ap_new = (np.empty(shape) for _ in range(4))
+        self.x_new, self.p_new = np.empty(shape), np.empty(shape)
         self.empty = np.empty((n, 0))  # a block with no columns, for unused terms
 
 
-def _orthogonalize(block: np.ndarray, basis: np.ndarray, passes: int = 2) -> None:
-    """Remove from ``block``, in place, its components along the orthonormal ``basis``.
+def _orthogonalize(
+    block: np.ndarray, first: np.ndarray, second: np.ndarray, passes: int = 2
+) -> None:
+    """Remove from ``block``, in place, its components along two orthonormal bases.
 
-    Two passes by default ('twice is enough': Giraud, Langou and Rozloznik,
-    Comput. Math. Appl. 50, 2005). Each pass is one fused sweep over the rows
-    (row ``i`` of the output depends on row ``i`` of the input only, so the
-    update can overwrite its input).
+    ``first`` and ``second`` must be orthogonal to each other (the null vector
+    and the current block). Two passes by default ('twice is enough': Giraud,
+    Langou and Rozloznik, Comput. Math. Appl. 50, 2005). Each pass is one
+    fused sweep over the rows (row ``i`` of the output depends on row ``i`` of
+    the input only, so the update can overwrite its input).
     """
     identity = np.eye(block.shape[1])
-    empty = np.empty((block.shape[0], 0))
     for _ in range(passes):
-        kern.combine(block, identity, basis, -(basis.T @ block), empty, identity[:0], block)
+        c1, c2 = -(first.T @ block), -(second.T @ block)
+        kern.combine(block, identity, first, c1, second, c2, block)
 
 
 def _gram(blocks: list[np.ndarray], applied: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
@@ -96,7 +107,7 @@ def _start(apply: Apply, start: np.ndarray, null: np.ndarray, st: _Blocks) -> np
     """Rayleigh-Ritz on the start block: the first ``X``, ``AX`` and Ritz values."""
     width = start.shape[1]
     st.w[...] = start
-    _orthogonalize(st.w, null)
+    _orthogonalize(st.w, null, st.empty)
     apply(st.w, st.aw)
     values, coefficients = _ritz(*_gram([st.w], [st.aw]), width)
     kern.combine(
@@ -144,13 +155,12 @@ def lobpcg(
     while True:
         np.multiply(st.x, values, out=st.w)
         np.subtract(st.ax, st.w, out=st.w)  # residuals
-        norms = np.linalg.norm(st.w, axis=0)
+        norms = np.sqrt(kern.column_dots(st.w, st.w, DOT_CHUNKS))
         if np.all(norms[:count] <= tol) or iterations >= maxiter:
             return LobpcgOutcome(values, st.x.copy(), norms, iterations, matvecs)
         precondition(st.w, st.w)
         kern.threads_for(n)
-        _orthogonalize(st.w, null)
-        _orthogonalize(st.w, st.x, passes=1)
+        _orthogonalize(st.w, null, st.x)
         apply(st.w, st.aw)
         matvecs += width
         blocks = [st.x, st.w] + ([st.p] if have_p else [])
@@ -158,14 +168,13 @@ def lobpcg(
         values, coefficients = _ritz(*_gram(blocks, applied), width)
         kx, kw = coefficients[:width], coefficients[width : 2 * width]
         kp = coefficients[2 * width :] if have_p else coefficients[:0]
-        none, no_rows, identity = st.empty, kp[:0], np.eye(width)
+        none, no_rows = st.empty, kp[:0]
         p_old = st.p if have_p else none
-        ap_old = st.ap if have_p else none
         kern.combine(st.w, kw, p_old, kp, none, no_rows, st.p_new)  # new directions
-        kern.combine(st.aw, kw, ap_old, kp, none, no_rows, st.ap_new)
-        kern.combine(st.x, kx, st.p_new, identity, none, no_rows, st.x_new)
-        kern.combine(st.ax, kx, st.ap_new, identity, none, no_rows, st.ax_new)
-        st.x, st.x_new, st.ax, st.ax_new = st.x_new, st.x, st.ax_new, st.ax
-        st.p, st.p_new, st.ap, st.ap_new = st.p_new, st.p, st.ap_new, st.ap
+        kern.combine(st.x, kx, st.p_new, np.eye(width), none, no_rows, st.x_new)
+        st.x, st.x_new, st.p, st.p_new = st.x_new, st.x, st.p_new, st.p
+        apply(st.x, st.ax)
+        apply(st.p, st.ap)
+        matvecs += 2 * width
         have_p = True
         iterations += 1
