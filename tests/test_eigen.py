@@ -16,13 +16,27 @@ Sources of the expected values:
 from __future__ import annotations
 
 from collections.abc import Callable
-from math import comb
 
 import networkx as nx
 import numpy as np
 import pytest
 import scipy.linalg as la
 import scipy.sparse as sp
+from closed_forms import (
+    bipartite_l,
+    bipartite_n,
+    complete_l,
+    complete_n,
+    cycle_l,
+    cycle_n,
+    grid_l,
+    hypercube_l,
+    path_l,
+    path_n,
+    star_l,
+    star_n,
+    torus_l,
+)
 from scipy.sparse.csgraph import connected_components
 
 from specgraph import ConvergenceError, EigenResult, Network, gallery, laplacian
@@ -39,59 +53,6 @@ ARPACK_EPS_FACTOR = 2000.0
 #: ~1e-8; far above rounding, far below any gap of the spectra used here).
 CLOSED_FORM_RTOL = 1e-8
 METHODS = ["dense", "lanczos", "multilevel"]
-
-
-# ------------------------------------------------------------ closed forms
-def path_l(n: int) -> np.ndarray:
-    return 2 - 2 * np.cos(np.pi * np.arange(n) / n)
-
-
-def path_n(n: int) -> np.ndarray:
-    return 1 - np.cos(np.pi * np.arange(n) / (n - 1))
-
-
-def cycle_l(n: int) -> np.ndarray:
-    return 2 - 2 * np.cos(2 * np.pi * np.arange(n) / n)
-
-
-def cycle_n(n: int) -> np.ndarray:
-    return 1 - np.cos(2 * np.pi * np.arange(n) / n)
-
-
-def complete_l(n: int) -> np.ndarray:
-    return np.r_[0.0, np.full(n - 1, float(n))]
-
-
-def complete_n(n: int) -> np.ndarray:
-    return np.r_[0.0, np.full(n - 1, n / (n - 1))]
-
-
-def bipartite_l(m: int, n: int) -> np.ndarray:
-    return np.r_[0.0, np.full(n - 1, float(m)), np.full(m - 1, float(n)), m + n]
-
-
-def bipartite_n(m: int, n: int) -> np.ndarray:
-    return np.r_[0.0, np.ones(m + n - 2), 2.0]
-
-
-def star_l(leaves: int) -> np.ndarray:
-    return np.r_[0.0, np.ones(leaves - 1), leaves + 1.0]
-
-
-def star_n(leaves: int) -> np.ndarray:
-    return np.r_[0.0, np.ones(leaves - 1), 2.0]
-
-
-def hypercube_l(d: int) -> np.ndarray:
-    return np.concatenate([np.full(comb(d, j), 2.0 * j) for j in range(d + 1)])
-
-
-def grid_l(m: int, n: int) -> np.ndarray:
-    return np.add.outer(path_l(m), path_l(n)).ravel()  # Cartesian product: sums
-
-
-def torus_l(m: int, n: int) -> np.ndarray:
-    return np.add.outer(cycle_l(m), cycle_l(n)).ravel()
 
 
 def bipartite_network() -> Network:

@@ -22,12 +22,12 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Callable
-from math import comb
 
 import networkx as nx
 import numpy as np
 import pytest
 import scipy.linalg as la
+from closed_forms import cycle_l, cycle_n, grid_l, hypercube_l, path_l, path_n, torus_l
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -50,35 +50,6 @@ ARPACK_EPS_FACTOR = 2000.0
 #: ||I - V^T V|| allowed, in units of eps times the number of pairs: LAPACK's
 #: test threshold THRESH (30 to 60 in sep.in, Reference-LAPACK TESTING/EIG).
 THRESH = 30.0
-
-
-# ------------------------------------------------------------ closed forms
-def path_l(n: int) -> np.ndarray:
-    return 2 - 2 * np.cos(np.pi * np.arange(n) / n)
-
-
-def path_n(n: int) -> np.ndarray:
-    return 1 - np.cos(np.pi * np.arange(n) / (n - 1))
-
-
-def cycle_l(n: int) -> np.ndarray:
-    return 2 - 2 * np.cos(2 * np.pi * np.arange(n) / n)
-
-
-def cycle_n(n: int) -> np.ndarray:
-    return 1 - np.cos(2 * np.pi * np.arange(n) / n)
-
-
-def hypercube_l(d: int) -> np.ndarray:
-    return np.concatenate([np.full(comb(d, j), 2.0 * j) for j in range(d + 1)])
-
-
-def grid_l(m: int, n: int) -> np.ndarray:
-    return np.add.outer(path_l(m), path_l(n)).ravel()  # Cartesian product: sums
-
-
-def torus_l(m: int, n: int) -> np.ndarray:
-    return np.add.outer(cycle_l(m), cycle_l(n)).ravel()
 
 
 #: id -> (network, Laplacian kind, pairs wanted, closed-form spectrum).
