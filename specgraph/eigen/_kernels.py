@@ -61,6 +61,21 @@ def threads_for(rows: int) -> None:
     numba.set_num_threads(_MAX_THREADS if rows >= PARALLEL_MIN_ROWS else 1)
 
 
+@njit(inline="always")
+def _row_product(indptr, indices, data, x, i, acc):  # pragma: no cover - compiled
+    """``acc = (A @ x)[i]``: row ``i`` of a CSR matrix times a row-major block.
+
+    Inlined into each kernel by numba, so the fused kernels below share this
+    loop without a function call per row.
+    """
+    acc[:] = 0.0
+    for p in range(indptr[i], indptr[i + 1]):
+        j = indices[p]
+        a = data[p]
+        for c in range(acc.shape[0]):
+            acc[c] += a * x[j, c]
+
+
 @njit(parallel=True, cache=True)
 def csr_matmat(indptr, indices, data, x, out):  # pragma: no cover - compiled
     """``out = A @ x`` for CSR ``A`` and a row-major block ``x``."""
@@ -69,12 +84,7 @@ def csr_matmat(indptr, indices, data, x, out):  # pragma: no cover - compiled
     for t in prange(tasks):
         acc = np.empty(b)
         for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            acc[:] = 0.0
-            for p in range(indptr[i], indptr[i + 1]):
-                j = indices[p]
-                a = data[p]
-                for c in range(b):
-                    acc[c] += a * x[j, c]
+            _row_product(indptr, indices, data, x, i, acc)
             for c in range(b):
                 out[i, c] = acc[c]
 
@@ -87,12 +97,7 @@ def residual_block(indptr, indices, data, rhs, x, out):  # pragma: no cover - co
     for t in prange(tasks):
         acc = np.empty(b)
         for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            acc[:] = 0.0
-            for p in range(indptr[i], indptr[i + 1]):
-                j = indices[p]
-                a = data[p]
-                for c in range(b):
-                    acc[c] += a * x[j, c]
+            _row_product(indptr, indices, data, x, i, acc)
             for c in range(b):
                 out[i, c] = rhs[i, c] - acc[c]
 
@@ -108,12 +113,7 @@ def jacobi_sweep(indptr, indices, data, scaled_inv_diag, rhs, x, out):  # pragma
     for t in prange(tasks):
         acc = np.empty(b)
         for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            acc[:] = 0.0
-            for p in range(indptr[i], indptr[i + 1]):
-                j = indices[p]
-                a = data[p]
-                for c in range(b):
-                    acc[c] += a * x[j, c]
+            _row_product(indptr, indices, data, x, i, acc)
             s = scaled_inv_diag[i]
             for c in range(b):
                 out[i, c] = x[i, c] + s * (rhs[i, c] - acc[c])
