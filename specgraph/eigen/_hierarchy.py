@@ -133,9 +133,7 @@ class Hierarchy:
 
     def precondition(self, index: int, rhs: np.ndarray, steps: int, out: np.ndarray) -> None:
         """``out`` = approximately ``M_index^+ rhs`` (single-precision flexible CG)."""
-        ws = self._workspace("entry", index, rhs.shape[1], ("rhs",))
-        ws.rhs[...] = rhs
-        out[...] = self.solve(index, ws.rhs, steps)
+        out[...] = self.solve(index, rhs, steps)  # solve copies rhs into single precision
         kern.threads_for(self.levels[index].size)
 
     # ---------------------------------------------------------------- cycle

@@ -64,8 +64,19 @@ class _Blocks:
         shape = (n, width)
         self.x, self.ax, self.w, self.aw = (np.empty(shape) for _ in range(4))
         self.p, self.ap = np.zeros(shape), np.zeros(shape)
-        self.x_new, self.p_new = np.empty(shape), np.empty(shape)
         self.empty = np.empty((n, 0))  # a block with no columns, for unused terms
+
+    def update(self, kx: np.ndarray, kw: np.ndarray, kp: np.ndarray, have_p: bool) -> None:
+        """``P <- W kw + P kp`` and ``X <- X kx + P``, written over blocks no longer needed.
+
+        After the Rayleigh-Ritz step ``AW`` is spent, so the new directions go
+        there; the old ``P`` is then spent, so the new block goes there; the
+        roles of the buffers rotate instead of two more blocks being kept.
+        """
+        none, no_rows = self.empty, kp[:0]
+        kern.combine(self.w, kw, self.p if have_p else none, kp, none, no_rows, self.aw)
+        kern.combine(self.x, kx, self.aw, np.eye(kx.shape[1]), none, no_rows, self.p)
+        self.x, self.p, self.aw = self.p, self.aw, self.x
 
 
 def _orthogonalize(
@@ -168,11 +179,7 @@ def lobpcg(
         values, coefficients = _ritz(*_gram(blocks, applied), width)
         kx, kw = coefficients[:width], coefficients[width : 2 * width]
         kp = coefficients[2 * width :] if have_p else coefficients[:0]
-        none, no_rows = st.empty, kp[:0]
-        p_old = st.p if have_p else none
-        kern.combine(st.w, kw, p_old, kp, none, no_rows, st.p_new)  # new directions
-        kern.combine(st.x, kx, st.p_new, np.eye(width), none, no_rows, st.x_new)
-        st.x, st.x_new, st.p, st.p_new = st.x_new, st.x, st.p_new, st.p
+        st.update(kx, kw, kp, have_p)
         apply(st.x, st.ax)
         apply(st.p, st.ap)
         matvecs += 2 * width
