@@ -41,29 +41,27 @@ def check_labels(network: Network, labels: np.ndarray) -> np.ndarray:
     return labels.astype(np.int64, copy=False)
 
 
-def _zone_weights(network: Network, labels: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Internal weight (each link once) and boundary weight of each zone."""
+def _link_figures(
+    network: Network, labels: np.ndarray, k: int
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Internal weight, boundary weight, boundary link count and connectedness per zone.
+
+    One pass over the stored links (each undirected link is stored twice, so
+    internal sums are halved, and each crossing is counted once at each side).
+    """
     coo = network.adjacency.tocoo()
     zi, zj = labels[coo.row], labels[coo.col]
     inside = zi == zj
-    # Each undirected link is stored twice, so the internal sum is halved and
-    # the boundary sum, taken at the row's zone, counts each crossing once per side.
     internal = np.bincount(zi[inside], weights=coo.data[inside], minlength=k) / 2.0
     boundary = np.bincount(zi[~inside], weights=coo.data[~inside], minlength=k)
-    return internal, boundary
-
-
-def _zone_connected(network: Network, labels: np.ndarray, k: int) -> np.ndarray:
-    """True for each zone whose nodes form one connected piece."""
-    coo = network.adjacency.tocoo()
-    keep = labels[coo.row] == labels[coo.col]
+    crossings = np.bincount(zi[~inside], minlength=k)
     inner = sp.csr_array(
-        (coo.data[keep], (coo.row[keep], coo.col[keep])), shape=network.adjacency.shape
+        (coo.data[inside], (coo.row[inside], coo.col[inside])), shape=network.adjacency.shape
     )
     _, pieces = connected_components(inner, directed=False)
     pairs = np.unique(np.column_stack([labels, pieces]), axis=0)
-    counts = np.bincount(pairs[:, 0], minlength=k)
-    return counts == 1
+    connected = np.bincount(pairs[:, 0], minlength=k) == 1
+    return internal, boundary, crossings, connected
 
 
 def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
@@ -97,13 +95,10 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
     nodes = np.bincount(labels, minlength=k)
     size = np.bincount(labels, weights=network.node_weights, minlength=k)
     volume = np.bincount(labels, weights=network.degrees, minlength=k)
-    internal, boundary = _zone_weights(network, labels, k)
+    internal, boundary, link_counts, connected = _link_figures(network, labels, k)
     smaller = np.minimum(volume, volume.sum() - volume)
     with np.errstate(divide="ignore", invalid="ignore"):
         conductance = np.where(boundary > 0, boundary / smaller, 0.0)
-    ends = network.adjacency.tocoo()
-    crossing_rows = labels[ends.row][labels[ends.row] != labels[ends.col]]
-    link_counts = np.bincount(crossing_rows, minlength=k)
     return pd.DataFrame(
         {
             "zone": np.arange(k),
@@ -112,7 +107,7 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
             "internal_weight": internal,
             "boundary_weight": boundary,
             "conductance": conductance,
-            "connected": _zone_connected(network, labels, k) & (nodes > 0),
+            "connected": connected & (nodes > 0),
             "volume": volume,
             "boundary_links": link_counts,
         }

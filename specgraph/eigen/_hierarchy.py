@@ -58,6 +58,7 @@ class Level:
     """One level: its operator, and (but for the coarsest) the map to the next."""
 
     matrix: sp.csr_array
+    null: np.ndarray  # unit null vector of ``matrix``, shape (n, 1)
     smoother: np.ndarray  # damping / diagonal, per row (single precision)
     aggregate: np.ndarray | None = None  # coarse index of each row
     weights: np.ndarray | None = None  # prolongator entry of each row
@@ -123,13 +124,11 @@ class Hierarchy:
         return out
 
     # ------------------------------------------------------------- products
-    def apply(self, index: int, x: np.ndarray, out: np.ndarray | None = None) -> np.ndarray:
-        """``M_index @ x`` for a row-major block, in double precision."""
+    def apply(self, index: int, x: np.ndarray, out: np.ndarray) -> None:
+        """``out = M_index @ x`` for a row-major block, in double precision."""
         m = self.levels[index].matrix
-        out = np.empty_like(x) if out is None else out
         kern.threads_for(m.shape[0])
         kern.csr_matmat(m.indptr, m.indices, m.data, x, out)
-        return out
 
     def precondition(self, index: int, rhs: np.ndarray, steps: int, out: np.ndarray) -> None:
         """``out`` = approximately ``M_index^+ rhs`` (single-precision flexible CG)."""
@@ -225,6 +224,7 @@ def _coarsen(matrix: sp.csr_array, null: np.ndarray) -> tuple[Level, sp.csr_arra
     members_ptr = np.concatenate([[0], np.cumsum(np.bincount(aggregate, minlength=m))])
     level = Level(
         matrix=matrix,
+        null=null.reshape(-1, 1),
         smoother=_smoother(matrix),
         aggregate=aggregate,
         weights=weights,
@@ -251,7 +251,7 @@ def build_hierarchy(matrix: sp.csr_array, null: np.ndarray) -> Hierarchy:
             break
         levels.append(level)
         current, z = coarse, coarse_null
-    levels.append(Level(matrix=current, smoother=_smoother(current)))
+    levels.append(Level(matrix=current, null=z.reshape(-1, 1), smoother=_smoother(current)))
     dense = current.toarray()
     values, vectors = la.eigh((dense + dense.T) / 2.0)
     keep = values > NULL_RELATIVE * max(values[-1], 0.0)

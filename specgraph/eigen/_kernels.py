@@ -42,11 +42,6 @@ __all__ = [
 #: its slowest thread: a descheduled thread turns microseconds into a time slice.
 PARALLEL_MIN_ROWS = 20_000
 
-#: Rows handled per task of a parallel loop. Each task allocates its small
-#: accumulator once, instead of once per row (a heap allocation per row costs
-#: more than the row's arithmetic), and hands threads work in cache-sized pieces.
-ROWS_PER_TASK = 4096
-
 _MAX_THREADS = numba.config.NUMBA_NUM_THREADS  # type: ignore[attr-defined]
 
 # numba's own thread pool sleeps between parallel regions. The OpenMP pool
@@ -80,26 +75,22 @@ def _row_product(indptr, indices, data, x, i, acc):  # pragma: no cover - compil
 def csr_matmat(indptr, indices, data, x, out):  # pragma: no cover - compiled
     """``out = A @ x`` for CSR ``A`` and a row-major block ``x``."""
     n, b = out.shape
-    tasks = (n + ROWS_PER_TASK - 1) // ROWS_PER_TASK
-    for t in prange(tasks):
+    for i in prange(n):
         acc = np.empty(b)
-        for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            _row_product(indptr, indices, data, x, i, acc)
-            for c in range(b):
-                out[i, c] = acc[c]
+        _row_product(indptr, indices, data, x, i, acc)
+        for c in range(b):
+            out[i, c] = acc[c]
 
 
 @njit(parallel=True, cache=True)
 def residual_block(indptr, indices, data, rhs, x, out):  # pragma: no cover - compiled
     """``out = rhs - A @ x``."""
     n, b = out.shape
-    tasks = (n + ROWS_PER_TASK - 1) // ROWS_PER_TASK
-    for t in prange(tasks):
+    for i in prange(n):
         acc = np.empty(b)
-        for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            _row_product(indptr, indices, data, x, i, acc)
-            for c in range(b):
-                out[i, c] = rhs[i, c] - acc[c]
+        _row_product(indptr, indices, data, x, i, acc)
+        for c in range(b):
+            out[i, c] = rhs[i, c] - acc[c]
 
 
 @njit(parallel=True, cache=True)
@@ -109,32 +100,27 @@ def jacobi_sweep(indptr, indices, data, scaled_inv_diag, rhs, x, out):  # pragma
     ``scaled_inv_diag`` holds ``w / A_ii`` per row.
     """
     n, b = out.shape
-    tasks = (n + ROWS_PER_TASK - 1) // ROWS_PER_TASK
-    for t in prange(tasks):
+    for i in prange(n):
         acc = np.empty(b)
-        for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            _row_product(indptr, indices, data, x, i, acc)
-            s = scaled_inv_diag[i]
-            for c in range(b):
-                out[i, c] = x[i, c] + s * (rhs[i, c] - acc[c])
+        _row_product(indptr, indices, data, x, i, acc)
+        s = scaled_inv_diag[i]
+        for c in range(b):
+            out[i, c] = x[i, c] + s * (rhs[i, c] - acc[c])
 
 
 @njit(parallel=True, cache=True)
 def restrict_sum(members_ptr, members, weights, x, out):  # pragma: no cover - compiled
     """``out[g] = sum over fine rows i of aggregate g of weights[i] * x[i]`` (``P^T x``)."""
     m, b = out.shape
-    tasks = (m + ROWS_PER_TASK - 1) // ROWS_PER_TASK
-    for t in prange(tasks):
-        acc = np.empty(b)
-        for g in range(t * ROWS_PER_TASK, min(m, (t + 1) * ROWS_PER_TASK)):
-            acc[:] = 0.0
-            for p in range(members_ptr[g], members_ptr[g + 1]):
-                i = members[p]
-                w = weights[i]
-                for c in range(b):
-                    acc[c] += w * x[i, c]
+    for g in prange(m):
+        acc = np.zeros(b)
+        for p in range(members_ptr[g], members_ptr[g + 1]):
+            i = members[p]
+            w = weights[i]
             for c in range(b):
-                out[g, c] = acc[c]
+                acc[c] += w * x[i, c]
+        for c in range(b):
+            out[g, c] = acc[c]
 
 
 @njit(parallel=True, cache=True)
@@ -152,25 +138,22 @@ def prolong_add(aggregate, weights, coarse, x):  # pragma: no cover - compiled
 def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
     """``out = x @ kx + w @ kw + p @ kp`` in one pass over the rows (any block may be empty)."""
     n, b = out.shape
-    tasks = (n + ROWS_PER_TASK - 1) // ROWS_PER_TASK
-    for t in prange(tasks):
-        acc = np.empty(b)
-        for i in range(t * ROWS_PER_TASK, min(n, (t + 1) * ROWS_PER_TASK)):
-            acc[:] = 0.0
-            for a in range(x.shape[1]):
-                v = x[i, a]
-                for c in range(b):
-                    acc[c] += v * kx[a, c]
-            for a in range(w.shape[1]):
-                v = w[i, a]
-                for c in range(b):
-                    acc[c] += v * kw[a, c]
-            for a in range(p.shape[1]):
-                v = p[i, a]
-                for c in range(b):
-                    acc[c] += v * kp[a, c]
+    for i in prange(n):
+        acc = np.zeros(b)
+        for a in range(x.shape[1]):
+            v = x[i, a]
             for c in range(b):
-                out[i, c] = acc[c]
+                acc[c] += v * kx[a, c]
+        for a in range(w.shape[1]):
+            v = w[i, a]
+            for c in range(b):
+                acc[c] += v * kw[a, c]
+        for a in range(p.shape[1]):
+            v = p[i, a]
+            for c in range(b):
+                acc[c] += v * kp[a, c]
+        for c in range(b):
+            out[i, c] = acc[c]
 
 
 @njit(parallel=True, cache=True)

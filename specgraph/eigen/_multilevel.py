@@ -67,7 +67,7 @@ def _cascade(hierarchy: Hierarchy, problem: Problem, width: int) -> tuple[np.nda
     iterations = matvecs = 0
     for index in range(len(levels) - 2, 0, -1):
         block = hierarchy.prolong(index, block)
-        null = _level_null(hierarchy, index)
+        null = levels[index].null
         outcome = _iterate(hierarchy, index, block, null, problem, CASCADE_ITERATIONS)
         block = outcome.vectors
         logger.debug(
@@ -78,14 +78,6 @@ def _cascade(hierarchy: Hierarchy, problem: Problem, width: int) -> tuple[np.nda
     if len(levels) > 1:
         block = hierarchy.prolong(0, block)
     return block, iterations, matvecs
-
-
-def _level_null(hierarchy: Hierarchy, index: int) -> np.ndarray:
-    """The null vector on level ``index``: the coarse one carried up, normalized."""
-    null = hierarchy.coarse_vectors[:, :1]
-    for level in range(len(hierarchy.levels) - 2, index - 1, -1):
-        null = hierarchy.prolong(level, null)
-    return null / np.linalg.norm(null)
 
 
 def _iterate(
@@ -116,7 +108,7 @@ def solve_multilevel(problem: Problem) -> Solution:
     width = min(problem.count + max(MIN_GUARD, problem.count // 2), matrix.shape[0] - 1)
     start, iterations, matvecs = _cascade(hierarchy, problem, width)
     outcome = _iterate(
-        hierarchy, 0, start, null[:, None], problem, problem.maxiter or DEFAULT_MAXITER
+        hierarchy, 0, start, hierarchy.levels[0].null, problem, problem.maxiter or DEFAULT_MAXITER
     )
     logger.debug("finest level: %d iterations", outcome.iterations)
     vectors = np.empty_like(outcome.vectors[:, : problem.count])
