@@ -1,0 +1,262 @@
+"""Reading the small tables that steer a zoning: node lists, link flags, zone files.
+
+A *flag* column marks rows with a yes/no value; a *zone file* gives each node
+an integer zone. Every refusal names the file, line and column, like the
+network readers.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Hashable
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ..network import Network
+from ._frames import Origin, _ids
+from ._tables import _load_table, read_table
+
+__all__ = [
+    "FLAG_FALSE",
+    "FLAG_TRUE",
+    "flag_mask",
+    "flagged_links",
+    "read_node_list",
+    "read_zone_file",
+]
+
+#: Cell texts read as "yes" in a flag column (compared after stripping spaces
+#: and lower-casing).
+FLAG_TRUE = frozenset({"1", "true", "yes", "y", "t"})
+#: Cell texts read as "no"; an empty cell is "no" too.
+FLAG_FALSE = frozenset({"0", "false", "no", "n", "f", ""})
+
+
+def _require_column(frame: pd.DataFrame, column: Hashable, origin: Origin, option: str) -> None:
+    if column not in frame.columns:
+        shown = ", ".join(repr(str(c)) for c in frame.columns)
+        raise origin.error(
+            f"there is no column {str(column)!r} (the header has {shown}); name the right "
+            f"column with {option}",
+        )
+
+
+def flag_mask(
+    frame: pd.DataFrame, column: Hashable, *, origin: Origin | None = None, option: str = ""
+) -> np.ndarray:
+    """Read a yes/no column as a boolean mask.
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+        The table (cells as text, as :func:`specgraph.io.read_table` gives them;
+        booleans and numbers are accepted too).
+    column : hashable
+        The flag column.
+    origin : Origin, optional
+        Where the frame came from, for messages.
+    option : str
+        The option that named the column, quoted in messages.
+
+    Returns
+    -------
+    ndarray of bool
+
+    Raises
+    ------
+    InputError
+        For a missing column or a cell outside :data:`FLAG_TRUE` and
+        :data:`FLAG_FALSE`, naming its line and column.
+
+    Examples
+    --------
+    >>> frame = pd.DataFrame({"trunk": ["yes", "", "0", "TRUE"]})
+    >>> flag_mask(frame, "trunk").tolist()
+    [True, False, False, True]
+    """
+    origin = Origin() if origin is None else origin
+    _require_column(frame, column, origin, option or "the flag option")
+    series = frame[column]
+    if pd.api.types.is_bool_dtype(series):
+        return series.to_numpy(dtype=bool)
+    text = series.astype(object).where(series.notna(), "").astype(str).str.strip().str.lower()
+    yes = text.isin(FLAG_TRUE).to_numpy(copy=True)
+    no = text.isin(FLAG_FALSE).to_numpy(copy=True)
+    text_numbers = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    yes |= ~no & (text_numbers == 1.0)
+    no |= text_numbers == 0.0
+    bad = np.flatnonzero(~(yes | no))
+    if bad.size:
+        row = int(bad[0])
+        raise origin.error(
+            f"{series.iloc[row]!r} is not a yes/no value; write one of "
+            f"{', '.join(sorted(FLAG_TRUE - {''}))} for yes, or "
+            f"{', '.join(sorted(FLAG_FALSE - {''}))} or nothing for no",
+            frame=frame,
+            column=column,
+            row=row,
+        )
+    return yes
+
+
+def _located(path: str | None) -> Origin:
+    """The origin of a table already read, with a line finder that reads lazily."""
+    if path is None:
+        return Origin()
+
+    def locate(row: int) -> int | None:
+        _, finder = read_table(path)
+        return finder(row)
+
+    return Origin(path, locate)
+
+
+def flagged_links(network: Network, column: str, *, option: str = "--keep-col") -> np.ndarray:
+    """Row-index pairs of the links whose ``column`` in the link table says yes.
+
+    The column is one of the edge table's own columns, carried through in
+    :attr:`Network.link_table`.
+
+    Returns
+    -------
+    ndarray of int, shape (m, 2)
+        Both ends of every flagged link (self-loops, which the network leaves
+        out, are left out here too).
+
+    Examples
+    --------
+    >>> net = Network.from_links(["a", "b"], ["b", "c"], extra=pd.DataFrame({"trunk": ["1", "0"]}))
+    >>> flagged_links(net, "trunk").tolist()
+    [[0, 1]]
+    """
+    table = network.link_table
+    record = network.notes.get("edge_table", {})
+    origin = _located(record.get("path") if isinstance(record, dict) else None)
+    mask = flag_mask(table, column, origin=origin, option=option)
+    src, dst = network.link_ends
+    keep = mask & (src != dst)
+    return np.column_stack([src[keep], dst[keep]]).astype(np.int64)
+
+
+def read_node_list(
+    path: str | os.PathLike[str],
+    *,
+    node: str = "node",
+    flag: str | None = None,
+    delimiter: str | None = None,
+) -> tuple[str, ...]:
+    """Node ids listed in a table: every row, or the rows whose ``flag`` says yes.
+
+    Parameters
+    ----------
+    path : str or path-like
+        CSV or Parquet file with a node id column.
+    node : str, default='node'
+        The node id column.
+    flag : str, optional
+        A yes/no column; only rows marked yes are listed.
+    delimiter : str, optional
+        As for :func:`specgraph.io.read_table`.
+
+    Returns
+    -------
+    tuple of str
+        Ids in file order, exactly as written; an id listed twice is listed once.
+
+    Raises
+    ------
+    InputError
+        Missing columns, empty ids or bad flags, naming file, line and column.
+    """
+    table = _load_table(path, delimiter=delimiter)
+    origin = Origin(table.record["path"], table.locate)
+    frame = table.frame
+    _require_column(frame, node, origin, "the node column option")
+    ids, empty = _ids(frame, node)
+    chosen = (
+        np.ones(len(frame), dtype=bool) if flag is None else flag_mask(frame, flag, origin=origin)
+    )
+    bad = np.flatnonzero(empty & chosen)
+    if bad.size:
+        raise origin.error(
+            "the node id is empty; fill it in or delete the row",
+            frame=frame,
+            column=node,
+            row=int(bad[0]),
+        )
+    return tuple(dict.fromkeys(ids[chosen].tolist()))
+
+
+def read_zone_file(
+    path: str | os.PathLike[str],
+    *,
+    node: str = "node",
+    zone: str = "zone",
+    delimiter: str | None = None,
+) -> dict[str, int]:
+    """Read a ``node, zone`` table: each listed node's integer zone.
+
+    Parameters
+    ----------
+    path : str or path-like
+        CSV or Parquet file.
+    node, zone : str
+        The node id and zone columns.
+    delimiter : str, optional
+        As for :func:`specgraph.io.read_table`.
+
+    Returns
+    -------
+    dict
+        Node id (exact text) to zone (int >= 0), in file order.
+
+    Raises
+    ------
+    InputError
+        A missing column, an empty id, a node listed twice, or a zone that is
+        not a whole number >= 0; the message names file, line and column.
+    """
+    table = _load_table(path, delimiter=delimiter)
+    origin = Origin(table.record["path"], table.locate)
+    frame = table.frame
+    for column in (node, zone):
+        _require_column(frame, column, origin, "the node or zone column option")
+    ids, empty = _ids(frame, node)
+    if empty.any():
+        raise origin.error(
+            "the node id is empty; fill it in or delete the row",
+            frame=frame,
+            column=node,
+            row=int(np.flatnonzero(empty)[0]),
+        )
+    repeated = pd.Series(ids).duplicated().to_numpy()
+    if repeated.any():
+        row = int(np.flatnonzero(repeated)[0])
+        first = int(np.flatnonzero(ids == ids[row])[0])
+        raise origin.error(
+            f"node {ids[row]!r} is listed again (first on data row {first + 1}); "
+            "give each node one zone",
+            frame=frame,
+            column=node,
+            row=row,
+        )
+    zones = _whole_numbers(frame, zone, origin)
+    return dict(zip(ids.tolist(), zones.tolist(), strict=True))
+
+
+def _whole_numbers(frame: pd.DataFrame, column: Hashable, origin: Origin) -> np.ndarray:
+    series = frame[column]
+    text = series.astype(object).where(series.notna(), "").astype(str).str.strip()
+    numbers = pd.to_numeric(text, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    ok = np.isfinite(numbers) & (numbers >= 0) & (numbers == np.round(numbers))
+    ok &= numbers < 2**31
+    if not ok.all():
+        row = int(np.flatnonzero(~ok)[0])
+        value: Any = series.iloc[row]
+        why = "is empty" if text.iloc[row] == "" else f"{value!r} is not a whole number >= 0"
+        raise origin.error(
+            f"the zone {why}; zones are whole numbers from 0", frame=frame, column=column, row=row
+        )
+    return numbers.astype(np.int64)
