@@ -8,7 +8,13 @@ import numpy as np
 import pytest
 
 from specgraph.exceptions import InputError
-from specgraph.io import flagged_links, read_edges, read_node_list, read_zone_file
+from specgraph.io import (
+    flagged_links,
+    read_edges,
+    read_link_list,
+    read_node_list,
+    read_zone_file,
+)
 
 
 def write(folder: Path, name: str, text: str) -> Path:
@@ -93,3 +99,10 @@ def test_flagged_links_unknown_column(tmp_path: Path) -> None:
     with pytest.raises(InputError, match="--keep-col"):
         flagged_links(net, "trunk")
     assert np.all(net.link_ends[0] >= 0)
+
+
+def test_link_list_pairs(tmp_path: Path) -> None:
+    path = write(tmp_path, "k.csv", "from,to\nP1,P2\n0042,P3\n")
+    assert read_link_list(path, source="from", target="to") == (("P1", "P2"), ("0042", "P3"))
+    with pytest.raises(InputError, match="no column 'source'"):
+        read_link_list(path)

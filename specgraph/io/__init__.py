@@ -5,7 +5,7 @@ line and column it found and says what to do.
 """
 
 from ._frames import network_from_frames
-from ._lists import flag_mask, flagged_links, read_node_list, read_zone_file
+from ._lists import flag_mask, flagged_links, read_link_list, read_node_list, read_zone_file
 from ._tables import read_edges, read_table
 
 __all__ = [
@@ -13,6 +13,7 @@ __all__ = [
     "flagged_links",
     "network_from_frames",
     "read_edges",
+    "read_link_list",
     "read_node_list",
     "read_table",
     "read_zone_file",

@@ -23,6 +23,7 @@ __all__ = [
     "FLAG_TRUE",
     "flag_mask",
     "flagged_links",
+    "read_link_list",
     "read_node_list",
     "read_zone_file",
 ]
@@ -187,6 +188,52 @@ def read_node_list(
             row=int(bad[0]),
         )
     return tuple(dict.fromkeys(ids[chosen].tolist()))
+
+
+def read_link_list(
+    path: str | os.PathLike[str],
+    *,
+    source: str = "source",
+    target: str = "target",
+    delimiter: str | None = None,
+) -> tuple[tuple[str, str], ...]:
+    """Links listed in a table, as pairs of node ids (e.g. links that must not be cut).
+
+    Parameters
+    ----------
+    path : str or path-like
+        CSV or Parquet file, one row per link.
+    source, target : str
+        The two node id columns (the same names as in the edge table).
+    delimiter : str, optional
+        As for :func:`specgraph.io.read_table`.
+
+    Returns
+    -------
+    tuple of (str, str)
+        In file order, exactly as written.
+
+    Raises
+    ------
+    InputError
+        Missing columns or empty ids, naming file, line and column.
+    """
+    table = _load_table(path, delimiter=delimiter)
+    origin = Origin(table.record["path"], table.locate)
+    frame = table.frame
+    ends = []
+    for column in (source, target):
+        _require_column(frame, column, origin, "--source/--target")
+        ids, empty = _ids(frame, column)
+        if empty.any():
+            raise origin.error(
+                "the node id is empty; fill it in or delete the row",
+                frame=frame,
+                column=column,
+                row=int(np.flatnonzero(empty)[0]),
+            )
+        ends.append(ids.tolist())
+    return tuple(zip(ends[0], ends[1], strict=True))
 
 
 def read_zone_file(
