@@ -8,6 +8,12 @@ Steps:
    from :attr:`GraphOperator.null_basis`, never from a solver.
 3. Ask the chosen solver for each component's smallest nontrivial pairs (at
    most ``k - c`` per component, where ``c`` is the number of components).
+   Two kinds of operator need a different problem (see :func:`_component_problem`):
+   one with a rank-one term per component (``regularized``) is handed to the
+   solvers as products only, and one with no known null space
+   (``bethe_hessian``, possibly indefinite) is shifted by its Gershgorin lower
+   bound and bordered by a zero row and column whose unit vector is the null
+   vector the solvers deflate.
 4. Merge, keep the ``k`` smallest, fix signs, compute every residual with the
    same rule, and raise :class:`ConvergenceError` (with the pairs found so far)
    when any residual misses ``tol``.
@@ -61,6 +67,17 @@ _SOLVERS: dict[str, Callable[[Problem], Solution]] = {
 
 METHODS = ("auto", *_SOLVERS)
 
+#: Methods that are correct for an operator with a rank-one term per component
+#: (``regularized``): those that need products only. Shift-invert would factor
+#: the dense matrix and the multilevel hierarchy aggregates the sparse part.
+LOW_RANK_METHODS = ("dense", "lanczos_flip")
+
+#: Methods that are correct for an operator with no known null space
+#: (``bethe_hessian``), solved shifted and bordered: the multilevel hierarchy
+#: is built from a null vector spread over the component, which the bordered
+#: problem does not have.
+NO_NULL_METHODS = ("dense", "lanczos", "lanczos_flip")
+
 
 def choose_method(n: int) -> str:
     """The ``auto`` rule for a connected component of ``n`` nodes.
@@ -83,6 +100,20 @@ def choose_method(n: int) -> str:
     return "dense" if n <= DENSE_LIMIT else "multilevel"
 
 
+def _allowed_methods(operator: GraphOperator) -> tuple[str, ...]:
+    if operator.low_rank is not None:
+        return LOW_RANK_METHODS
+    if operator.null_basis.shape[1] == 0:
+        return NO_NULL_METHODS
+    return tuple(_SOLVERS)
+
+
+def _auto_method(operator: GraphOperator, n: int) -> str:
+    """:func:`choose_method`, or products-only Lanczos for the operators multilevel cannot take."""
+    chosen = choose_method(n)
+    return chosen if chosen in _allowed_methods(operator) else "lanczos_flip"
+
+
 def smallest_eigenpairs(
     operator: GraphOperator,
     k: int,
@@ -100,12 +131,18 @@ def smallest_eigenpairs(
         From :func:`specgraph.laplacian`.
     k : int
         Number of pairs, ``1 <= k <= n``. The first ``c`` pairs of a network
-        with ``c`` components are the exact trivial pairs (eigenvalue 0).
+        with ``c`` components are the exact trivial pairs (eigenvalue 0);
+        for an operator with no known null space (``bethe_hessian``) the
+        ``k`` algebraically smallest pairs, negative ones first.
     method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
         Solver for each component; ``'auto'`` follows :func:`choose_method`
         per component. ``'lanczos'`` is thick-restart Lanczos on the
         shift-inverted operator, ``'lanczos_flip'`` on :math:`\\|M\\| I - M`
-        (no factorization), ``'multilevel'`` the aggregation cascade.
+        (no factorization), ``'multilevel'`` the aggregation cascade. The
+        ``regularized`` kind takes :data:`LOW_RANK_METHODS` and
+        ``bethe_hessian`` :data:`NO_NULL_METHODS` (``'auto'`` gives
+        ``'lanczos_flip'`` above :data:`DENSE_LIMIT` for both); another
+        method raises :class:`ParameterError`.
 
     Returns
     -------
@@ -117,6 +154,9 @@ def smallest_eigenpairs(
     ------
     ConvergenceError
         When a residual misses ``tol``; ``err.partial`` holds the pairs.
+    ParameterError
+        For an option outside its domain, or a method that is not correct for
+        the operator.
 
     Other Parameters
     ----------------
@@ -137,6 +177,8 @@ def smallest_eigenpairs(
     n = operator.shape[0]
     k = check_int(k, "k", minimum=1, maximum=n)
     check_choice(method, "method", METHODS)
+    if method != "auto":
+        check_choice(method, f"method for a {operator.kind!r} operator", _allowed_methods(operator))
     tol = check_positive_float(tol, "tol")
     maxiter = None if maxiter is None else check_int(maxiter, "maxiter", minimum=1)
     generator = check_rng(rng)
@@ -182,38 +224,87 @@ def _solve_components(
     matvecs = iterations = 0
     extra = k - c
     if extra > 0:
-        labels = np.argmax(basis != 0, axis=1)
-        for comp in range(c):
+        labels = operator.components
+        for comp in range(int(labels.max()) + 1 if n else 0):
             rows = np.flatnonzero(labels == comp)
-            wanted = min(extra, rows.size - 1)
+            wanted = min(extra, rows.size - 1 if c else rows.size)
             if wanted < 1:
                 continue
-            chosen = choose_method(rows.size) if method == "auto" else method
-            if wanted + 1 >= rows.size:
+            problem, shift = _component_problem(operator, rows, comp, wanted, tol, maxiter, rng)
+            chosen = _auto_method(operator, rows.size) if method == "auto" else method
+            if wanted + 1 >= problem.matrix.shape[0]:
                 # Iterative methods cannot return every pair of a component
                 # (ARPACK needs k < n); the full spectrum is a dense job.
                 chosen = "dense"
-            problem = Problem(
-                matrix=operator.matrix[rows][:, rows],
-                null_vector=basis[rows, comp],
-                norm_bound=operator.norm_bound,
-                count=wanted,
-                tol=tol,
-                maxiter=maxiter,
-                rng=rng,
-            )
             logger.debug("component %d: %d nodes, %d pairs by %s", comp, rows.size, wanted, chosen)
             found = _SOLVERS[chosen](problem)
             used.add(chosen)
             matvecs += found.matvecs
             iterations += found.iterations
-            values.append(found.values)
-            columns.append((rows, found.vectors))
+            values.append(found.values - shift)
+            columns.append((rows, found.vectors[: rows.size]))
     all_values = np.concatenate(values)
     blocks = [basis] + [_embed(rows, vecs, n) for rows, vecs in columns]
     all_vectors = np.hstack(blocks) if blocks else np.zeros((n, 0))
     order = np.argsort(all_values, kind="stable")[:k]
     return all_values[order], all_vectors[:, order], used, matvecs, iterations
+
+
+def _component_problem(
+    operator: GraphOperator,
+    rows: np.ndarray,
+    comp: int,
+    wanted: int,
+    tol: float,
+    maxiter: int | None,
+    rng: np.random.Generator,
+) -> tuple[Problem, float]:
+    """The solver's problem for one component, and the shift to take off its values.
+
+    * Known null vector, sparse operator: the component's block as it is.
+    * Known null vector plus a rank-one term: the block as products
+      (:class:`_SparsePlusRankOne`), for the products-only methods.
+    * No known null space: :math:`\\begin{pmatrix} M + sI & 0 \\\\ 0 & 0
+      \\end{pmatrix}` with :math:`s = \\max(0, -\\text{lower bound})`,
+      positive semi-definite, whose last unit vector is an exact null vector;
+      every pair orthogonal to it is :math:`(\\lambda + s, [v; 0])` for a pair
+      :math:`(\\lambda, v)` of :math:`M`. Its norm bound grows by ``s``, so the
+      solver's tolerance shrinks in proportion and its pairs meet ``tol``
+      against the operator's own bound.
+    """
+    block = operator.matrix[rows][:, rows]
+    if operator.null_basis.shape[1] == 0:
+        shift = max(0.0, -operator.lower_bound)
+        bound = operator.norm_bound + shift
+        size = rows.size
+        bordered = sp.block_diag(
+            [block + shift * sp.eye_array(size, format="csr"), sp.csr_array((1, 1))],
+            format="csr",
+        )
+        null = np.zeros(size + 1)
+        null[-1] = 1.0
+        scaled_tol = tol * operator.norm_bound / bound if bound > 0 else tol
+        return Problem(bordered, null, bound, wanted, scaled_tol, maxiter, rng), shift
+    matrix: Any = block
+    if operator.low_rank is not None:
+        matrix = _SparsePlusRankOne(block, operator.low_rank[rows])
+    null = operator.null_basis[rows, comp]
+    return Problem(matrix, null, operator.norm_bound, wanted, tol, maxiter, rng), 0.0
+
+
+class _SparsePlusRankOne:
+    """``S - u u^T`` for one component, as products (``@``) and a dense copy (``toarray``)."""
+
+    def __init__(self, sparse: sp.csr_array, u: np.ndarray) -> None:
+        self.sparse = sparse
+        self.u = u
+        self.shape = sparse.shape
+
+    def __matmul__(self, x: np.ndarray) -> np.ndarray:
+        return np.asarray(self.sparse @ x) - np.multiply.outer(self.u, self.u @ x)
+
+    def toarray(self) -> np.ndarray:
+        return self.sparse.toarray() - np.outer(self.u, self.u)
 
 
 def _embed(rows: np.ndarray, vectors: np.ndarray, n: int) -> np.ndarray:
@@ -237,7 +328,6 @@ def _scaled_residuals(
 ) -> np.ndarray:
     if values.size == 0:
         return np.zeros(0)
-    matrix: sp.csr_array = operator.matrix
-    raw = np.linalg.norm(matrix @ vectors - vectors * values, axis=0)
+    raw = np.linalg.norm(operator.apply(vectors) - vectors * values, axis=0)
     scale = operator.norm_bound if operator.norm_bound > 0 else 1.0
     return raw / scale
