@@ -1,0 +1,171 @@
+"""Zone count from the spectrum, and the ``--zones`` forms.
+
+Networks with a known number of groups come from networkx (stochastic block
+model, ring of cliques); their normalized-Laplacian eigenvalues from
+``scipy.linalg.eigh`` on networkx's ``normalized_laplacian_matrix``, so the
+spectrum does not depend on specgraph's own solvers.
+"""
+
+from __future__ import annotations
+
+import networkx as nx
+import numpy as np
+import pytest
+import scipy.linalg as sla
+
+from specgraph import Network, ParameterError, find_zones
+from specgraph.zones._count import (
+    DEFAULT_MAX_ZONES,
+    NCUT_CHECKED,
+    choose_zone_count,
+    default_candidates,
+    parse_zone_spec,
+)
+
+
+def spectrum(graph: nx.Graph) -> np.ndarray:
+    """Ascending normalized-Laplacian eigenvalues (networkx matrix, scipy eigh)."""
+    return sla.eigh(nx.normalized_laplacian_matrix(graph).toarray(), eigvals_only=True)
+
+
+def block_model(q: int, seed: int) -> nx.Graph:
+    sizes = [40 + 5 * b for b in range(q)]
+    p_in, p_out = 0.3, 0.01
+    probs = [[p_in if i == j else p_out for j in range(q)] for i in range(q)]
+    return nx.stochastic_block_model(sizes, probs, seed=seed)
+
+
+@pytest.mark.parametrize("q", [3, 4, 5, 6])
+def test_block_model_count_is_the_planted_one(q: int) -> None:
+    graph = block_model(q, seed=q)
+    assert nx.is_connected(graph)
+    values = spectrum(graph)
+    # A clear gap: by the higher-order Cheeger inequality (Lee, Oveis Gharan and
+    # Trevisan, J. ACM 2014) q groups exist when lambda_q is small and no q + 1
+    # when lambda_{q+1} is large; check the instance has that shape.
+    assert values[q] > 2.5 * values[q - 1]
+    count = choose_zone_count(values[: DEFAULT_MAX_ZONES + 1])
+    assert count.zones == q
+    assert count.confidence == "high"
+    chosen = count.evidence.set_index("zones").loc[q]
+    assert chosen["relative_gap"] == count.evidence["relative_gap"].max()
+    assert chosen["eigenvalue"] == values[q - 1]
+    assert chosen["next_eigenvalue"] == values[q]
+
+
+@pytest.mark.parametrize(("cliques", "size"), [(4, 8), (6, 5), (10, 6)])
+def test_ring_of_cliques_count_is_the_number_of_cliques(cliques: int, size: int) -> None:
+    values = spectrum(nx.ring_of_cliques(cliques, size))
+    count = choose_zone_count(values)
+    assert count.zones == cliques
+    assert f"lambda_{cliques + 1}" in count.reason
+
+
+def test_explicit_range_is_inclusive_and_bounds_the_choice() -> None:
+    values = spectrum(nx.ring_of_cliques(12, 5))
+    count = choose_zone_count(values, candidates=parse_zone_spec("8:20"))
+    assert count.zones == 12
+    assert count.evidence["zones"].tolist() == list(range(8, 21))
+    # A range that leaves out the clear count picks within the range.
+    inside = choose_zone_count(values, candidates=range(2, 11))
+    assert 2 <= inside.zones <= 10
+
+
+def test_range_beyond_the_values_is_refused() -> None:
+    with pytest.raises(ParameterError, match=r"at least 21 eigenvalues.*got 12"):
+        choose_zone_count(np.linspace(0, 1, 12), candidates=range(8, 21))
+
+
+def test_components_are_never_ranked_and_may_be_the_answer() -> None:
+    # Three disjoint K_5: normalized spectrum 0 (x3) then 5/4 (x12) (CHECKS.md, K_n).
+    graph = nx.disjoint_union_all([nx.complete_graph(5)] * 3)
+    values = spectrum(graph)
+    np.testing.assert_allclose(values[:3], 0, atol=1e-12)
+    np.testing.assert_allclose(values[3:], 5 / 4)
+    only_components = choose_zone_count(values, candidates=range(2, 4), n_components=3)
+    assert only_components.zones == 3
+    assert only_components.evidence.empty
+    ranked = choose_zone_count(values, n_components=3)
+    assert ranked.evidence["zones"].min() == 4
+    # A flat spectrum after the zeros has no gap: nothing to be confident about.
+    assert ranked.confidence == "low"
+
+
+def test_ncut_curve_agrees_on_a_ring_of_cliques() -> None:
+    graph = nx.ring_of_cliques(6, 5)
+    net = Network.from_networkx(graph, weight=None)
+    calls = []
+
+    def curve(k: int) -> float:
+        # Ncut = sum over zones of cut / volume, with networkx's cut_size and volume.
+        calls.append(k)
+        labels = find_zones(net, k, rng=0).labels
+        zones = [{int(v) for v in net.node_ids[labels == z]} for z in range(k)]
+        return sum(nx.cut_size(graph, z) / nx.volume(graph, z) for z in zones)
+
+    count = choose_zone_count(spectrum(graph), ncut_curve=curve)
+    assert count.zones == 6
+    # Checked k and k + 1 for the best NCUT_CHECKED candidates, each at most once.
+    assert len(calls) == len(set(calls)) <= 2 * NCUT_CHECKED
+    assert count.evidence["ncut"].notna().sum() == NCUT_CHECKED
+    # Six 5-cliques in a ring: each zone has 2 outgoing links and volume 22 (algebra).
+    row = count.evidence.set_index("zones").loc[6]
+    assert row["ncut_per_zone"] == pytest.approx(2 / 22)
+    assert row["ncut_jump"] == count.evidence["ncut_jump"].max()
+
+
+def test_ncut_curve_that_strongly_disagrees_overrules() -> None:
+    # Relative gaps (by hand): k=2 0.33, k=3 0.85, k=4 0.05, k=5 0.70, k=6 0.03, k=7 0.03.
+    values = np.array([0.0, 0.02, 0.03, 0.2, 0.21, 0.7, 0.72, 0.74])
+    gap_only = choose_zone_count(values)
+    assert gap_only.zones == 3
+    assert gap_only.evidence["relative_gap"].round(2).tolist() == [
+        0.33,
+        0.85,
+        0.05,
+        0.7,
+        0.03,
+        0.03,
+    ]
+    # Checked: k = 3, 5, 2 (curve read at 2..6). Jumps of the cut per zone:
+    # k=3: (0.8/4)/(0.6/3) = 1.0; k=5: (3.0/6)/(0.5/5) = 5.0; k=2: (0.6/3)/(0.4/2) = 1.0.
+    elbow_at_5 = {2: 0.4, 3: 0.6, 4: 0.8, 5: 0.5, 6: 3.0}
+    overruled = choose_zone_count(values, ncut_curve=elbow_at_5.__getitem__)
+    assert overruled.zones == 5
+    assert overruled.confidence == "low"
+    assert "k = 5 is taken" in overruled.reason
+    # Jump 3.0 after k = 3 (1.6/4 over 0.4/3), 4.0 after k = 5: not twice, the gap stands.
+    elbow_at_3 = {2: 0.3, 3: 0.4, 4: 1.6, 5: 0.5, 6: 2.4}
+    kept = choose_zone_count(values, ncut_curve=elbow_at_3.__getitem__)
+    assert kept.zones == 3
+    assert kept.confidence == gap_only.confidence
+
+
+def test_parse_zone_spec_forms() -> None:
+    assert parse_zone_spec("12") == 12
+    assert parse_zone_spec("auto") == "auto"
+    assert parse_zone_spec(" AUTO ") == "auto"
+    assert parse_zone_spec("8:20") == range(8, 21)
+    assert parse_zone_spec("5:5") == range(5, 6)
+
+
+@pytest.mark.parametrize(
+    "text", ["", "0", "-3", "3.5", "twelve", "8:", ":20", "20:8", "1:5", "8:20:2", "8-20", "٣"]
+)
+def test_parse_zone_spec_errors_name_the_option(text: str) -> None:
+    with pytest.raises(ParameterError) as info:
+        parse_zone_spec(text)
+    message = str(info.value)
+    assert message.startswith("--zones must be")
+    assert "12" in message
+    assert "'auto'" in message
+    assert "8:20" in message
+    assert message.endswith(f"got {text!r}.")
+
+
+def test_default_candidates() -> None:
+    assert default_candidates(10_000) == range(2, DEFAULT_MAX_ZONES + 1)
+    assert default_candidates(30) == range(2, 16)
+    assert default_candidates(30, n_components=4) == range(5, 16)
+    with pytest.raises(ParameterError, match="n_components"):
+        default_candidates(3, n_components=4)
