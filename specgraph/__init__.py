@@ -17,7 +17,13 @@ from importlib.metadata import PackageNotFoundError, version
 from . import gallery
 from .diagnostics import boundary_links, zone_table
 from .eigen import EigenResult, smallest_eigenpairs
-from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
+from .exceptions import (
+    ConstraintError,
+    ConvergenceError,
+    InputError,
+    ParameterError,
+    SpecgraphError,
+)
 from .io import read_edges
 from .network import Network
 from .operators import GraphOperator, laplacian
@@ -29,6 +35,7 @@ except PackageNotFoundError:  # running from a source tree that is not installed
     __version__ = "0+unknown"
 
 __all__ = [
+    "ConstraintError",
     "ConvergenceError",
     "EigenResult",
     "GraphOperator",

@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 __all__ = [
+    "ConstraintError",
     "ConvergenceError",
     "InputError",
     "OutputError",
@@ -29,6 +30,16 @@ class SpecgraphError(Exception):
 
 class ParameterError(SpecgraphError, ValueError):
     """A function or command-line parameter has a value outside its domain."""
+
+
+class ConstraintError(SpecgraphError, ValueError):
+    """A zone constraint cannot be met; the message names the constraint and why.
+
+    Raised, for example, when one node is bigger than ``max_size``, when a
+    connected component holds no source although every zone must hold one, or
+    when nodes fixed to one zone cannot be joined without crossing another.
+    The command line maps it to exit code 2 (bad input).
+    """
 
 
 class InputError(SpecgraphError, ValueError):
