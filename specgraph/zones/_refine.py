@@ -1,0 +1,693 @@
+"""Boundary refinement: local moves that lower the normalized cut of a zoning.
+
+Spectral assignment places boundaries where the embedding says, which is close
+to, but rarely exactly at, the weakest links. This module moves boundary nodes
+between adjacent zones, one at a time, while every constraint of the zoning
+stays kept, in the style of Fiduccia and Mattheyses [1]_: each pass takes the
+boundary move of highest gain, locks the moved node, and may also take moves
+that raise the cut for a while, then rolls back to the best prefix of the pass.
+The objective is the normalized cut of Shi and Malik [2]_, summed over zones
+as in the k-way form of Dhillon, Guan and Kulis [3]_:
+
+.. math::
+
+    \\operatorname{NCut} = \\sum_z \\frac{\\operatorname{cut}(z)}{\\operatorname{vol}(z)},
+    \\qquad \\operatorname{cut}(z) = \\sum_{i \\in z, j \\notin z} a_{ij},
+    \\qquad \\operatorname{vol}(z) = \\sum_{i \\in z} d_i .
+
+Gain of a move. Take node :math:`v` of weighted degree :math:`d` in zone
+:math:`a`, with link weight :math:`w_a` to the rest of :math:`a` and
+:math:`w_b` to zone :math:`b`. Moving it to :math:`b` turns its links to
+:math:`a` into cut links and its links to :math:`b` into inner ones; links to
+any third zone stay cut, so only the terms of :math:`a` and :math:`b` change:
+
+.. math::
+
+    c_a' = c_a - d + 2 w_a,\\quad V_a' = V_a - d,\\qquad
+    c_b' = c_b + d - 2 w_b,\\quad V_b' = V_b + d,
+
+and the drop of NCut (the gain) is, after putting each zone's two terms over a
+common denominator (which avoids subtracting two nearly equal ratios),
+
+.. math::
+
+    g = \\frac{d (V_a - c_a) - 2 V_a w_a}{V_a (V_a - d)}
+      + \\frac{2 V_b w_b - d (V_b - c_b)}{V_b (V_b + d)} .
+
+A zone of zero volume contributes 0 (the convention of
+:func:`specgraph.diagnostics.overall_scores`). The gain depends on the running
+totals of both zones, so every move changes the gains of all nodes of the two
+zones a little, not only those of the moved node's neighbours. The priority
+queue is therefore lazy: each entry carries the move count at which its gain
+was computed; a popped entry computed before the latest move is re-evaluated
+and pushed back, and only an entry evaluated at the current state is acted on.
+The first move of a pass is thus the best allowed single move, exactly.
+
+The move loop is compiled with numba; the rest is vectorized numpy/scipy.
+
+References
+----------
+.. [1] C. M. Fiduccia and R. M. Mattheyses, "A linear-time heuristic for
+   improving network partitions", Proc. 19th Design Automation Conference,
+   1982, pp. 175-181, :doi:`10.1109/DAC.1982.1585498`.
+.. [2] J. Shi and J. Malik, "Normalized cuts and image segmentation",
+   IEEE TPAMI 22(8), 2000, pp. 888-905, :doi:`10.1109/34.868688`.
+.. [3] I. S. Dhillon, Y. Guan and B. Kulis, "Weighted graph cuts without
+   eigenvectors: a multilevel approach", IEEE TPAMI 29(11), 2007,
+   pp. 1944-1957, :doi:`10.1109/TPAMI.2007.1115`.
+"""
+
+from __future__ import annotations
+
+import logging
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+import scipy.sparse as sp
+from numba import njit
+
+from .._validation import check_int, check_rng
+from ..exceptions import ParameterError
+
+__all__ = [
+    "CONNECTIVITY_SEARCH_LIMIT",
+    "GAIN_TOLERANCE",
+    "REFINE_PASSES",
+    "UPHILL_MOVES",
+    "Refinement",
+    "normalized_cut",
+    "refine_boundary",
+]
+
+logger = logging.getLogger(__name__)
+
+#: Default cap on refinement passes. A pass that keeps no move ends the
+#: refinement earlier; on road-like networks of 1e5 to 1e6 nodes cut into 16
+#: to 200 zones, the fifth pass already kept no move (measured).
+REFINE_PASSES = 8
+
+#: Moves a pass may take in a row without beating the best normalized cut seen
+#: in the pass before it stops and rolls back to that best prefix. Moves that
+#: raise the cut let a pass climb out of a local minimum (Fiduccia and
+#: Mattheyses 1982); capping the run
+#: keeps a pass from walking whole zones across the network (a bounded run of
+#: non-improving moves is common practice in FM implementations). ``0`` makes
+#: the refinement a greedy descent that takes improving moves only.
+UPHILL_MOVES = 64
+
+#: Most nodes the local connectivity test may visit. Moving ``v`` out of zone
+#: ``a`` is allowed only when its neighbours in ``a`` are still mutually
+#: reachable inside ``a`` without ``v``; the test searches outward from one of
+#: them and refuses the move (conservatively) when it visits this many nodes
+#: before reaching the others. On near-planar networks the neighbours of a
+#: boundary node are almost always joined by a short cycle around it: on
+#: ``gallery.road_like(100_000, rng=0)`` in 16 zones, bounds of 256, 4096 and
+#: no bound at all gave the same refined zones, while 64 and 16 refused
+#: enough moves to end at a normalized cut 1.5 % and 8 % higher (measured).
+CONNECTIVITY_SEARCH_LIMIT = 256
+
+#: Smallest drop of the normalized cut that counts as progress. NCut is a sum
+#: of ratios of weights, so it does not depend on the weight scale and an
+#: absolute threshold is meaningful; this one sits well above the rounding
+#: error of the bookkeeping (about 1e-16 per move times the zone count) and
+#: below any drop worth a move.
+GAIN_TOLERANCE = 1e-12
+
+#: Zone volumes below this fraction of the total volume count as zero when a
+#: move leaves a zone with only zero-degree nodes (rounding guard).
+_VOLUME_FLOOR = 1e-12
+
+_HEAP_START = 1024  # initial heap capacity; the heap doubles as needed
+
+
+@dataclass(frozen=True, eq=False)
+class Refinement:
+    """The result of :func:`refine_boundary`.
+
+    Attributes
+    ----------
+    labels : ndarray of int64, shape (n,)
+        Refined zone of each node, same numbering as the input.
+    ncut_before, ncut_after : float
+        Normalized cut of the input and refined labels
+        (:func:`normalized_cut`); ``ncut_after <= ncut_before`` always.
+    moves : int
+        Moves kept, summed over passes (moves rolled back are not counted; a
+        node moved in two passes counts twice).
+    passes : int
+        Passes run, including the last one, which kept no move unless the pass
+        cap was reached.
+    """
+
+    labels: np.ndarray
+    ncut_before: float
+    ncut_after: float
+    moves: int
+    passes: int
+
+
+# --------------------------------------------------------------- vectorized
+
+
+def _csr(adjacency: Any) -> sp.csr_array:
+    if not sp.issparse(adjacency):
+        raise ParameterError(
+            f"adjacency must be a scipy sparse matrix; got {type(adjacency).__name__}."
+        )
+    a = sp.csr_array(adjacency, dtype=np.float64)
+    if a.shape[0] != a.shape[1]:
+        raise ParameterError(f"adjacency must be square; got shape {a.shape}.")
+    return a
+
+
+def _labels(labels: Any, n: int) -> np.ndarray:
+    array = np.asarray(labels)
+    if array.shape != (n,):
+        raise ParameterError(f"labels must have shape ({n},); got shape {array.shape}.")
+    if not np.issubdtype(array.dtype, np.integer) or (array.size and array.min() < 0):
+        raise ParameterError(f"labels must be integers >= 0; got dtype {array.dtype}.")
+    return array.astype(np.int64)  # always a copy: the input is never modified
+
+
+def _zone_totals(a: sp.csr_array, labels: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Cut and volume of every zone, in one pass over the stored links."""
+    degree = np.asarray(a.sum(axis=1)).ravel()
+    rows = np.repeat(labels, np.diff(a.indptr))
+    cross = rows != labels[a.indices]
+    cut = np.bincount(rows[cross], weights=a.data[cross], minlength=k)
+    vol = np.bincount(labels, weights=degree, minlength=k)
+    return cut, vol
+
+
+def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
+    """Normalized cut :math:`\\sum_z \\operatorname{cut}(z)/\\operatorname{vol}(z)` of a zoning.
+
+    Zones of zero volume contribute 0.
+
+    Parameters
+    ----------
+    adjacency : scipy sparse matrix of shape (n, n)
+        Symmetric affinities, no self-loops.
+    labels : ndarray of int, shape (n,)
+        Zone of each node, integers ``>= 0``.
+
+    Returns
+    -------
+    float
+
+    Raises
+    ------
+    ParameterError
+        For a non-square or non-sparse adjacency or labels of the wrong shape or type.
+
+    References
+    ----------
+    .. [1] J. Shi and J. Malik, "Normalized cuts and image segmentation",
+       IEEE TPAMI 22(8), 2000, :doi:`10.1109/34.868688`.
+
+    Examples
+    --------
+    Two triangles joined by one link: each zone has cut 1 and volume 7.
+
+    >>> import networkx as nx
+    >>> g = nx.barbell_graph(3, 0)
+    >>> a = nx.to_scipy_sparse_array(g)
+    >>> round(normalized_cut(a, np.array([0, 0, 0, 1, 1, 1])), 6) == round(2 / 7, 6)
+    True
+    """
+    a = _csr(adjacency)
+    zones = _labels(labels, a.shape[0])
+    k = int(zones.max()) + 1 if zones.size else 0
+    cut, vol = _zone_totals(a, zones, k)
+    safe = np.where(vol > 0, vol, 1.0)
+    return float(np.sum(np.where(vol > 0, cut / safe, 0.0)))
+
+
+# ------------------------------------------------------------ compiled moves
+
+
+@njit(cache=True)
+def _violation(total, lo, hi):  # pragma: no cover - compiled
+    """How far a zone size lies outside ``[lo, hi]`` (0 inside)."""
+    return max(0.0, lo - total, total - hi)
+
+
+@njit(cache=True)
+def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, floor, scratch):
+    """Best allowed target zone of node ``v`` and the exact gain of moving it there.
+
+    ``state`` holds ``cut, vol, zsize, zcount`` per zone (rows 0-3). Targets
+    are zones adjacent to ``v``; a target is skipped when the move would leave
+    ``v``'s zone empty or push either zone's size further outside the bounds.
+    Returns ``(gain, target)``, target ``-1`` when no move is allowed.
+    """
+    weight, seen, touched = scratch
+    a = labels[v]
+    if state[3, a] <= 1.0:
+        return -np.inf, -1
+    s = sizes[v]
+    if _violation(state[2, a] - s, lo, hi) > _violation(state[2, a], lo, hi):
+        return -np.inf, -1
+    wa = 0.0
+    count = 0
+    for p in range(indptr[v], indptr[v + 1]):
+        z = labels[indices[p]]
+        if z == a:
+            wa += data[p]
+        else:
+            if not seen[z]:
+                seen[z] = True
+                weight[z] = 0.0
+                touched[count] = z
+                count += 1
+            weight[z] += data[p]
+    d = degree[v]
+    ca, va = state[0, a], state[1, a]
+    if va - d > floor:
+        gain_a = (d * (va - ca) - 2.0 * va * wa) / (va * (va - d))
+    else:
+        gain_a = ca / va if va > floor else 0.0
+    best_gain, best = -np.inf, -1
+    for i in range(count):
+        b = touched[i]
+        seen[b] = False
+        if _violation(state[2, b] + s, lo, hi) > _violation(state[2, b], lo, hi):
+            continue
+        cb, vb, wb = state[0, b], state[1, b], weight[b]
+        if vb > floor:
+            gain_b = (2.0 * vb * wb - d * (vb - cb)) / (vb * (vb + d))
+        else:
+            gain_b = -(cb + d - 2.0 * wb) / (vb + d)
+        gain = gain_a + gain_b
+        if gain > best_gain or (gain == best_gain and b < best):
+            best_gain, best = gain, b
+    return best_gain, best
+
+
+@njit(cache=True)
+def _stays_connected(v, indptr, indices, labels, marks, queue):  # pragma: no cover - compiled
+    """Whether ``v``'s neighbours in its zone stay mutually reachable in the zone without ``v``.
+
+    Breadth-first search inside the zone from one such neighbour, blocked at
+    ``v``, until all the others are reached; ``False`` when the search visits
+    ``queue.size`` nodes first (the bound) or runs out of nodes (a real split).
+    ``marks`` holds a stamp (``marks[0, 0]``) and per-node stamps for targets
+    (row 1) and visited nodes (row 2), so nothing is cleared between calls.
+    """
+    a = labels[v]
+    marks[0, 0] += 1
+    stamp = marks[0, 0]
+    first, wanted = -1, 0
+    for p in range(indptr[v], indptr[v + 1]):
+        u = indices[p]
+        if u != v and labels[u] == a and marks[1, u] != stamp:
+            marks[1, u] = stamp
+            wanted += 1
+            if first < 0:
+                first = u
+    if wanted <= 1:
+        return True
+    marks[2, v] = stamp
+    marks[2, first] = stamp
+    queue[0] = first
+    head, tail, found = 0, 1, 1
+    while head < tail:
+        x = queue[head]
+        head += 1
+        for p in range(indptr[x], indptr[x + 1]):
+            y = indices[p]
+            if labels[y] != a or marks[2, y] == stamp:
+                continue
+            marks[2, y] = stamp
+            if marks[1, y] == stamp:
+                found += 1
+                if found == wanted:
+                    return True
+            if tail == queue.size:
+                return False
+            queue[tail] = y
+            tail += 1
+    return False
+
+
+@njit(cache=True)
+def _apply_move(v, b, indptr, indices, data, labels, degree, sizes, state):  # pragma: no cover
+    """Move ``v`` to zone ``b`` and update the zone totals in ``state``."""
+    a = labels[v]
+    wa, wb = 0.0, 0.0
+    for p in range(indptr[v], indptr[v + 1]):
+        z = labels[indices[p]]
+        if z == a:
+            wa += data[p]
+        elif z == b:
+            wb += data[p]
+    d = degree[v]
+    state[0, a] += 2.0 * wa - d
+    state[1, a] -= d
+    state[0, b] += d - 2.0 * wb
+    state[1, b] += d
+    state[2, a] -= sizes[v]
+    state[2, b] += sizes[v]
+    state[3, a] -= 1.0
+    state[3, b] += 1.0
+    labels[v] = b
+
+
+@njit(cache=True)
+def _heap_before(keys, items, i, j):  # pragma: no cover - compiled
+    """Entry ``i`` comes out before ``j``: larger gain, then smaller tie-break rank."""
+    return keys[i] > keys[j] or (keys[i] == keys[j] and items[i, 0] < items[j, 0])
+
+
+@njit(cache=True)
+def _heap_push(keys, items, size, gain, rank, node, version, stamp, target):  # pragma: no cover
+    """Push an entry; returns the (possibly reallocated) arrays and the new size."""
+    if size == keys.size:
+        bigger_keys = np.empty(2 * keys.size)
+        bigger_items = np.empty((2 * keys.size, 5), dtype=np.int64)
+        bigger_keys[:size] = keys[:size]
+        bigger_items[:size] = items[:size]
+        keys, items = bigger_keys, bigger_items
+    keys[size] = gain
+    items[size, 0] = rank
+    items[size, 1] = node
+    items[size, 2] = version
+    items[size, 3] = stamp
+    items[size, 4] = target
+    i = size
+    while i > 0:
+        parent = (i - 1) // 2
+        if not _heap_before(keys, items, i, parent):
+            break
+        keys[i], keys[parent] = keys[parent], keys[i]
+        for c in range(5):
+            items[i, c], items[parent, c] = items[parent, c], items[i, c]
+        i = parent
+    return keys, items, size + 1
+
+
+@njit(cache=True)
+def _heap_pop(keys, items, size):  # pragma: no cover - compiled
+    """Remove the top entry into slot ``size - 1`` and return the new size."""
+    last = size - 1
+    keys[0], keys[last] = keys[last], keys[0]
+    for c in range(5):
+        items[0, c], items[last, c] = items[last, c], items[0, c]
+    i = 0
+    while True:
+        left = 2 * i + 1
+        if left >= last:
+            break
+        child = left
+        if left + 1 < last and _heap_before(keys, items, left + 1, left):
+            child = left + 1
+        if not _heap_before(keys, items, child, i):
+            break
+        keys[i], keys[child] = keys[child], keys[i]
+        for c in range(5):
+            items[i, c], items[child, c] = items[child, c], items[i, c]
+        i = child
+    return last
+
+
+@njit(cache=True)
+def _refine_pass(
+    indptr, indices, data, labels, degree, sizes, movable, rank, state, bounds, limits
+):
+    """One pass of boundary moves with rollback to the best prefix.
+
+    ``bounds`` is ``(lo, hi, volume_floor, gain_tolerance)``; ``limits`` is
+    ``(uphill_moves, search_limit)``. Updates ``labels`` and ``state`` in
+    place and returns ``(drop, kept)``: the drop of the normalized cut by the
+    kept prefix and its length.
+    """
+    n = labels.size
+    k = state.shape[1]
+    lo, hi, floor, tol = bounds[0], bounds[1], bounds[2], bounds[3]
+    scratch = (np.zeros(k), np.zeros(k, dtype=np.bool_), np.empty(k, dtype=np.int64))
+    marks = np.zeros((3, n), dtype=np.int64)
+    queue = np.empty(limits[1], dtype=np.int64)
+    locked = np.zeros(n, dtype=np.bool_)
+    version = np.zeros(n, dtype=np.int64)
+    log_node = np.empty(n, dtype=np.int64)
+    log_zone = np.empty(n, dtype=np.int64)
+    keys = np.empty(_HEAP_START)
+    items = np.empty((_HEAP_START, 5), dtype=np.int64)
+    size = 0
+    args = (indptr, indices, data, labels, degree, sizes, state, lo, hi, floor, scratch)
+
+    # Every movable node with a neighbour in another zone enters the queue.
+    for v in range(n):
+        if not movable[v]:
+            continue
+        for p in range(indptr[v], indptr[v + 1]):
+            if labels[indices[p]] != labels[v]:
+                gain, target = _best_move(v, *args)
+                if target >= 0:
+                    keys, items, size = _heap_push(
+                        keys, items, size, gain, rank[v], v, 0, 0, target
+                    )
+                break
+
+    moves, kept, since = 0, 0, 0
+    total, best = 0.0, 0.0
+    while size > 0:
+        size = _heap_pop(keys, items, size)
+        gain = keys[size]
+        v, ver, stamp, target = items[size, 1], items[size, 2], items[size, 3], items[size, 4]
+        if locked[v] or ver != version[v]:
+            continue  # superseded entry
+        if stamp != moves:  # computed before the latest move: re-evaluate
+            gain, target = _best_move(v, *args)
+            version[v] += 1
+            if target >= 0:
+                keys, items, size = _heap_push(
+                    keys, items, size, gain, rank[v], v, version[v], moves, target
+                )
+            continue
+        if not _stays_connected(v, indptr, indices, labels, marks, queue):
+            continue  # dropped until a neighbour moves and queues it again
+        log_node[moves] = v
+        log_zone[moves] = labels[v]
+        _apply_move(v, target, indptr, indices, data, labels, degree, sizes, state)
+        locked[v] = True
+        moves += 1
+        total += gain
+        if total > best + tol:
+            best, kept, since = total, moves, 0
+        else:
+            since += 1
+            if since > limits[0]:
+                break
+        for p in range(indptr[v], indptr[v + 1]):
+            u = indices[p]
+            if movable[u] and not locked[u]:
+                version[u] += 1
+                gain_u, target_u = _best_move(u, *args)
+                if target_u >= 0:
+                    keys, items, size = _heap_push(
+                        keys, items, size, gain_u, rank[u], u, version[u], moves, target_u
+                    )
+
+    # Undo the moves after the best prefix, newest first: each undo sees the
+    # labels its move saw, so the totals come back exactly to that state.
+    for i in range(moves - 1, kept - 1, -1):
+        _apply_move(log_node[i], log_zone[i], indptr, indices, data, labels, degree, sizes, state)
+    return best, kept
+
+
+# ------------------------------------------------------------------ driver
+
+
+def _node_array(value: Any, n: int, name: str, dtype: type, default: Any) -> np.ndarray:
+    if value is None:
+        return np.full(n, default, dtype=dtype)
+    array = np.asarray(value)
+    if array.shape != (n,):
+        raise ParameterError(f"{name} must have shape ({n},); got shape {array.shape}.")
+    if dtype is np.bool_:
+        if array.dtype != np.bool_:
+            raise ParameterError(f"{name} must be a boolean array; got dtype {array.dtype}.")
+        return array
+    array = array.astype(np.float64)
+    if not np.all(np.isfinite(array)) or (array.size and array.min() < 0):
+        raise ParameterError(f"{name} must be finite and >= 0; got min {array.min()!r}.")
+    return array
+
+
+def _size_bounds(min_size: Any, max_size: Any) -> tuple[float, float]:
+    bounds = []
+    for name, value, default in (("min_size", min_size, -np.inf), ("max_size", max_size, np.inf)):
+        if value is None:
+            bounds.append(default)
+            continue
+        try:
+            number = float(value)
+        except (TypeError, ValueError):
+            number = np.nan
+        if isinstance(value, bool) or not np.isfinite(number) or number < 0:
+            raise ParameterError(f"{name} must be None or a finite number >= 0; got {value!r}.")
+        bounds.append(number)
+    if bounds[0] > bounds[1]:
+        raise ParameterError(
+            f"min_size must be <= max_size; got min_size={min_size!r}, max_size={max_size!r}."
+        )
+    return bounds[0], bounds[1]
+
+
+def refine_boundary(
+    adjacency: Any,
+    labels: np.ndarray,
+    *,
+    sizes: np.ndarray | None = None,
+    min_size: float | None = None,
+    max_size: float | None = None,
+    movable: np.ndarray | None = None,
+    max_passes: int = REFINE_PASSES,
+    uphill_moves: int = UPHILL_MOVES,
+    rng: Any = None,
+) -> Refinement:
+    """Lower the normalized cut of a zoning by moving boundary nodes, keeping every constraint.
+
+    Each pass queues the movable nodes that have a neighbour in another zone,
+    keyed by the exact drop of the normalized cut that their best move brings
+    (see the module notes for the gain), takes the best move, locks the node,
+    queues its neighbours again, and goes on, also through moves that raise the
+    cut, until :data:`UPHILL_MOVES` moves in a row fail to beat the best cut
+    of the pass; it then rolls back to that best prefix (Fiduccia-Mattheyses,
+    [1]_, with the k-way normalized cut of [3]_). Passes repeat until one keeps
+    no move or ``max_passes`` is reached.
+
+    Every move keeps all of these:
+
+    * the zone it leaves stays connected: ``v``'s neighbours in that zone must
+      still reach each other inside it without ``v`` (a breadth-first search
+      of at most :data:`CONNECTIVITY_SEARCH_LIMIT` nodes; the move is refused
+      when the bound is hit);
+    * the receiving zone is adjacent to ``v``, so it stays connected;
+    * no zone becomes empty, so the zone count is unchanged;
+    * no zone size moves further outside ``[min_size, max_size]``: a zone
+      inside stays inside, one outside may only come closer;
+    * immovable nodes stay where they are.
+
+    Input labels whose zones are not connected are accepted: the tests above
+    are local, so the number of connected pieces of each zone never grows (a
+    piece losing ``v`` stays whole, and ``v`` joins a piece of the receiving
+    zone), though refinement does not merge pieces on purpose.
+
+    Parameters
+    ----------
+    adjacency : scipy sparse matrix of shape (n, n)
+        Symmetric affinities, no self-loops.
+    labels : ndarray of int, shape (n,)
+        Zone of each node, ``0..k-1``. Not modified.
+    sizes : ndarray of float, shape (n,), optional
+        Node sizes summed against the bounds; ones when omitted.
+    min_size, max_size : float, optional
+        Bounds on every zone's summed size; unbounded when omitted.
+    movable : ndarray of bool, shape (n,), optional
+        ``False`` pins a node (sources, user-fixed nodes); all movable when omitted.
+
+    Returns
+    -------
+    Refinement
+
+    Raises
+    ------
+    ParameterError
+        For an argument of the wrong shape, type or range (the message names it).
+
+    Other Parameters
+    ----------------
+    max_passes : int, default=REFINE_PASSES
+        Most passes; 0 returns the input labels.
+    uphill_moves : int, default=UPHILL_MOVES
+        Moves in a row a pass may take without beating its best cut; 0 gives
+        a greedy descent through improving moves only.
+    rng : None, int or numpy.random.Generator
+        Draws the order that breaks ties between equal gains; the same seed
+        and input give the same labels.
+
+    Notes
+    -----
+    FM with rollback rather than greedy descent, because it went lower at a
+    small cost. Measured on ``gallery.road_like(100_000, rng=0)`` cut into 16
+    zones by scikit-learn's ``KMeans(16, n_init=1, random_state=0)`` on the
+    coordinates: NCut 0.1268 fell to 0.0833 (34 % lower) with the default,
+    to 0.0865 (32 %) with ``uphill_moves=0``; on ``road_like(1_000_000,
+    rng=0)`` with 16 and 200 zones, 34 % against 32 % and 30 % against 29 %,
+    with run times within a factor 1.2 of each other.
+
+    References
+    ----------
+    .. [1] C. M. Fiduccia and R. M. Mattheyses, "A linear-time heuristic for
+       improving network partitions", Proc. 19th Design Automation Conference,
+       1982, :doi:`10.1109/DAC.1982.1585498`.
+    .. [2] J. Shi and J. Malik, "Normalized cuts and image segmentation",
+       IEEE TPAMI 22(8), 2000, :doi:`10.1109/34.868688`.
+    .. [3] I. S. Dhillon, Y. Guan and B. Kulis, "Weighted graph cuts without
+       eigenvectors: a multilevel approach", IEEE TPAMI 29(11), 2007,
+       :doi:`10.1109/TPAMI.2007.1115`.
+
+    Examples
+    --------
+    A barbell of two 5-cliques with the boundary one node off the bridge:
+
+    >>> from specgraph import gallery
+    >>> net = gallery.barbell(5)
+    >>> result = refine_boundary(net.adjacency, np.array([0, 0, 0, 0, 1, 1, 1, 1, 1, 1]), rng=0)
+    >>> result.labels.tolist()
+    [0, 0, 0, 0, 0, 1, 1, 1, 1, 1]
+    >>> result.ncut_after < result.ncut_before, result.moves
+    (True, 1)
+    """
+    a = _csr(adjacency)
+    n = a.shape[0]
+    start = _labels(labels, n)
+    node_sizes = _node_array(sizes, n, "sizes", np.float64, 1.0)
+    free = _node_array(movable, n, "movable", np.bool_, True)
+    lo, hi = _size_bounds(min_size, max_size)
+    max_passes = check_int(max_passes, "max_passes", minimum=0)
+    uphill_moves = check_int(uphill_moves, "uphill_moves", minimum=0)
+    rank = check_rng(rng).permutation(n).astype(np.int64)
+
+    k = int(start.max()) + 1 if n else 0
+    cut, vol = _zone_totals(a, start, k)
+    before = float(np.sum(np.where(vol > 0, cut / np.where(vol > 0, vol, 1.0), 0.0)))
+    current = start.copy()
+    degree = np.asarray(a.sum(axis=1)).ravel()
+    floor = _VOLUME_FLOOR * float(degree.sum())
+    bounds = np.array([lo, hi, floor, GAIN_TOLERANCE])
+    limits = np.array([uphill_moves, CONNECTIVITY_SEARCH_LIMIT], dtype=np.int64)
+    moves = passes = 0
+    for _ in range(max_passes if k > 1 else 0):
+        # Totals are recomputed each pass so rounding never accumulates across passes.
+        cut, vol = _zone_totals(a, current, k)
+        zsize = np.bincount(current, weights=node_sizes, minlength=k)
+        zcount = np.bincount(current, minlength=k).astype(np.float64)
+        state = np.vstack([cut, vol, zsize, zcount])
+        drop, kept = _refine_pass(
+            a.indptr,
+            a.indices,
+            a.data,
+            current,
+            degree,
+            node_sizes,
+            free,
+            rank,
+            state,
+            bounds,
+            limits,
+        )
+        passes += 1
+        moves += int(kept)
+        logger.debug("refine pass %d: %d moves kept, NCut lowered by %.3g", passes, kept, drop)
+        if kept == 0:
+            break
+    after = normalized_cut(a, current)
+    if after > before:  # rounding could only leave a tie; never hand back a worse zoning
+        current, after, moves = start, before, 0
+    return Refinement(
+        labels=current, ncut_before=before, ncut_after=after, moves=moves, passes=passes
+    )
