@@ -22,12 +22,19 @@ from typing import Any
 from . import __version__
 from .diagnostics import suggest_zone_counts
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
-from .exceptions import ConvergenceError, SpecgraphError
+from .exceptions import ConvergenceError, ParameterError, SpecgraphError
 from .export import CAUTION, file_checksum, run_record, write_outputs, zoning_tables
-from .io import read_edges
+from .io import flagged_links, read_edges, read_link_list, read_node_list, read_zone_file
 from .network import Network
 from .operators import laplacian
-from .zones import find_zones
+from .zones import (
+    ASSIGNMENTS,
+    OPERATOR_KINDS,
+    TREE_TREATMENTS,
+    ZoneConstraints,
+    find_zones,
+    parse_zone_spec,
+)
 
 __all__ = ["build_parser", "main", "run"]
 
@@ -69,6 +76,13 @@ _seed = _bounded(int, 0, strict=False, expected="a whole number >= 0")
 _positive_float = _bounded(float, 0.0, strict=True, expected="a finite number > 0")
 
 
+def _zone_spec(text: str) -> Any:
+    try:
+        return parse_zone_spec(text)
+    except ParameterError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+
+
 def _caution_epilog(examples: str) -> str:
     return f"examples:\n{examples}\n{_EXIT_CODES}\ncaution:\n" + textwrap.fill(
         CAUTION, width=78, initial_indent="  ", subsequent_indent="  "
@@ -104,13 +118,15 @@ def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
     parser.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
 
 
-def _add_solving(parser: argparse.ArgumentParser) -> None:
+def _add_solving(parser: argparse.ArgumentParser, *, auto: bool) -> None:
     group = parser.add_argument_group("solving")
+    kinds = (("auto",) if auto else ()) + OPERATOR_KINDS
+    default = "auto" if auto else "normalized"
     group.add_argument(
-        "--laplacian",
-        choices=("normalized", "random_walk", "combinatorial"),
-        default="normalized",
-        help="operator (default normalized)",
+        "--operator",
+        choices=kinds,
+        default=default,
+        help=f"graph operator whose smallest eigenvectors place the nodes (default {default})",
     )
     group.add_argument(
         "--tol",
@@ -119,6 +135,80 @@ def _add_solving(parser: argparse.ArgumentParser) -> None:
         help=f"eigen residual bound (default {DEFAULT_TOL})",
     )
     group.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
+
+
+def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
+    group = parser.add_argument_group("zones and constraints")
+    group.add_argument(
+        "--zones",
+        type=_zone_spec,
+        default="auto",
+        metavar="K|auto|A:B",
+        help="number of zones, 'auto' to read it from the eigengaps, or a range such as "
+        "8:20 to choose within (default auto)",
+    )
+    group.add_argument(
+        "--assign",
+        choices=("auto", *ASSIGNMENTS),
+        default="auto",
+        help="how embedded nodes become zones (default auto)",
+    )
+    group.add_argument(
+        "--trees",
+        choices=("auto", *TREE_TREATMENTS),
+        default="auto",
+        help="dangling branches: 'attach' zones the network without them and gives each "
+        "branch the zone of the node it hangs from; 'keep' zones them like any node",
+    )
+    group.add_argument(
+        "--min-size",
+        type=_positive_float,
+        metavar="N",
+        help="smallest zone, in --size-col units when given, else in nodes",
+    )
+    group.add_argument(
+        "--max-size",
+        type=_positive_float,
+        metavar="N",
+        help="largest zone, in --size-col units when given, else in nodes",
+    )
+    group.add_argument(
+        "--count-nodes",
+        action="store_true",
+        help="count --min-size/--max-size in nodes even when --size-col is given",
+    )
+    group.add_argument(
+        "--no-refine",
+        action="store_true",
+        help="skip the boundary refinement that lowers the normalized cut",
+    )
+    if not reading:
+        return
+    group.add_argument(
+        "--supply-col",
+        metavar="COL",
+        help="yes/no column of the node table marking supply points: one per zone",
+    )
+    group.add_argument(
+        "--supply-list",
+        metavar="FILE",
+        help="table listing supply points in its --node-col column: one per zone",
+    )
+    group.add_argument(
+        "--keep-col",
+        metavar="COL",
+        help="yes/no column of the edge table marking links that must not be cut",
+    )
+    group.add_argument(
+        "--keep-list",
+        metavar="FILE",
+        help="table of links (--source/--target columns) that must not be cut",
+    )
+    group.add_argument(
+        "--fixed",
+        metavar="FILE",
+        help="table of node,zone rows fixing those nodes' zones in advance",
+    )
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -140,15 +230,15 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=_caution_epilog(
             "  specgraph zones pipes.csv --zones 8\n"
             "  specgraph zones pipes.csv --nodes junctions.csv --node-col node \\\n"
-            "      --weight length_m --distance --size-col connections --zones 12 --out districts"
+            "      --weight length_m --distance --size-col connections --zones auto \\\n"
+            "      --min-size 500 --max-size 3000 --supply-col inlet --keep-col trunk \\\n"
+            "      --out districts"
         ),
         formatter_class=raw,
     )
     _add_reading(zones)
-    zones.add_argument(
-        "--zones", type=_positive_int, required=True, metavar="K", help="number of zones"
-    )
-    _add_solving(zones)
+    _add_zoning(zones, reading=True)
+    _add_solving(zones, auto=True)
     _add_common(zones, out="specgraph-zones")
 
     spectrum = commands.add_parser(
@@ -167,7 +257,7 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="M",
         help=f"eigenvalues to compute (default {DEFAULT_SPECTRUM_COUNT})",
     )
-    _add_solving(spectrum)
+    _add_solving(spectrum, auto=False)
     _add_common(spectrum, out="specgraph-spectrum")
 
     demo = commands.add_parser(
@@ -177,10 +267,8 @@ def build_parser() -> argparse.ArgumentParser:
         epilog=_caution_epilog("  specgraph demo --out quillmere-zones"),
         formatter_class=raw,
     )
-    demo.add_argument(
-        "--zones", type=_positive_int, default=None, metavar="K", help="number of zones"
-    )
-    _add_solving(demo)
+    _add_zoning(demo, reading=False)
+    _add_solving(demo, auto=True)
     _add_common(demo, out="specgraph-demo")
     return parser
 
@@ -192,6 +280,7 @@ def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespac
         ("--size-col", args.size_col),
         ("--x-col", args.x_col),
         ("--y-col", args.y_col),
+        ("--supply-col", getattr(args, "supply_col", None)),
     ):
         if value is not None:
             parser.error(f"{option} names a column of the node table, so it needs --nodes")
@@ -216,16 +305,58 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
     return network, inputs
 
 
+def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
+    """The zone constraints the options ask for, read from their files and columns."""
+    sources: tuple[str, ...] = ()
+    if getattr(args, "supply_col", None):
+        sources += read_node_list(args.nodes, node=args.node_col, flag=args.supply_col)
+    if getattr(args, "supply_list", None):
+        sources += read_node_list(args.supply_list, node=args.node_col)
+    keep: list[tuple[str, str]] = []
+    if getattr(args, "keep_col", None):
+        ids = network.node_ids
+        keep += [(ids[a], ids[b]) for a, b in flagged_links(network, args.keep_col).tolist()]
+    if getattr(args, "keep_list", None):
+        keep += read_link_list(args.keep_list, source=args.source, target=args.target)
+    fixed = None
+    if getattr(args, "fixed", None):
+        fixed = read_zone_file(args.fixed, node=args.node_col)
+    by_size = network.sizes is not None and not args.count_nodes
+    return ZoneConstraints(
+        min_size=args.min_size,
+        max_size=args.max_size,
+        size_by="weight" if by_size else "nodes",
+        sources=tuple(dict.fromkeys(sources)),
+        keep_links=tuple(keep),
+        fixed=fixed,
+    )
+
+
 def _zone_and_write(
     network: Network, inputs: list[dict[str, Any]], args: argparse.Namespace, argv: list[str]
 ) -> dict[str, Any]:
+    for option in ("supply_list", "keep_list", "fixed"):
+        path = getattr(args, option, None)
+        if path:
+            role = option.replace("_", " ")
+            inputs.append({"role": role, "path": path, "checksum": file_checksum(path)})
     zoning = find_zones(
-        network, args.zones, laplacian_kind=args.laplacian, tol=args.tol, rng=args.seed
+        network,
+        args.zones,
+        operator=args.operator,
+        assign=args.assign,
+        trees=args.trees,
+        constraints=_constraints(network, args),
+        refine=not args.no_refine,
+        tol=args.tol,
+        rng=args.seed,
     )
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     written = write_outputs(args.out, {**zoning_tables(zoning), "run.json": record})
     for message in zoning.warnings:
         logger.warning("warning: %s", message)
+    for name, decision in zoning.decisions.items():
+        logger.info("%s: %s", name, decision["reason"])
     scores = zoning.scores
     logger.info(
         "%d zones, normalized cut %.4g, %d boundary links, all zones connected: %s",
@@ -245,7 +376,7 @@ def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 
 
 def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    from .demo import DEMO_ZONES, demo_files, load_demo
+    from .demo import demo_files, load_demo
 
     network = load_demo()
     files = demo_files()
@@ -253,7 +384,7 @@ def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         {"role": role, "path": f"<demo>/{path.name}", "checksum": file_checksum(path)}
         for role, path in (("edges", files.pipes), ("nodes", files.junctions))
     ]
-    args.zones = DEMO_ZONES if args.zones is None else args.zones
+    args.count_nodes = False
     logger.info("demo: the invented town of Quillmere, %r", network)
     return _zone_and_write(network, inputs, args, argv)
 
@@ -264,12 +395,18 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     network, inputs = _read(args)
     count = min(args.count, network.n_nodes)
     result = smallest_eigenpairs(
-        laplacian(network, kind=args.laplacian), count, tol=args.tol, rng=args.seed
+        laplacian(network, kind=args.operator), count, tol=args.tol, rng=args.seed
     )
     table = pd.DataFrame(
         {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
     )
-    suggested = suggest_zone_counts(result.values, n_components=network.n_components)
+    # Eigengap suggestions read the normalized Laplacian's spectrum (Cheeger);
+    # the other operators' eigenvalues are listed without them.
+    suggested = (
+        suggest_zone_counts(result.values, n_components=network.n_components)
+        if args.operator in ("normalized", "random_walk")
+        else []
+    )
     record = {
         "specgraph_run": 1,
         "command": ["specgraph", *argv],

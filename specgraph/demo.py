@@ -17,8 +17,9 @@ from .network import Network
 
 __all__ = ["DEMO_ZONES", "DemoFiles", "demo_files", "load_demo"]
 
-#: Zone count the demo uses: the Quillmere spectrum has its largest relative
-#: eigengap after the 8th eigenvalue (see ``specgraph spectrum`` on the demo).
+#: Districts the demo's generator draws. ``specgraph demo`` finds this count
+#: itself (``--zones auto``): the Quillmere spectrum, with its dangling
+#: branches attached, has its largest relative eigengap after the 8th eigenvalue.
 DEMO_ZONES = 8
 
 _NAME = "quillmere"

@@ -165,6 +165,7 @@ def run_record(
                 "has_sizes": net.sizes is not None,
                 "input_policy": _portable_notes(net.notes),
             },
+            "decisions": zoning.decisions,
             "eigen_solves": _solve_records(zoning),
             "scores": zoning.scores,
             "warnings": list(zoning.warnings),

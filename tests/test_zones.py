@@ -107,7 +107,7 @@ def test_sweep_without_degree_scaling_sorts_the_vector_itself() -> None:
 def test_barbell_splits_at_the_bridge(bridge: float, kind: str, method: str) -> None:
     m = 8
     net = gallery.barbell(m, bridge_weight=bridge)
-    zoning = find_zones(net, 2, laplacian_kind=kind, eigen_method=method, rng=0)
+    zoning = find_zones(net, 2, operator=kind, eigen_method=method, rng=0)
     truth = [0] * m + [1] * m  # networkx barbell_graph: bells 0..m-1 and m..2m-1
     assert adjusted_rand_score(truth, zoning.labels) == 1.0
     boundary = zoning.boundary
@@ -129,7 +129,7 @@ def test_two_cliques_with_a_weak_link_shuffled_ids(kind: str) -> None:
     net = Network.from_links(
         [names[u] for u, _, _ in edges], [names[v] for _, v, _ in edges], [w for *_, w in edges]
     )
-    zoning = find_zones(net, 2, laplacian_kind=kind, rng=5)
+    zoning = find_zones(net, 2, operator=kind, rng=5)
     truth_by_name = {names[v]: int(v >= 7) for v in graph}
     truth = [truth_by_name[i] for i in net.node_ids.tolist()]
     assert adjusted_rand_score(truth, zoning.labels) == 1.0

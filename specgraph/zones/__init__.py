@@ -1,20 +1,88 @@
-"""Zone assignment: spectral embedding, assignment, and the :class:`Zoning` result."""
+"""Zone assignment: embedding, assignment, constraints, refinement, and the :class:`Zoning` result.
+
+The stages, one module each: :mod:`._trees` (dangling trees), :mod:`._count`
+(zone count), :mod:`._embedding` and :mod:`._assign` (from eigenvectors to
+zones), :mod:`._constraints` (the user's rules), :mod:`._refine` (boundary
+moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`).
+"""
 
 from ._allocate import allocate_zones
-from ._assign import KMEANS_RESTARTS, kmeans_labels
+from ._assign import (
+    ASSIGN_METHODS,
+    KMEANS_RESTARTS,
+    AssignmentChoice,
+    Bisection,
+    BisectionCut,
+    bisection_labels,
+    choose_assignment,
+    kmeans_labels,
+    qr_concentration,
+    qr_labels,
+    recursive_bisection,
+)
+from ._constraints import (
+    Contraction,
+    Enforcement,
+    ResolvedConstraints,
+    ZoneConstraints,
+    constraint_violations,
+    contract_links,
+    enforce_constraints,
+)
+from ._count import ZoneCount, choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
+from ._refine import Refinement, normalized_cut, refine_boundary
 from ._sweep import SweepCut, sweep_cut
-from ._zoning import ComponentSolve, Zoning, find_zones, number_by_size
+from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
+from ._zoning import (
+    ASSIGNMENTS,
+    OPERATOR_KINDS,
+    TREE_TREATMENTS,
+    ComponentSolve,
+    Zoning,
+    find_zones,
+    number_by_size,
+)
 
 __all__ = [
+    "ASSIGNMENTS",
+    "ASSIGN_METHODS",
     "KMEANS_RESTARTS",
+    "OPERATOR_KINDS",
+    "TREE_TREATMENTS",
+    "AssignmentChoice",
+    "Bisection",
+    "BisectionCut",
     "ComponentSolve",
+    "Contraction",
+    "Enforcement",
+    "Refinement",
+    "ResolvedConstraints",
     "SweepCut",
+    "TreeSplit",
+    "ZoneConstraints",
+    "ZoneCount",
     "Zoning",
     "allocate_zones",
+    "attach_trees",
+    "bisection_labels",
+    "choose_assignment",
+    "choose_zone_count",
+    "constraint_violations",
+    "contract_links",
+    "core_and_trees",
+    "default_candidates",
+    "enforce_constraints",
     "find_zones",
     "kmeans_labels",
+    "normalized_cut",
     "normalized_rows",
     "number_by_size",
+    "parse_zone_spec",
+    "qr_concentration",
+    "qr_labels",
+    "recursive_bisection",
+    "refine_boundary",
     "sweep_cut",
+    "trees_worth_stripping",
 ]

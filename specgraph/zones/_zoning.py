@@ -1,21 +1,29 @@
-"""``find_zones``: from a network to a zoning with its evidence.
+"""``find_zones``: from a network to a zoning that keeps the user's rules, with its evidence.
 
-Steps for each connected component (a zone never spans two):
+Steps (each a function of its own module, called in this order):
 
-1. share the requested zones among components (:func:`allocate_zones`);
-2. build the component's Laplacian and solve for its ``k_c + 1`` smallest
-   eigenpairs (one more than needed, to read the eigengap after ``k_c``);
-3. embed nodes by the ``k_c`` smallest eigenvectors, rows normalized;
-4. assign zones by k-means;
+1. read the constraints against the network (:class:`ZoneConstraints`);
+2. merge into super-nodes what must stay together: the ends of links that
+   must not be cut, and, when worth it, each dangling tree with the node it
+   hangs from (:mod:`._trees`), so no later step can separate them;
+3. choose the operator and the zone count (``"auto"``: from the eigengaps,
+   cross-checked by the normalized-cut curve, :mod:`._count`);
+4. per connected component: share the zones (:func:`allocate_zones`), solve
+   for the smallest eigenpairs, embed and assign (k-means, pivoted QR or
+   recursive bisection, :mod:`._assign`);
+5. enforce the constraints (connected zones, one source per zone, size bounds,
+   fixed zones; :mod:`._constraints`), then refine the boundary by local moves
+   that lower the normalized cut and keep every constraint (:mod:`._refine`);
+6. expand super-nodes back to nodes, number zones by descending size, and
+   compute the zone table and the boundary links.
 
-then number zones by descending size and compute the zone table and the
-boundary links.
+Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 """
 
 from __future__ import annotations
 
 import logging
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -28,20 +36,47 @@ from ..exceptions import ParameterError
 from ..network import Network
 from ..operators import laplacian
 from ._allocate import allocate_zones
-from ._assign import kmeans_labels
+from ._assign import bisection_labels, choose_assignment, kmeans_labels, qr_labels
+from ._constraints import (
+    ResolvedConstraints,
+    ZoneConstraints,
+    contract_constraints,
+    contract_links,
+    enforce_constraints,
+)
+from ._count import choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
+from ._refine import normalized_cut, refine_boundary
+from ._trees import MIN_TREE_SHARE, core_and_trees, trees_worth_stripping
 
-__all__ = ["ComponentSolve", "Zoning", "find_zones", "number_by_size"]
+__all__ = [
+    "ASSIGNMENTS",
+    "OPERATOR_KINDS",
+    "TREE_TREATMENTS",
+    "ComponentSolve",
+    "Zoning",
+    "find_zones",
+    "number_by_size",
+]
 
 logger = logging.getLogger(__name__)
 
-LAPLACIANS = ("normalized", "random_walk", "combinatorial")
-ASSIGNMENTS = ("kmeans",)
+#: Operators ``find_zones`` can embed with (besides ``"auto"``).
+OPERATOR_KINDS = ("normalized", "random_walk", "combinatorial", "regularized", "bethe_hessian")
+#: Assignment methods (besides ``"auto"``).
+ASSIGNMENTS = ("kmeans", "qr", "bisection")
+#: Treatments of dangling trees (besides ``"auto"``).
+TREE_TREATMENTS = ("attach", "keep")
+
+#: Components with more nodes than this pick the pivoted-QR assignment among
+#: sampled rows (Damle, Minden and Ying's randomized variant): the full
+#: pivoted QR of a 200 x 1,000,000 block took 43 s here.
+QR_SAMPLE_ROWS = 200_000
 
 
 @dataclass(frozen=True, eq=False)
 class ComponentSolve:
-    """The eigen-solve of one connected component."""
+    """The eigen-solve of one connected component (of the merged network)."""
 
     component: int
     nodes: np.ndarray
@@ -69,6 +104,10 @@ class Zoning:
         Whole-zoning figures (:func:`specgraph.diagnostics.overall_scores`).
     parameters : dict
         The options used.
+    decisions : dict
+        Each choice made on the user's behalf or each step that changed the
+        zones: ``{"operator": {...}, "zone_count": {...}, ...}``, every entry
+        with a ``"reason"`` sentence and its figures.
     warnings : tuple of str
         What the user should know (components, raised zone counts...).
     """
@@ -80,6 +119,7 @@ class Zoning:
     solves: tuple[ComponentSolve, ...]
     scores: dict[str, Any]
     parameters: dict[str, Any]
+    decisions: dict[str, dict[str, Any]] = field(default_factory=dict)
     warnings: tuple[str, ...] = field(default=())
 
     @property
@@ -93,7 +133,7 @@ class Zoning:
     def spectrum(self) -> pd.DataFrame:
         """Eigenvalues and scaled residuals of every component solve.
 
-        Columns ``index`` (0 for the trivial pair of the component),
+        Columns ``index`` (0 for the smallest pair of the component),
         ``eigenvalue``, ``residual``, ``component``, ``gap_after`` (distance to
         the next eigenvalue; empty for the last).
         """
@@ -132,9 +172,145 @@ def number_by_size(labels: np.ndarray, weights: np.ndarray) -> np.ndarray:
     return new[compact].astype(np.int64)
 
 
-def _zones_per_component(network: Network, k: int) -> tuple[np.ndarray, list[str]]:
-    labels = network.component_labels
-    c = network.n_components
+# ------------------------------------------------------------------ steps
+@dataclass(frozen=True, eq=False)
+class _Merged:
+    """The network with must-stay-together nodes merged into super-nodes."""
+
+    network: Network
+    groups: np.ndarray
+    rules: ResolvedConstraints
+    sizes: np.ndarray
+
+
+def _tree_pairs(
+    network: Network, rules: ResolvedConstraints, trees: str, k_hint: int
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Pairs (node, root) that merge each dangling tree into the node it hangs from."""
+    none = np.empty((0, 2), dtype=np.int64)
+    if trees == "keep":
+        return none, {"choice": "keep", "reason": "dangling trees zoned like any node (asked)"}
+    split = core_and_trees(network.adjacency)
+    share = float(split.tree_share)
+    figures = {"tree_share": share, "largest_tree": int(split.largest_tree)}
+    if trees == "auto" and not trees_worth_stripping(split, k_hint):
+        reason = (
+            f"dangling trees hold {share:.1%} of the nodes (attached when at least "
+            f"{MIN_TREE_SHARE:.0%}, the core is large enough and no tree needs zones of its own)"
+        )
+        return none, {"choice": "keep", "reason": reason, **figures}
+    outside = np.flatnonzero(~split.core)
+    pairs = np.column_stack([outside, split.root[outside]]).astype(np.int64)
+    groups = contract_links(network.adjacency, pairs).groups
+    problem = _tree_conflict(groups, rules)
+    if problem:
+        return none, {"choice": "keep", "reason": f"dangling trees kept: {problem}", **figures}
+    reason = (
+        f"dangling trees ({share:.1%} of the nodes) zoned with the node they hang from, "
+        "so that branch eigenvectors cannot make sliver zones"
+    )
+    return pairs, {"choice": "attach", "reason": reason, **figures}
+
+
+def _tree_conflict(groups: np.ndarray, rules: ResolvedConstraints) -> str:
+    """Why merging trees would break a constraint, or ``''``."""
+    g = int(groups.max()) + 1 if groups.size else 0
+    if rules.sources.size and np.bincount(groups[rules.sources], minlength=g).max() > 1:
+        return "one branch holds two sources"
+    assert rules.pinned is not None
+    fixed = np.flatnonzero(rules.pinned >= 0)
+    if fixed.size:
+        pairs = np.unique(np.column_stack([groups[fixed], rules.pinned[fixed]]), axis=0)
+        if np.bincount(pairs[:, 0], minlength=g).max() > 1:
+            return "one branch holds nodes fixed to different zones"
+    if rules.max_size is not None:
+        sizes = np.bincount(groups, weights=rules.sizes, minlength=g)
+        if sizes.max() > rules.max_size:
+            return f"a branch with its root is larger than max_size={rules.max_size:g}"
+    return ""
+
+
+def _merge(network: Network, rules: ResolvedConstraints, pairs: np.ndarray) -> _Merged:
+    """Merge the ends of ``pairs`` (and carry the constraints onto super-nodes)."""
+    contraction = contract_links(network.adjacency, pairs)
+    merged_rules = contract_constraints(contraction, rules)
+    groups = contraction.groups
+    if contraction.n_groups == network.n_nodes:
+        return _Merged(network, groups, merged_rules, rules.sizes)
+    first = np.full(contraction.n_groups, network.n_nodes, dtype=np.int64)
+    np.minimum.at(first, groups, np.arange(network.n_nodes))
+    sizes = contraction.sum_nodes(rules.sizes)
+    work = Network(contraction.adjacency, network.node_ids[first], sizes=sizes)
+    return _Merged(work, groups, merged_rules, sizes)
+
+
+def _slice(result: EigenResult, count: int) -> EigenResult:
+    """The first ``count`` pairs of a result."""
+    return replace(
+        result,
+        values=result.values[:count],
+        vectors=result.vectors[:, :count],
+        residuals=result.residuals[:count],
+    )
+
+
+@dataclass(frozen=True)
+class _SolveOptions:
+    kind: str
+    method: str
+    tol: float
+    maxiter: int | None
+    rng: np.random.Generator
+
+    def solve(self, network: Network, count: int) -> EigenResult:
+        return smallest_eigenpairs(
+            laplacian(network, kind=self.kind),  # type: ignore[arg-type]
+            min(count, network.n_nodes),
+            method=self.method,
+            tol=self.tol,
+            maxiter=self.maxiter,
+            rng=self.rng,
+        )
+
+
+def _choose_count(
+    work: Network, spec: int | str | range, rules: ResolvedConstraints, solver: _SolveOptions
+) -> tuple[int, dict[str, Any], EigenResult | None]:
+    """The zone count and the evidence behind it."""
+    if isinstance(spec, int):
+        return spec, {"choice": spec, "reason": "given"}, None
+    if rules.sources.size and spec == "auto":
+        count = int(rules.sources.size)
+        return count, {"choice": count, "reason": f"one zone per source ({count} sources)"}, None
+    c = work.n_components
+    candidates = (
+        spec if isinstance(spec, range) else default_candidates(work.n_nodes, n_components=c)
+    )
+    if len(candidates) == 0:
+        return c, {"choice": c, "reason": "one zone per connected component (too few nodes)"}, None
+    normalized = replace(solver, kind="normalized")
+    result = normalized.solve(work, max(candidates) + 1)
+    vectors = result.vectors
+
+    def curve(k: int) -> float:
+        labels = qr_labels(vectors[:, :k], k)
+        return normalized_cut(work.adjacency, labels)
+
+    choice = choose_zone_count(
+        result.values, candidates=candidates, n_components=c, ncut_curve=curve
+    )
+    record = {
+        "choice": choice.zones,
+        "confidence": choice.confidence,
+        "reason": choice.reason,
+        "evidence": choice.evidence.to_dict(orient="records"),
+    }
+    return choice.zones, record, result if c == 1 and solver.kind == "normalized" else None
+
+
+def _zones_per_component(work: Network, k: int) -> tuple[np.ndarray, list[str]]:
+    labels = work.component_labels
+    c = work.n_components
     notes = []
     if c > 1:
         notes.append(f"the network has {c} connected components; each is zoned on its own")
@@ -145,47 +321,140 @@ def _zones_per_component(network: Network, k: int) -> tuple[np.ndarray, list[str
         )
         k = c
     nodes = np.bincount(labels, minlength=c)
-    weight = np.bincount(labels, weights=network.node_weights, minlength=c)
+    weight = np.bincount(labels, weights=work.node_weights, minlength=c)
     return allocate_zones(weight, nodes, k), notes
+
+
+def _assign_component(
+    sub: Network, k: int, assign: str, solver: _SolveOptions, known: EigenResult | None
+) -> tuple[np.ndarray, EigenResult, dict[str, Any]]:
+    """Zones ``0..k-1`` of one connected component, its eigen-solve, the method's reason."""
+    eig = _slice(known, k + 1) if known is not None and known.k > k else solver.solve(sub, k + 1)
+    if assign == "auto":
+        if solver.kind in ("normalized", "random_walk"):
+            picked = choose_assignment(
+                eig.values, eig.vectors, k, sample=sub.n_nodes > QR_SAMPLE_ROWS, rng=solver.rng
+            )
+            method, reason = picked.method, picked.reason
+        else:
+            method, reason = "kmeans", f"k-means is the assignment for the {solver.kind} operator"
+    else:
+        method, reason = assign, "asked"
+    vectors = eig.vectors[:, :k]
+    if method == "qr":
+        labels = qr_labels(vectors, k, sample=sub.n_nodes > QR_SAMPLE_ROWS, rng=solver.rng)
+    elif method == "bisection":
+        labels = bisection_labels(
+            sub,
+            k,
+            eigen_method=solver.method,
+            tol=solver.tol,
+            maxiter=solver.maxiter,
+            rng=solver.rng,
+        )
+    elif solver.kind == "bethe_hessian":
+        labels = kmeans_labels(vectors, k, solver.rng)
+    else:
+        labels = kmeans_labels(normalized_rows(vectors), k, solver.rng)
+    return np.asarray(labels, dtype=np.int64), eig, {"choice": method, "reason": reason}
+
+
+def _operator_choice(operator: str, merged_trees: bool) -> tuple[str, dict[str, Any]]:
+    if operator != "auto":
+        return operator, {"choice": operator, "reason": "asked"}
+    reason = (
+        "the normalized Laplacian: its small eigenvalues bound the conductance of the best "
+        "zones (Cheeger); "
+        + (
+            "with dangling trees attached it no longer localizes on branches"
+            if merged_trees
+            else "the network has few dangling trees, so it does not localize on branches"
+        )
+    )
+    return "normalized", {"choice": "normalized", "reason": reason}
+
+
+def _check_spec(zones: Any, n: int) -> int | str | range:
+    if isinstance(zones, str):
+        spec = parse_zone_spec(zones)
+    elif isinstance(zones, range):
+        spec = zones
+        if len(spec) == 0 or spec.step != 1 or spec.start < 2:
+            raise ParameterError(
+                f"zones as a range must be consecutive counts from 2 up; got {zones!r}."
+            )
+    else:
+        spec = check_int(zones, "zones", minimum=1, maximum=max(n, 1))
+    if isinstance(spec, range) and spec.start > n:
+        raise ParameterError(f"zones range must start at most at n_nodes={n}; got {zones!r}.")
+    if isinstance(spec, range):
+        spec = range(spec.start, min(spec.stop, n + 1))
+    return spec
 
 
 def find_zones(
     network: Network,
-    zones: int,
+    zones: int | str | range = "auto",
     *,
-    laplacian_kind: str = "normalized",
-    assign: str = "kmeans",
+    operator: str = "auto",
+    assign: str = "auto",
+    trees: str = "auto",
+    constraints: ZoneConstraints | None = None,
+    refine: bool = True,
     eigen_method: str = "auto",
     tol: float = DEFAULT_TOL,
     maxiter: int | None = None,
     rng: Any = None,
 ) -> Zoning:
-    """Split a network into ``zones`` zones by spectral clustering.
+    """Split a network into well-connected zones that keep the given constraints.
 
     Parameters
     ----------
     network : Network
-    zones : int
-        Number of zones, ``1 <= zones <= n_nodes``. Raised (with a warning) to
-        the number of connected components when smaller.
+    zones : int, 'auto' or range, default='auto'
+        Number of zones. ``'auto'`` reads it from the eigengaps of the
+        normalized Laplacian (:func:`choose_zone_count`), choosing among
+        ``2..min(50, n/2)``; a ``range`` (e.g. ``range(8, 21)``) chooses
+        within it. With sources and ``'auto'``, one zone per source. An
+        int below the number of connected components is raised to it (with
+        a warning); constraints may merge or split zones (with a note).
 
     Returns
     -------
     Zoning
+        With :attr:`Zoning.decisions` recording every automatic choice.
 
     Raises
     ------
     ParameterError
         For an option outside its domain.
+    ConstraintError
+        When a constraint cannot be met (the message says which and why).
     ConvergenceError
         When an eigen-solve misses ``tol``; no zoning is returned.
 
     Other Parameters
     ----------------
-    laplacian_kind : {'normalized', 'random_walk', 'combinatorial'}, default='normalized'
-        Operator whose eigenvectors embed the nodes.
-    assign : {'kmeans'}, default='kmeans'
-        How embedded nodes become zones.
+    operator : {'auto', 'normalized', 'random_walk', 'combinatorial', 'regularized', \
+'bethe_hessian'}, default='auto'
+        Operator whose smallest eigenvectors embed the nodes
+        (:func:`specgraph.laplacian`). ``'auto'`` is ``'normalized'``, with
+        dangling trees attached when they are many (see ``trees``).
+    assign : {'auto', 'kmeans', 'qr', 'bisection'}, default='auto'
+        How embedded nodes become zones: k-means on normalized rows (Ng,
+        Jordan and Weiss 2001), the pivoted-QR assignment (Damle, Minden and
+        Ying 2019), or recursive Fiedler sweep cuts (each with the Cheeger
+        guarantee). ``'auto'``: :func:`choose_assignment`.
+    trees : {'auto', 'attach', 'keep'}, default='auto'
+        ``'attach'`` zones the network without its dangling trees and gives
+        each tree the zone of the node it hangs from; ``'auto'`` does so when
+        :func:`trees_worth_stripping` says it is worth it.
+    constraints : ZoneConstraints, optional
+        Size bounds, sources, links that must not be cut, fixed zones, and
+        connectivity (default: every zone connected, nothing else).
+    refine : bool, default=True
+        Improve the boundary by local moves that lower the normalized cut
+        and keep every constraint (:func:`refine_boundary`).
     eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
         See :func:`specgraph.smallest_eigenpairs`.
     tol : float, default=1e-6
@@ -193,12 +462,11 @@ def find_zones(
     maxiter : int, optional
         Iteration cap of iterative eigen-solvers.
     rng : None, int or numpy.random.Generator
-        Seeds start vectors and k-means.
+        Seeds start vectors, k-means and tie-breaks.
 
     Notes
     -----
-    This is normalized spectral clustering in the form of Ng, Jordan and
-    Weiss (NIPS 2001) per connected component; see :mod:`specgraph.zones`.
+    The steps are listed in the module docstring of :mod:`specgraph.zones`.
 
     Examples
     --------
@@ -209,36 +477,76 @@ def find_zones(
     >>> zoning.boundary[["source", "target"]].to_numpy().tolist()
     [['4', '5']]
     """
-    zones = check_int(zones, "zones", minimum=1, maximum=max(network.n_nodes, 1))
-    check_choice(laplacian_kind, "laplacian_kind", LAPLACIANS)
-    check_choice(assign, "assign", ASSIGNMENTS)
-    check_choice(eigen_method, "eigen_method", METHODS)
     if network.n_nodes == 0:
         raise ParameterError("network must have at least one node; got an empty network.")
+    spec = _check_spec(zones, network.n_nodes)
+    check_choice(operator, "operator", ("auto", *OPERATOR_KINDS))
+    check_choice(assign, "assign", ("auto", *ASSIGNMENTS))
+    check_choice(trees, "trees", ("auto", *TREE_TREATMENTS))
+    check_choice(eigen_method, "eigen_method", METHODS)
+    if not isinstance(refine, bool):
+        raise ParameterError(f"refine must be True or False; got {refine!r}.")
     generator = check_rng(rng)
-    per_component, notes = _zones_per_component(network, zones)
-    raw = np.zeros(network.n_nodes, dtype=np.int64)
-    solves = []
+    rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
+    decisions: dict[str, dict[str, Any]] = {}
+
+    k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
+    tree_pairs, decisions["trees"] = _tree_pairs(network, rules, trees, k_hint)
+    merged = _merge(network, rules, np.concatenate([rules.keep_pairs, tree_pairs]))
+    work = merged.network
+    kind, decisions["operator"] = _operator_choice(operator, tree_pairs.size > 0)
+    solver = _SolveOptions(kind, eigen_method, tol, maxiter, generator)
+    k, decisions["zone_count"], known = _choose_count(work, spec, merged.rules, solver)
+    per_component, notes = _zones_per_component(work, min(k, work.n_nodes))
+
+    raw = np.zeros(work.n_nodes, dtype=np.int64)
+    solves, methods = [], []
     offset = 0
     for comp, k_c in enumerate(per_component.tolist()):
-        rows = np.flatnonzero(network.component_labels == comp)
+        rows = np.flatnonzero(work.component_labels == comp)
         if k_c > 1:
-            sub = network.subnetwork(rows)
-            eig = smallest_eigenpairs(
-                laplacian(sub, kind=laplacian_kind),  # type: ignore[arg-type]
-                min(k_c + 1, rows.size),
-                method=eigen_method,
-                tol=tol,
-                maxiter=maxiter,
-                rng=generator,
-            )
+            sub = work if rows.size == work.n_nodes else work.subnetwork(rows)
+            local, eig, method = _assign_component(sub, k_c, assign, solver, known)
             solves.append(ComponentSolve(comp, rows, k_c, eig))
-            local = kmeans_labels(normalized_rows(eig.vectors[:, :k_c]), k_c, generator)
+            methods.append(method)
             raw[rows] = local + offset
         else:
             raw[rows] = offset
         offset += k_c
-    labels = number_by_size(raw, network.node_weights)
+    if methods:
+        decisions["assign"] = _summarize_methods(methods)
+
+    enforced = enforce_constraints(work.adjacency, raw, merged.rules, rng=generator)
+    labels_w = enforced.labels
+    decisions["constraints"] = {
+        "reason": "; ".join(enforced.notes) if enforced.notes else "no change was needed",
+        "notes": list(enforced.notes),
+        "moved": enforced.moved,
+    }
+    if refine:
+        assert merged.rules.pinned is not None
+        movable = np.asarray(merged.rules.pinned < 0, dtype=bool)
+        movable[merged.rules.sources] = False
+        refined = refine_boundary(
+            work.adjacency,
+            labels_w,
+            sizes=merged.sizes,
+            min_size=merged.rules.min_size,
+            max_size=merged.rules.max_size,
+            movable=movable,
+            rng=generator,
+        )
+        labels_w = refined.labels
+        decisions["refinement"] = {
+            "reason": (
+                f"boundary moves lowered the normalized cut from {refined.ncut_before:.4g} "
+                f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} passes)"
+            ),
+            "ncut_before": refined.ncut_before,
+            "ncut_after": refined.ncut_after,
+            "moves": refined.moves,
+        }
+    labels = number_by_size(labels_w[merged.groups], network.node_weights)
     table = zone_table(network, labels)
     return Zoning(
         network=network,
@@ -248,12 +556,40 @@ def find_zones(
         solves=tuple(solves),
         scores=overall_scores(table),
         parameters={
-            "zones": zones,
-            "laplacian": laplacian_kind,
+            "zones": spec if not isinstance(spec, range) else f"{spec.start}:{spec.stop - 1}",
+            "operator": operator,
             "assign": assign,
+            "trees": trees,
+            "refine": refine,
+            "constraints": _constraint_record(rules),
             "eigen_method": eigen_method,
             "tol": tol,
             "maxiter": maxiter,
         },
+        decisions=decisions,
         warnings=tuple(notes),
     )
+
+
+def _summarize_methods(methods: list[dict[str, Any]]) -> dict[str, Any]:
+    if len(methods) == 1:
+        return methods[0]
+    names = sorted({m["choice"] for m in methods})
+    return {
+        "choice": names[0] if len(names) == 1 else "per component",
+        "reason": "; ".join(
+            f"component {i}: {m['choice']} ({m['reason']})" for i, m in enumerate(methods)
+        ),
+    }
+
+
+def _constraint_record(rules: ResolvedConstraints) -> dict[str, Any]:
+    assert rules.pinned is not None
+    return {
+        "min_size": rules.min_size,
+        "max_size": rules.max_size,
+        "sources": int(rules.sources.size),
+        "keep_links": len(rules.keep_pairs),
+        "fixed_nodes": int(np.count_nonzero(rules.pinned >= 0)),
+        "connected": rules.connected,
+    }
