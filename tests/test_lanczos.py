@@ -353,3 +353,17 @@ def test_through_the_dispatcher() -> None:
     assert result.method == "lanczos"
     reference = la.eigvalsh(op.matrix.toarray(), subset_by_index=[0, 7])
     np.testing.assert_allclose(result.values, reference, rtol=0, atol=1e-9)
+
+
+@pytest.mark.parametrize("method", ["lanczos", "lanczos_flip"])
+@pytest.mark.parametrize("n", [3, 4, 5, 7])
+def test_tiny_problems_exhaust_the_krylov_space(method: str, n: int) -> None:
+    # Below about 20 nodes the Lanczos basis spans the whole space: there is
+    # no new direction after a breakdown, and the pairs must still be exact
+    # (reference: scipy.linalg.eigh on the dense matrix).
+    for net in (gallery.path(n), gallery.ring(n), gallery.star(n - 1)):
+        op = laplacian(net)
+        result = solve(op, n, method=method, rng=0)
+        reference = la.eigh(op.matrix.toarray(), eigvals_only=True)
+        np.testing.assert_allclose(result.values, reference, atol=1e-9)
+        assert result.converged

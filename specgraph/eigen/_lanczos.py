@@ -78,6 +78,10 @@ from .._validation import check_choice
 from ._problem import Problem, Solution
 from ._subspace import deflate, rayleigh_ritz
 
+#: A fresh start vector that loses all but this fraction of its norm to the
+#: basis means the basis spans the whole space (Krylov space exhausted).
+EXHAUSTED = 1e-8
+
 __all__ = ["TRANSFORMS", "solve_lanczos", "solve_lanczos_flip"]
 
 logger = logging.getLogger(__name__)
@@ -245,10 +249,18 @@ class _Lanczos:
         return vector, first
 
     def fresh(self, size: int) -> np.ndarray:
-        """A random unit vector orthogonal to the locked and ``size`` basis columns."""
+        """A random unit vector orthogonal to the locked and ``size`` basis columns.
+
+        When those columns already span the whole space (tiny problems), no
+        such vector exists: the zero vector is returned, with coupling 0, and
+        the Ritz pairs are exact.
+        """
         start = self.rng.standard_normal((self.basis.shape[0],))
         vector, _ = self.project_out(start, size)
-        return vector / _norm(vector)
+        norm = _norm(vector)
+        if norm <= EXHAUSTED * _norm(start):
+            return np.zeros_like(vector)
+        return vector / norm
 
     def step(self, j: int) -> bool:
         """Lanczos step ``j``: diagonal entry ``j``, basis column ``j + 1``; True on breakdown."""
