@@ -335,6 +335,7 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
 def _zone_and_write(
     network: Network, inputs: list[dict[str, Any]], args: argparse.Namespace, argv: list[str]
 ) -> dict[str, Any]:
+    constraints = _constraints(network, args)  # reads (and checks) the rule files first
     for option in ("supply_list", "keep_list", "fixed"):
         path = getattr(args, option, None)
         if path:
@@ -346,7 +347,7 @@ def _zone_and_write(
         operator=args.operator,
         assign=args.assign,
         trees=args.trees,
-        constraints=_constraints(network, args),
+        constraints=constraints,
         refine=not args.no_refine,
         tol=args.tol,
         rng=args.seed,

@@ -286,8 +286,12 @@ def _choose_count(
     candidates = (
         spec if isinstance(spec, range) else default_candidates(work.n_nodes, n_components=c)
     )
+    candidates, bounded = _counts_within_bounds(candidates, float(rules.sizes.sum()), rules)
     if len(candidates) == 0:
         return c, {"choice": c, "reason": "one zone per connected component (too few nodes)"}, None
+    if len(candidates) == 1:
+        only = candidates.start
+        return only, {"choice": only, "reason": f"the only count {bounded}"}, None
     normalized = replace(solver, kind="normalized")
     result = normalized.solve(work, max(candidates) + 1)
     vectors = result.vectors
@@ -302,10 +306,38 @@ def _choose_count(
     record = {
         "choice": choice.zones,
         "confidence": choice.confidence,
-        "reason": choice.reason,
+        "reason": choice.reason + (f" (counts {bounded})" if bounded else ""),
         "evidence": choice.evidence.to_dict(orient="records"),
     }
     return choice.zones, record, result if c == 1 and solver.kind == "normalized" else None
+
+
+def _counts_within_bounds(
+    candidates: range, total: float, rules: ResolvedConstraints
+) -> tuple[range, str]:
+    """Candidate counts that the size bounds allow, and a phrase saying which bounds.
+
+    ``k`` zones of sizes within ``[min_size, max_size]`` need
+    ``total / max_size <= k <= total / min_size``.
+    """
+    low, high = candidates.start, candidates.stop
+    said = []
+    if rules.max_size is not None:
+        fewest = int(np.ceil(total / rules.max_size - 1e-9))
+        if fewest > low:
+            low = fewest
+            said.append(f"at least {fewest} for max_size={rules.max_size:g}")
+    if rules.min_size is not None:
+        most = int(np.floor(total / rules.min_size + 1e-9))
+        if most + 1 < high:
+            high = most + 1
+            said.append(f"at most {most} for min_size={rules.min_size:g}")
+    if low >= high and said:
+        # The bounds leave no count in the range: keep the nearest and let the
+        # constraint step say what cannot hold.
+        nearest = min(max(low, candidates.start), candidates.stop - 1)
+        return range(nearest, nearest + 1), "; ".join(said) + " leave no count in the range"
+    return range(low, max(low, high)), "; ".join(said)
 
 
 def _zones_per_component(work: Network, k: int) -> tuple[np.ndarray, list[str]]:
