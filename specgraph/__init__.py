@@ -15,7 +15,7 @@ traffic model and defer to local codes and licensed engineers before acting.
 from importlib.metadata import PackageNotFoundError, version
 
 from . import gallery
-from .diagnostics import boundary_links, zone_table
+from .diagnostics import boundary_links, compare, score, stability, zone_table
 from .eigen import EigenResult, smallest_eigenpairs
 from .exceptions import (
     ConstraintError,
@@ -46,10 +46,13 @@ __all__ = [
     "Zoning",
     "__version__",
     "boundary_links",
+    "compare",
     "find_zones",
     "gallery",
     "laplacian",
     "read_edges",
+    "score",
     "smallest_eigenpairs",
+    "stability",
     "zone_table",
 ]

@@ -20,10 +20,18 @@ from collections.abc import Iterator, Sequence
 from typing import Any
 
 from . import __version__
-from .diagnostics import suggest_zone_counts
+from .diagnostics import (
+    DEFAULT_REPEATS,
+    DEFAULT_SPREAD,
+    compare_frames,
+    labels_from_mapping,
+    score,
+    stability,
+    suggest_zone_counts,
+)
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
 from .exceptions import ConvergenceError, ParameterError, SpecgraphError
-from .export import CAUTION, file_checksum, run_record, write_outputs, zoning_tables
+from .export import CAUTION, file_checksum, jsonable, run_record, write_outputs, zoning_tables
 from .io import flagged_links, read_edges, read_link_list, read_node_list, read_zone_file
 from .network import Network
 from .operators import laplacian
@@ -260,6 +268,83 @@ def build_parser() -> argparse.ArgumentParser:
     _add_solving(spectrum, auto=False)
     _add_common(spectrum, out="specgraph-spectrum")
 
+    score = commands.add_parser(
+        "score",
+        help="figures of an existing zoning: conductance, normalized cut, modularity, outliers",
+        description="Score a zoning, whoever made it (node,zone table), on a network: per-zone "
+        "and overall figures, outlier zones, and the eigengap at its zone count.",
+        epilog=_caution_epilog(
+            "  specgraph score pipes.csv districts.csv --weight length_m --distance\n"
+            "  specgraph score pipes.csv districts.csv --nodes junctions.csv "
+            "--size-col connections --supply-col inlet"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(score)
+    score.add_argument("zones_file", metavar="ZONES_CSV", help="node,zone table to score")
+    score.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
+    score.add_argument(
+        "--supply-col", metavar="COL", help="yes/no column of the node table marking supply points"
+    )
+    score.add_argument(
+        "--supply-list", metavar="FILE", help="table listing supply points (--node-col column)"
+    )
+    score.add_argument(
+        "--no-eigengap",
+        action="store_true",
+        help="skip the eigen-solve for the eigengap at the zone count (large networks)",
+    )
+    score.add_argument("--tol", type=_positive_float, default=DEFAULT_TOL, help=argparse.SUPPRESS)
+    score.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
+    _add_common(score, out="specgraph-score")
+
+    compare = commands.add_parser(
+        "compare",
+        help="agreement of two zonings: ARI, NMI, variation of information, splits and merges",
+        description="Compare two node,zone tables: adjusted Rand index, normalized mutual "
+        "information, variation of information, the overlap of every pair of zones, and "
+        "which zones split or merge.",
+        epilog=_caution_epilog("  specgraph compare current-districts.csv proposal/zones.csv"),
+        formatter_class=raw,
+    )
+    compare.add_argument("zones_a", metavar="ZONES_A", help="first node,zone table")
+    compare.add_argument("zones_b", metavar="ZONES_B", help="second node,zone table")
+    compare.add_argument("--node-col", default="node", metavar="COL", help="node id column")
+    compare.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
+    _add_common(compare, out="specgraph-compare")
+
+    stable = commands.add_parser(
+        "stability",
+        help="how much the zones move under other seeds and slightly perturbed weights",
+        description="Zone the network repeatedly (other seeds; link weights perturbed by "
+        "log-normal noise) and report each node's confidence, unstable zones, and whether the "
+        "eigengap is large enough for the zone count (Davis-Kahan).",
+        epilog=_caution_epilog(
+            "  specgraph stability pipes.csv --zones 12 --repeats 5 --spread 0.1"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(stable)
+    _add_zoning(stable, reading=True)
+    stable.add_argument(
+        "--repeats",
+        type=_positive_int,
+        default=DEFAULT_REPEATS,
+        metavar="N",
+        help="runs with other seeds, and as many with perturbed weights "
+        f"(default {DEFAULT_REPEATS})",
+    )
+    stable.add_argument(
+        "--spread",
+        type=_positive_float,
+        default=DEFAULT_SPREAD,
+        metavar="S",
+        help="standard deviation of the log-normal weight noise (default "
+        f"{DEFAULT_SPREAD}: about {DEFAULT_SPREAD:.0%} per link)",
+    )
+    _add_solving(stable, auto=True)
+    _add_common(stable, out="specgraph-stability")
+
     demo = commands.add_parser(
         "demo",
         help="zone the bundled demo network (the invented town of Quillmere)",
@@ -437,7 +522,180 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     return {"out": str(args.out), "eigenvalues": result.values.tolist(), "suggested": suggested}
 
 
-_COMMANDS = {"zones": _cmd_zones, "spectrum": _cmd_spectrum, "demo": _cmd_demo}
+def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    import pandas as pd
+
+    network, inputs = _read(args)
+    mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
+    labels, coverage = labels_from_mapping(network, mapping, path=args.zones_file)
+    sources: tuple[str, ...] = ()
+    if args.supply_col:
+        sources += read_node_list(args.nodes, node=args.node_col, flag=args.supply_col)
+    if args.supply_list:
+        sources += read_node_list(args.supply_list, node=args.node_col)
+    inputs.append(
+        {"role": "zones", "path": args.zones_file, "checksum": file_checksum(args.zones_file)}
+    )
+    card = score(
+        network,
+        labels,
+        sources=tuple(dict.fromkeys(sources)) if sources else None,
+        eigengap=not args.no_eigengap,
+        rng=args.seed,
+        tol=args.tol,
+    )
+    if coverage.unassigned:
+        logger.warning(
+            "warning: %d nodes of the network are in no zone of %s (for example %s); they are "
+            "scored as outside every zone",
+            coverage.unassigned,
+            args.zones_file,
+            ", ".join(coverage.unassigned_examples),
+        )
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": inputs,
+        "coverage": coverage.as_dict(),
+        "overall": card.overall,
+        "eigenvalues": card.eigenvalues,
+        "caution": CAUTION,
+    }
+    files: dict[str, Any] = {"zone_scores.csv": card.zones, "run.json": jsonable(record)}
+    if coverage.unassigned:
+        files["unassigned.csv"] = pd.DataFrame({"node": list(card.unassigned)})
+    written = write_outputs(args.out, files)
+    overall = card.overall
+    logger.info(
+        "%d zones, normalized cut %.4g, modularity %.4g, %d flagged as outliers, "
+        "all zones connected: %s",
+        overall["zones"],
+        overall["normalized_cut"],
+        overall["modularity"],
+        overall["flagged_zones"],
+        "yes" if overall["all_connected"] else "NO",
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "overall": jsonable(overall), "coverage": coverage.as_dict()}
+
+
+def _cmd_compare(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    first = read_zone_file(args.zones_a, node=args.node_col, zone=args.zone_col)
+    second = read_zone_file(args.zones_b, node=args.node_col, zone=args.zone_col)
+    result = compare_frames(first, second)
+    summary = result.summary()
+    for side, count, examples in (
+        (args.zones_a, result.only_in_a, result.examples_only_in_a),
+        (args.zones_b, result.only_in_b, result.examples_only_in_b),
+    ):
+        if count:
+            logger.warning(
+                "warning: %d nodes are only in %s (for example %s); compared on the %d common "
+                "nodes",
+                count,
+                side,
+                ", ".join(examples),
+                result.nodes_compared,
+            )
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": [
+            {"role": role, "path": path, "checksum": file_checksum(path)}
+            for role, path in (("zones_a", args.zones_a), ("zones_b", args.zones_b))
+        ],
+        "summary": summary,
+    }
+    written = write_outputs(
+        args.out,
+        {
+            "overlap.csv": result.overlap,
+            "matched.csv": result.matched,
+            "splits.csv": result.splits,
+            "merges.csv": result.merges,
+            "run.json": jsonable(record),
+        },
+    )
+    logger.info(
+        "adjusted Rand %.4f, NMI %.4f, variation of information %.4f nats; %d zones of A "
+        "split, %d zones of B merge several of A",
+        result.adjusted_rand,
+        result.nmi,
+        result.variation_of_information,
+        len(result.splits),
+        len(result.merges),
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "summary": jsonable(summary)}
+
+
+def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    constraints = _constraints(network, args)
+    options = {
+        "operator": args.operator,
+        "assign": args.assign,
+        "trees": args.trees,
+        "constraints": constraints,
+        "refine": not args.no_refine,
+        "tol": args.tol,
+    }
+    logger.info(
+        "zoning %d times (1 reference, %d other seeds, %d with weights perturbed by %.0f%%)",
+        2 * args.repeats + 1,
+        args.repeats,
+        args.repeats,
+        100 * args.spread,
+    )
+    result = stability(
+        network,
+        args.zones,
+        repeats=args.repeats,
+        spread=args.spread,
+        zone_options=options,
+        rng=args.seed,
+    )
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": inputs,
+        "overall": result.overall,
+        "eigengap_checks": result.bounds.to_dict(orient="records"),
+        "warnings": list(result.warnings),
+        "caution": CAUTION,
+    }
+    written = write_outputs(
+        args.out,
+        {
+            "node_confidence.csv": result.nodes,
+            "zone_stability.csv": result.zones,
+            "runs.csv": result.runs,
+            "run.json": jsonable(record),
+        },
+    )
+    for message in result.warnings:
+        logger.warning("warning: %s", message)
+    overall = result.overall
+    logger.info(
+        "mean node confidence %.3f; adjusted Rand against the reference: seeds %.3f, "
+        "perturbed weights %.3f; %d unstable zones",
+        overall["mean_confidence"],
+        overall["seed_ari_mean"],
+        overall["perturbed_ari_mean"],
+        len(overall["unstable_zones"]),
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "overall": jsonable(overall), "warnings": list(result.warnings)}
+
+
+_COMMANDS = {
+    "zones": _cmd_zones,
+    "spectrum": _cmd_spectrum,
+    "score": _cmd_score,
+    "compare": _cmd_compare,
+    "stability": _cmd_stability,
+    "demo": _cmd_demo,
+}
 
 
 @contextlib.contextmanager
@@ -474,7 +732,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
     """Run one command; map every failure to its exit code and a one-line message."""
-    if args.command in ("zones", "demo"):
+    if args.command in ("zones", "demo", "score", "stability"):
         logger.info("caution: %s", CAUTION)
     try:
         summary = _COMMANDS[args.command](args, argv)

@@ -32,6 +32,7 @@ from .zones import Zoning
 __all__ = [
     "CAUTION",
     "file_checksum",
+    "jsonable",
     "library_versions",
     "run_record",
     "write_outputs",
@@ -88,15 +89,16 @@ def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
     }
 
 
-def _jsonable(value: Any) -> Any:
+def jsonable(value: Any) -> Any:
+    """``value`` with numpy scalars and arrays as Python values and non-finite floats as None."""
     if isinstance(value, Mapping):
-        return {str(k): _jsonable(v) for k, v in value.items()}
+        return {str(k): jsonable(v) for k, v in value.items()}
     if isinstance(value, list | tuple):
-        return [_jsonable(v) for v in value]
+        return [jsonable(v) for v in value]
     if isinstance(value, np.generic):
         return value.item()
     if isinstance(value, np.ndarray):
-        return [_jsonable(v) for v in value.tolist()]
+        return [jsonable(v) for v in value.tolist()]
     if isinstance(value, float) and not np.isfinite(value):
         return None
     return value
@@ -151,7 +153,7 @@ def run_record(
     options and seed give the same bytes wherever and whenever they run.
     """
     net = zoning.network
-    return _jsonable(
+    return jsonable(
         {
             "specgraph_run": 1,
             "command": command,
