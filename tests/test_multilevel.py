@@ -175,3 +175,15 @@ def test_iteration_cap_gives_honest_partial_pairs(road) -> None:
     partial = info.value.partial
     raw = np.linalg.norm(op.matrix @ partial.vectors - partial.vectors * partial.values, axis=0)
     np.testing.assert_allclose(partial.residuals, raw / op.norm_bound, rtol=1e-10, atol=1e-15)
+
+
+def test_many_vectors_keep_enough_coarse_nodes() -> None:
+    # 80 pairs carry a block of 120 vectors: every level must keep more nodes than
+    # that, or the coarsest dense solve cannot give the pairs (it once crashed when
+    # a zoning into 161 zones reached a 56-node coarsest level). Reference: eigh.
+    net = gallery.two_zone(600, p_in=0.02, links_between=40, seed=3)
+    op = laplacian(net)
+    result = smallest_eigenpairs(op, 80, method="multilevel", rng=0)
+    reference = la.eigh(op.matrix.toarray(), eigvals_only=True, subset_by_index=[0, 79])
+    np.testing.assert_allclose(result.values, reference, atol=1e-6)
+    assert result.converged

@@ -35,6 +35,10 @@ __all__ = ["Hierarchy", "Level", "build_hierarchy"]
 #: (a dense eigen-solve of 500 nodes takes tens of milliseconds).
 COARSEST_SIZE = 500
 
+#: Every level keeps at least this many nodes per vector of the block the
+#: cascade carries, so that the coarsest dense solve has pairs to spare.
+COARSEST_PER_VECTOR = 2
+
 #: Stop when a level keeps more than this share of its nodes (coarsening stalls).
 STALL_RATIO = 0.7
 
@@ -241,13 +245,21 @@ def _smoother(matrix: sp.csr_array) -> np.ndarray:
     return damped.astype(CYCLE_DTYPE)
 
 
-def build_hierarchy(matrix: sp.csr_array, null: np.ndarray) -> Hierarchy:
-    """Coarsen ``matrix`` (symmetric PSD, one-dimensional null space ``null``) to a dense core."""
+def build_hierarchy(matrix: sp.csr_array, null: np.ndarray, *, width: int = 0) -> Hierarchy:
+    """Coarsen ``matrix`` (symmetric PSD, one-dimensional null space ``null``) to a dense core.
+
+    ``width`` is the block of vectors the cascade carries: no level may have
+    fewer than ``COARSEST_PER_VECTOR * width`` nodes, or its dense solve could
+    not give that many pairs (a zoning into 161 zones asks for 241 vectors).
+    """
     levels = []
     current, z = sp.csr_array(matrix), null
-    while current.shape[0] > COARSEST_SIZE:
+    floor = max(COARSEST_SIZE, COARSEST_PER_VECTOR * width)
+    while current.shape[0] > floor:
         level, coarse, coarse_null = _coarsen(current, z)
         if coarse.shape[0] > STALL_RATIO * current.shape[0]:
+            break
+        if coarse.shape[0] < COARSEST_PER_VECTOR * width:
             break
         levels.append(level)
         current, z = coarse, coarse_null

@@ -103,9 +103,9 @@ def _iterate(
 def solve_multilevel(problem: Problem) -> Solution:
     """Smallest nontrivial pairs of a large sparse component by the multilevel cascade."""
     matrix, null, order = _reordered(problem)
-    hierarchy = build_hierarchy(matrix, null)
-    logger.debug("multilevel: levels %s", hierarchy.sizes)
     width = min(problem.count + max(MIN_GUARD, problem.count // 2), matrix.shape[0] - 1)
+    hierarchy = build_hierarchy(matrix, null, width=width)
+    logger.debug("multilevel: levels %s", hierarchy.sizes)
     start, iterations, matvecs = _cascade(hierarchy, problem, width)
     outcome = _iterate(
         hierarchy, 0, start, hierarchy.levels[0].null, problem, problem.maxiter or DEFAULT_MAXITER
