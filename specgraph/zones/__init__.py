@@ -20,6 +20,7 @@ from ._assign import (
     qr_labels,
     recursive_bisection,
 )
+from ._balance import BALANCE_ROUNDS, Balance, balance_sizes
 from ._constraints import (
     Contraction,
     Enforcement,
@@ -47,10 +48,12 @@ from ._zoning import (
 __all__ = [
     "ASSIGNMENTS",
     "ASSIGN_METHODS",
+    "BALANCE_ROUNDS",
     "KMEANS_RESTARTS",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
     "AssignmentChoice",
+    "Balance",
     "Bisection",
     "BisectionCut",
     "ComponentSolve",
@@ -65,6 +68,7 @@ __all__ = [
     "Zoning",
     "allocate_zones",
     "attach_trees",
+    "balance_sizes",
     "bisection_labels",
     "choose_assignment",
     "choose_zone_count",

@@ -20,9 +20,15 @@ and why. The steps, each a small function in :data:`_STEPS`:
    shortest-path cells of their sources, zones without a source are merged
    into a neighbour;
 4. size bounds: zones above ``max_size`` are bisected along the Fiedler vector
-   with a sweep cut restricted to admissible sizes, zones below ``min_size``
-   are merged into a neighbour;
-5. a last repair and the final audit :func:`constraint_violations`, which must
+   with a sweep cut restricted to admissible sizes (not when sources are
+   given: a part would lack one), zones below ``min_size`` are merged into a
+   neighbour when the union fits ``max_size``;
+5. balancing: zones still outside the bounds (sources present, or no merge
+   fits) are brought within them by moving boundary nodes between adjacent
+   zones, planned as a minimum-cost flow on the zone graph
+   (:func:`~specgraph.zones._balance.balance_sizes`); only when that fails too
+   is a size bound refused, with the transfers that were blocked and why;
+6. a last repair and the final audit :func:`constraint_violations`, which must
    come back empty.
 
 Everything runs on whole-graph arrays with scipy.sparse.csgraph (connected
@@ -49,6 +55,7 @@ from scipy.sparse.csgraph import breadth_first_order, connected_components, dijk
 from .._validation import check_choice, check_int, check_positive_float, check_rng
 from ..exceptions import ConstraintError, ConvergenceError, ParameterError
 from ..network import Network
+from ._balance import SIZE_RTOL, Balance, balance_sizes
 
 __all__ = [
     "DIRECT_COUNT_FACTOR",
@@ -68,11 +75,6 @@ __all__ = [
 ]
 
 logger = logging.getLogger(__name__)
-
-#: Relative slack when a zone size is compared with a bound: sizes are float
-#: sums of node sizes, and round-off must not turn ``size == max_size`` into a
-#: violation (a few thousand ulps of float64 summation).
-SIZE_RTOL = 1e-9
 
 #: Tolerance of the eigen-solve behind each bisection: only the order of the
 #: nodes along the Fiedler vector matters, not its digits.
@@ -1106,6 +1108,8 @@ class _ZoneGraph:
         pinned = work.pinned >= 0
         self.fixed[labels[pinned]] = work.pinned[pinned]
         self.parent = np.arange(k)
+        self.zone_comp = np.zeros(k, dtype=np.int64)
+        self.zone_comp[labels] = work.comp
         self.links: list[dict[int, float]] = [{} for _ in range(k)]
         za, zb = labels[work.rows], labels[a.indices]
         cross = za != zb
@@ -1182,12 +1186,8 @@ def _split_oversize(work: _Work) -> None:
     over = np.flatnonzero(size > bound * (1 + SIZE_RTOL))
     if not over.size:
         return
-    if work.sources.size:
-        z = int(over[0])
-        raise ConstraintError(
-            f"max_size: {work.zone_name(z)} has size {size[z]:g} > max_size {bound:g}, and "
-            "splitting it would leave a part without a source (every zone must hold exactly one)."
-        )
+    if work.sources.size:  # a part would lack a source: left to _balance_sizes
+        return
     stack, parts = over.tolist(), 0
     while stack:
         zone = stack.pop()
@@ -1302,38 +1302,53 @@ def _fiedler(sub: sp.csr_array, rng: np.random.Generator) -> np.ndarray:
 
 def _merge_undersize(work: _Work) -> None:
     """Merge zones below ``min_size`` into the neighbour sharing most weight,
-    when the union fits ``max_size`` (smallest zones first)."""
+    when the union fits ``max_size`` (smallest zones first).
+
+    A zone with no such neighbour is left to :func:`_balance_sizes`, unless
+    its part of the network holds more zones than ``min_size`` allows
+    (:func:`_zones_to_spare`): then it merges anyway with the neighbour of
+    smallest union, and balancing sheds the excess.
+    """
     bound = work.c.min_size
     if bound is None:
         return
     graph = _ZoneGraph(work)
+    spare = _zones_to_spare(work, graph, bound)
     heap = [(s, z) for z, s in enumerate(graph.size.tolist()) if s < bound * (1 - SIZE_RTOL)]
     heapq.heapify(heap)
-    merged = len(heap)
+    merged = 0
     while heap:
         size, z = heapq.heappop(heap)
         if graph.parent[z] != z or size != graph.size[z]:
             continue
-        options = [
-            (w, -y)
-            for y, w in graph.links[z].items()
-            if graph.compatible(z, y)
-            and _fits(graph, z, y, work.c.max_size)
-            and graph.held[z] + graph.held[y] <= 1
+        allowed = [
+            y
+            for y in graph.links[z]
+            if graph.compatible(z, y) and graph.held[z] + graph.held[y] <= 1
         ]
+        options = [(graph.links[z][y], -y) for y in allowed if _fits(graph, z, y, work.c.max_size)]
+        if not options and spare[graph.zone_comp[z]] > 0 and allowed:
+            options = [(-graph.size[y], -y) for y in allowed]  # least overflow
         if not options:
-            raise ConstraintError(
-                f"min_size: {work.zone_name(z)} has size {size:g} < min_size {bound:g} and "
-                f"cannot merge with a neighbour: {_merge_obstacle(work, graph, z)}."
-            )
+            continue  # left for boundary transfers
         y = -max(options)[1]
         graph.merge(z, y)
+        spare[graph.zone_comp[z]] -= 1
+        merged += 1
         if graph.size[y] < bound * (1 - SIZE_RTOL):
             heapq.heappush(heap, (float(graph.size[y]), y))
     if merged:
         work.labels = graph.relabel(work.labels)
         work.notes.append(f"min_size: {merged} zones below {bound:g} merged into neighbours")
         work.compact()
+
+
+def _zones_to_spare(work: _Work, graph: _ZoneGraph, bound: float) -> np.ndarray:
+    """Per connected component: zones beyond the most that ``min_size`` leaves room for."""
+    total = np.bincount(work.comp, weights=work.sizes, minlength=work.n_comp)
+    zones = np.bincount(graph.zone_comp, minlength=work.n_comp)
+    room = np.floor(total / bound + SIZE_RTOL).astype(np.int64)
+    return np.maximum(zones - np.maximum(room, 1), 0)
 
 
 def _merge_obstacle(work: _Work, graph: _ZoneGraph, z: int) -> str:
@@ -1344,8 +1359,81 @@ def _merge_obstacle(work: _Work, graph: _ZoneGraph, z: int) -> str:
         return "each zone must hold exactly one source"
     if not any(graph.compatible(z, y) for y in near):
         return "its neighbours hold nodes fixed to other labels"
-    union = min(graph.size[z] + graph.size[y] for y in near)
+    union = min(graph.size[z] + graph.size[y] for y in near if graph.compatible(z, y))
     return f"the smallest union with a neighbour has size {union:g} > max_size {work.c.max_size:g}"
+
+
+# ------------------------------------------- step 5: balance by boundary transfers
+def _balance_sizes(work: _Work) -> None:
+    """Bring the zones that splits and merges left outside the size bounds within
+    them by moving boundary nodes between adjacent zones (:func:`balance_sizes`).
+
+    Sources and fixed nodes never move; super-nodes move whole (they are single
+    nodes of the contracted graph); every zone stays connected.
+    """
+    c = work.c
+    if c.min_size is None and c.max_size is None:
+        return
+    before = work.labels.copy()
+    size = work.zone_sizes()
+    outside = _outside_bounds(size, c)
+    if not outside.any():
+        return
+    result = balance_sizes(
+        work.adjacency,
+        before,
+        sizes=work.sizes,
+        min_size=c.min_size,
+        max_size=c.max_size,
+        movable=~work.anchor,
+        connected=c.connected,
+        name=work.zone_name,
+    )
+    if not result.balanced:
+        raise ConstraintError(_balance_failure(work, size, result))
+    work.labels = result.labels
+    nodes = int(work.members[before != result.labels].sum())
+    work.notes.append(
+        f"size bounds: {np.count_nonzero(outside)} zones outside the bounds brought within them by "
+        f"moving {nodes} nodes between neighbouring zones ({result.rounds} rounds of transfers)"
+    )
+
+
+def _outside_bounds(size: np.ndarray, c: ResolvedConstraints) -> np.ndarray:
+    """Per zone: -1 below ``min_size``, +1 above ``max_size``, 0 within."""
+    low = -np.inf if c.min_size is None else c.min_size * (1 - SIZE_RTOL)
+    high = np.inf if c.max_size is None else c.max_size * (1 + SIZE_RTOL)
+    return (size > high).astype(np.int64) - (size < low).astype(np.int64)
+
+
+def _balance_failure(work: _Work, size: np.ndarray, result: Balance) -> str:
+    """The message of a failed balance: the zone, its size, the bound, what blocked it.
+
+    ``work.labels`` still holds the labels before balancing (zone numbers are
+    the same after it), so the zone is named, and its merges judged, as the
+    earlier steps left it.
+    """
+    c = work.c
+    final = np.bincount(result.labels, weights=work.sizes, minlength=size.size)
+    side_before, side_after = _outside_bounds(size, c), _outside_bounds(final, c)
+    unmet = result.unmet.tolist()
+    z = next((u for u in unmet if side_before[u] == side_after[u]), unmet[0])
+    shown = size[z] if side_before[z] == side_after[z] else final[z]
+    later = f" ({final[z]:g} after boundary transfers)" if final[z] != shown else ""
+    name = work.zone_name(z)
+    if side_after[z] < 0:
+        head = (
+            f"min_size: {name} has size {shown:g} < min_size {c.min_size:g}{later}; it cannot "
+            f"merge with a neighbour ({_merge_obstacle(work, _ZoneGraph(work), z)})"
+        )
+    else:
+        why = (
+            "splitting it would leave a part without a source (every zone must hold exactly one)"
+            if work.sources.size
+            else "the splits and merges of its part of the network left it there"
+        )
+        head = f"max_size: {name} has size {shown:g} > max_size {c.max_size:g}{later}; {why}"
+    return f"{head}, and boundary transfers could not fix it: {result.reason}."
 
 
 # ---------------------------------------------------------------- the driver
@@ -1356,6 +1444,7 @@ _STEPS: tuple[Callable[[_Work], None], ...] = (
     _one_source_per_zone,
     _split_oversize,
     _merge_undersize,
+    _balance_sizes,
     _repair,
 )
 
