@@ -4,7 +4,8 @@
 - :mod:`._spectral`: eigengaps, the Cheeger interval, suggested zone counts;
 - :mod:`._score`: the scorecard of any (even partial) zoning, with modularity and outliers;
 - :mod:`._compare`: agreement of two zonings (ARI, NMI, variation of information, overlaps);
-- :mod:`._stability`: how much a zoning moves under other seeds and perturbed weights.
+- :mod:`._stability`: how much a zoning moves under other seeds and perturbed weights;
+- :mod:`._robustness`: algebraic connectivity, bridges, articulation nodes, bottleneck links.
 """
 
 from ._compare import (
@@ -16,6 +17,17 @@ from ._compare import (
     variation_of_information,
 )
 from ._quality import boundary_links, check_labels, overall_scores, zone_table
+from ._robustness import (
+    DEFAULT_TOP,
+    EXACT_RESISTANCE_LIMIT,
+    SKETCH_ROWS,
+    CutStructure,
+    LinkResistances,
+    Robustness,
+    cut_structure,
+    effective_resistances,
+    robustness,
+)
 from ._score import (
     EXAMPLES_SHOWN,
     OUTLIER_MIN_RATIO,
@@ -47,17 +59,23 @@ __all__ = [
     "CORE_CONFIDENCE",
     "DEFAULT_REPEATS",
     "DEFAULT_SPREAD",
+    "DEFAULT_TOP",
+    "EXACT_RESISTANCE_LIMIT",
     "EXAMPLES_SHOWN",
     "MATCH_DENSE_CELLS",
     "OUTLIER_MIN_RATIO",
     "OUTLIER_MIN_ZONES",
     "OUTLIER_Z",
     "ROTATION_WARNING",
+    "SKETCH_ROWS",
     "SPLIT_SHARE",
     "UNASSIGNED",
     "UNSTABLE_CORE_SHARE",
     "Comparison",
+    "CutStructure",
     "LabelCoverage",
+    "LinkResistances",
+    "Robustness",
     "Scorecard",
     "Stability",
     "ZoneMatch",
@@ -66,6 +84,8 @@ __all__ = [
     "cheeger_bounds",
     "compare",
     "compare_frames",
+    "cut_structure",
+    "effective_resistances",
     "eigengaps",
     "labels_from_mapping",
     "match_zones",
@@ -73,6 +93,7 @@ __all__ = [
     "overall_scores",
     "perturb_weights",
     "perturbation_norm",
+    "robustness",
     "score",
     "stability",
     "suggest_zone_counts",
