@@ -23,14 +23,16 @@ from . import __version__
 from .diagnostics import (
     DEFAULT_REPEATS,
     DEFAULT_SPREAD,
+    DEFAULT_TOP,
     compare_frames,
     labels_from_mapping,
+    robustness,
     score,
     stability,
     suggest_zone_counts,
 )
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
-from .exceptions import ConvergenceError, ParameterError, SpecgraphError
+from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
 from .export import CAUTION, file_checksum, jsonable, run_record, write_outputs, zoning_tables
 from .io import flagged_links, read_edges, read_link_list, read_node_list, read_zone_file
 from .network import Network
@@ -312,6 +314,35 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--node-col", default="node", metavar="COL", help="node id column")
     compare.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
     _add_common(compare, out="specgraph-compare")
+
+    robust = commands.add_parser(
+        "robustness",
+        help="algebraic connectivity, bridges, articulation nodes and bottleneck links",
+        description="Where is the network fragile? Algebraic connectivity of the network (and "
+        "of each zone with --zones-file), every bridge and articulation node with what its "
+        "failure would cut off, and the links ranked by leverage (effective resistance times "
+        "weight: 1 for a bridge, near 0 for a link with many parallel routes).",
+        epilog=_caution_epilog(
+            "  specgraph robustness pipes.csv --nodes junctions.csv --size-col connections\n"
+            "  specgraph robustness pipes.csv --zones-file districts.csv --top 200"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(robust)
+    robust.add_argument(
+        "--zones-file", metavar="ZONES_CSV", help="node,zone table: also score each zone"
+    )
+    robust.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
+    robust.add_argument(
+        "--top",
+        type=_positive_int,
+        default=DEFAULT_TOP,
+        metavar="N",
+        help=f"bottleneck links listed (default {DEFAULT_TOP})",
+    )
+    robust.add_argument("--tol", type=_positive_float, default=DEFAULT_TOL, help=argparse.SUPPRESS)
+    robust.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
+    _add_common(robust, out="specgraph-robustness")
 
     stable = commands.add_parser(
         "stability",
@@ -629,6 +660,60 @@ def _cmd_compare(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     return {"out": str(args.out), "summary": jsonable(summary)}
 
 
+def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    labels = None
+    if args.zones_file:
+        mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
+        labels, coverage = labels_from_mapping(network, mapping, path=args.zones_file)
+        if coverage.unassigned:
+            raise InputError(
+                f"{coverage.unassigned} nodes of the network are in no zone (for example "
+                f"{', '.join(coverage.unassigned_examples)}); robustness per zone needs every "
+                "node in a zone: complete the table, or leave out --zones-file",
+                path=args.zones_file,
+            )
+        inputs.append(
+            {"role": "zones", "path": args.zones_file, "checksum": file_checksum(args.zones_file)}
+        )
+    result = robustness(network, labels=labels, top=args.top, rng=args.seed, tol=args.tol)
+    files: dict[str, Any] = {
+        "links.csv": result.links,
+        "bridges.csv": result.bridges,
+        "articulation_nodes.csv": result.nodes,
+        "components.csv": result.components,
+    }
+    if result.zones is not None:
+        files["zone_connectivity.csv"] = result.zones
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": inputs,
+        "summary": result.record,
+        "caution": CAUTION,
+    }
+    files["run.json"] = jsonable(record)
+    written = write_outputs(args.out, files)
+    logger.info(
+        "algebraic connectivity %.4g (normalized %.4g); %d bridges, %d articulation nodes",
+        result.algebraic_connectivity,
+        result.normalized_connectivity,
+        len(result.bridges),
+        len(result.nodes),
+    )
+    if len(result.bridges):
+        worst = result.bridges.iloc[0]
+        logger.info(
+            "worst bridge %s - %s: its failure cuts off %d nodes (size %g)",
+            worst["source"],
+            worst["target"],
+            worst["cut_nodes"],
+            worst["cut_size"],
+        )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "summary": jsonable(result.record)}
+
+
 def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     network, inputs = _read(args)
     constraints = _constraints(network, args)
@@ -693,6 +778,7 @@ _COMMANDS = {
     "spectrum": _cmd_spectrum,
     "score": _cmd_score,
     "compare": _cmd_compare,
+    "robustness": _cmd_robustness,
     "stability": _cmd_stability,
     "demo": _cmd_demo,
 }
@@ -732,7 +818,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
     """Run one command; map every failure to its exit code and a one-line message."""
-    if args.command in ("zones", "demo", "score", "stability"):
+    if args.command in ("zones", "demo", "score", "stability", "robustness"):
         logger.info("caution: %s", CAUTION)
     try:
         summary = _COMMANDS[args.command](args, argv)

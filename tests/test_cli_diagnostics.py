@@ -115,3 +115,27 @@ def test_stability_on_clear_structure(tmp_path: Path) -> None:
     run = json.loads((out / "run.json").read_text(encoding="utf-8"))
     assert run["overall"]["unstable_zones"] == []
     assert len(pd.read_csv(out / "runs.csv")) == 4
+
+
+def test_robustness_reports_the_single_bridge_first(tmp_path: Path) -> None:
+    edges, zones, graph = barbell_files(tmp_path, clique=5)
+    # Hang a two-node branch on BJ-000: two more bridges, cutting off 2 and 1 nodes.
+    frame = pd.read_csv(edges)
+    extra = pd.DataFrame(
+        {"source": ["BJ-000", "BT-1"], "target": ["BT-1", "BT-2"], "pipe": ["BP-x", "BP-y"]}
+    )
+    pd.concat([frame, extra]).to_csv(edges, index=False)
+    out = tmp_path / "out"
+    assert main(["robustness", str(edges), "--out", str(out), "--quiet"]) == 0
+    bridges = pd.read_csv(out / "bridges.csv")
+    graph.add_edges_from([(0, "t1"), ("t1", "t2")])
+    # networkx.bridges is the outside reference for which links are bridges.
+    assert len(bridges) == len(list(nx.bridges(graph)))
+    first = bridges.iloc[0]
+    assert {first["source"], first["target"]} == {"BJ-004", "BJ-005"}
+    # Its failure cuts off the smaller side: the second clique (5 nodes; the
+    # first side holds 5 + 2 branch nodes).
+    assert first["cut_nodes"] == 5
+    assert bridges["cut_nodes"].tolist() == [5, 2, 1]
+    nodes = pd.read_csv(out / "articulation_nodes.csv")
+    assert len(nodes) == len(list(nx.articulation_points(graph)))
