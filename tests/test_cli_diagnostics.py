@@ -118,7 +118,7 @@ def test_stability_on_clear_structure(tmp_path: Path) -> None:
 
 
 def test_robustness_reports_the_single_bridge_first(tmp_path: Path) -> None:
-    edges, zones, graph = barbell_files(tmp_path, clique=5)
+    edges, _zones, graph = barbell_files(tmp_path, clique=5)
     # Hang a two-node branch on BJ-000: two more bridges, cutting off 2 and 1 nodes.
     frame = pd.read_csv(edges)
     extra = pd.DataFrame(
@@ -139,3 +139,26 @@ def test_robustness_reports_the_single_bridge_first(tmp_path: Path) -> None:
     assert bridges["cut_nodes"].tolist() == [5, 2, 1]
     nodes = pd.read_csv(out / "articulation_nodes.csv")
     assert len(nodes) == len(list(nx.articulation_points(graph)))
+
+
+@pytest.mark.parametrize("command", ["score", "compare", "robustness"])
+def test_json_summaries(tmp_path: Path, capsys: pytest.CaptureFixture[str], command: str) -> None:
+    edges, zones, graph = barbell_files(tmp_path)
+    out = tmp_path / "out"
+    args = {
+        "score": ["score", str(edges), str(zones)],
+        "compare": ["compare", str(zones), str(zones)],
+        "robustness": ["robustness", str(edges), "--zones-file", str(zones)],
+    }[command]
+    assert main([*args, "--out", str(out), "--json", "--quiet"]) == 0
+    summary = json.loads(capsys.readouterr().out)
+    assert summary["out"] == str(out)
+    if command == "score":
+        halves = [set(range(5)), set(range(5, 10))]
+        assert summary["overall"]["modularity"] == pytest.approx(
+            nx.community.modularity(graph, halves)
+        )
+    elif command == "compare":
+        assert summary["summary"]["adjusted_rand"] == pytest.approx(1.0)
+    else:
+        assert summary["summary"]["bridges"] == len(list(nx.bridges(graph)))
