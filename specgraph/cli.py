@@ -422,21 +422,39 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
 
 
 def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
-    """The zone constraints the options ask for, read from their files and columns."""
+    """The zone constraints the options ask for, read from their files and columns.
+
+    Ids in rule files are checked against the network here, so that an unknown
+    id is reported at its file, line and column.
+    """
     sources: tuple[str, ...] = ()
     if getattr(args, "supply_col", None):
-        sources += read_node_list(args.nodes, node=args.node_col, flag=args.supply_col)
+        sources += read_node_list(
+            args.nodes,
+            node=args.node_col,
+            flag=args.supply_col,
+            network=network,
+            option="--supply-col",
+        )
     if getattr(args, "supply_list", None):
-        sources += read_node_list(args.supply_list, node=args.node_col)
+        sources += read_node_list(
+            args.supply_list, node=args.node_col, network=network, option="--supply-list"
+        )
     keep: list[tuple[str, str]] = []
     if getattr(args, "keep_col", None):
         ids = network.node_ids
         keep += [(ids[a], ids[b]) for a, b in flagged_links(network, args.keep_col).tolist()]
     if getattr(args, "keep_list", None):
-        keep += read_link_list(args.keep_list, source=args.source, target=args.target)
+        keep += read_link_list(
+            args.keep_list,
+            source=args.source,
+            target=args.target,
+            network=network,
+            option="--keep-list",
+        )
     fixed = None
     if getattr(args, "fixed", None):
-        fixed = read_zone_file(args.fixed, node=args.node_col)
+        fixed = read_zone_file(args.fixed, node=args.node_col, network=network, option="--fixed")
     by_size = network.sizes is not None and not args.count_nodes
     return ZoneConstraints(
         min_size=args.min_size,

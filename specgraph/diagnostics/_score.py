@@ -183,6 +183,10 @@ def labels_from_mapping(
     >>> labels.tolist(), coverage.unassigned, coverage.unassigned_examples
     ([7, 7, -1, 2], 1, ('2',))
     """
+    if not mapping:
+        raise InputError(
+            "the zone table has no rows; give one row per node with its zone", path=path
+        )
     ids = np.asarray([str(key) for key in mapping], dtype=object)
     zones = np.asarray(list(mapping.values()))
     if zones.size and (not np.issubdtype(zones.dtype, np.integer) or zones.min() < 0):

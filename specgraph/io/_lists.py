@@ -102,6 +102,32 @@ def flag_mask(
     return yes
 
 
+def _refuse_unknown(
+    ids: np.ndarray,
+    network: Network | None,
+    *,
+    frame: pd.DataFrame,
+    column: Hashable,
+    origin: Origin,
+    option: str,
+) -> None:
+    """Raise at the first id that is not a node of ``network`` (when one is given)."""
+    if network is None:
+        return
+    known = pd.Index(network.node_ids).get_indexer(ids) >= 0
+    if known.all():
+        return
+    row = int(np.flatnonzero(~known)[0])
+    count = int(np.count_nonzero(~known))
+    raise origin.error(
+        f"{ids[row]!r} is not a node of the network ({count} unknown id"
+        f"{'s' if count > 1 else ''} in this {option} table); correct the id, or remove the row",
+        frame=frame,
+        column=column,
+        row=row,
+    )
+
+
 def _located(path: str | None) -> Origin:
     """The origin of a table already read, with a line finder that reads lazily."""
     if path is None:
@@ -147,6 +173,8 @@ def read_node_list(
     node: str = "node",
     flag: str | None = None,
     delimiter: str | None = None,
+    network: Network | None = None,
+    option: str = "node list",
 ) -> tuple[str, ...]:
     """Node ids listed in a table: every row, or the rows whose ``flag`` says yes.
 
@@ -160,6 +188,10 @@ def read_node_list(
         A yes/no column; only rows marked yes are listed.
     delimiter : str, optional
         As for :func:`specgraph.io.read_table`.
+    network : Network, optional
+        When given, an id that is not one of its nodes is refused, at its line.
+    option : str
+        How the user named this table (e.g. ``--supply-list``), for messages.
 
     Returns
     -------
@@ -187,7 +219,28 @@ def read_node_list(
             column=node,
             row=int(bad[0]),
         )
+    rows = np.flatnonzero(chosen)
+    _refuse_unknown(
+        ids[rows],
+        network,
+        frame=frame.iloc[rows],
+        column=node,
+        origin=_rows_origin(origin, rows),
+        option=option,
+    )
     return tuple(dict.fromkeys(ids[chosen].tolist()))
+
+
+def _rows_origin(origin: Origin, rows: np.ndarray) -> Origin:
+    """The origin of a subset of a frame's rows: positions map back to the file's rows."""
+    base = origin.locate
+    if base is None:
+        return origin
+
+    def locate(row: int) -> int | None:
+        return base(int(rows[row]))
+
+    return Origin(origin.path, locate)
 
 
 def read_link_list(
@@ -196,6 +249,8 @@ def read_link_list(
     source: str = "source",
     target: str = "target",
     delimiter: str | None = None,
+    network: Network | None = None,
+    option: str = "link list",
 ) -> tuple[tuple[str, str], ...]:
     """Links listed in a table, as pairs of node ids (e.g. links that must not be cut).
 
@@ -232,8 +287,22 @@ def read_link_list(
                 column=column,
                 row=int(np.flatnonzero(empty)[0]),
             )
-        ends.append(ids.tolist())
-    return tuple(zip(ends[0], ends[1], strict=True))
+        _refuse_unknown(ids, network, frame=frame, column=column, origin=origin, option=option)
+        ends.append(ids)
+    if network is not None:
+        index = pd.Index(network.node_ids)
+        a, b = index.get_indexer(ends[0]), index.get_indexer(ends[1])
+        linked = np.asarray(network.adjacency[a, b]).ravel() != 0
+        if not linked.all():
+            row = int(np.flatnonzero(~linked)[0])
+            raise origin.error(
+                f"{ends[0][row]!r} - {ends[1][row]!r} is not a link of the network, so "
+                f"{option} cannot keep it; correct the ids, or remove the row",
+                frame=frame,
+                column=source,
+                row=row,
+            )
+    return tuple(zip(ends[0].tolist(), ends[1].tolist(), strict=True))
 
 
 def read_zone_file(
@@ -242,6 +311,8 @@ def read_zone_file(
     node: str = "node",
     zone: str = "zone",
     delimiter: str | None = None,
+    network: Network | None = None,
+    option: str = "zone table",
 ) -> dict[str, int]:
     """Read a ``node, zone`` table: each listed node's integer zone.
 
@@ -290,6 +361,7 @@ def read_zone_file(
             row=row,
         )
     zones = _whole_numbers(frame, zone, origin)
+    _refuse_unknown(ids, network, frame=frame, column=node, origin=origin, option=option)
     return dict(zip(ids.tolist(), zones.tolist(), strict=True))
 
 

@@ -277,6 +277,14 @@ def _ragged_error(path: Path, header: _Header, pandas_message: str) -> InputErro
                     break
     except (OSError, UnicodeDecodeError, csv.Error):
         pass
+    if line is None and "EOF inside string" in pandas_message:
+        opened = _unclosed_quote_line(path, header.delimiter)
+        return InputError(
+            "a double quote opened here is never closed, so the rest of the file would be one "
+            'value; close the quote, or double it ("") where it is part of the text',
+            path=path,
+            line=opened,
+        )
     if line is None:
         match = _PANDAS_RAGGED.search(pandas_message)
         if match is None:
@@ -289,6 +297,31 @@ def _ragged_error(path: Path, header: _Header, pandas_message: str) -> InputErro
         path=path,
         line=line,
     )
+
+
+def _unclosed_quote_line(path: Path, delimiter: str) -> int | None:
+    """Physical line on which the quoted field that never closes opens (CSV quoting rules)."""
+    opened, inside = None, False
+    try:
+        with _open_text(path) as handle:
+            for number, text in enumerate(handle, start=1):
+                previous = delimiter
+                i = 0
+                while i < len(text):
+                    char = text[i]
+                    if inside:
+                        if char == '"':
+                            if text[i + 1 : i + 2] == '"':
+                                i += 1
+                            else:
+                                inside = False
+                    elif char == '"' and previous in (delimiter, "\n", "\r"):
+                        inside, opened = True, number
+                    previous = char
+                    i += 1
+    except (OSError, UnicodeDecodeError):
+        return None
+    return opened if inside else None
 
 
 def _read_csv(path: Path, delimiter: str | None) -> _Table:

@@ -362,6 +362,10 @@ def _assign_component(
 ) -> tuple[np.ndarray, EigenResult, dict[str, Any]]:
     """Zones ``0..k-1`` of one connected component, its eigen-solve, the method's reason."""
     eig = _slice(known, k + 1) if known is not None and known.k > k else solver.solve(sub, k + 1)
+    if k >= sub.n_nodes:
+        # As many zones as nodes: one node per zone, nothing to choose.
+        labels = np.arange(sub.n_nodes, dtype=np.int64)
+        return labels, eig, {"choice": "one node per zone", "reason": "as many zones as nodes"}
     if assign == "auto":
         if solver.kind in ("normalized", "random_walk"):
             picked = choose_assignment(

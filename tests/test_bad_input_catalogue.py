@@ -1,0 +1,738 @@
+"""One test per row of docs/bad-input.md: every bad input class, through the command line.
+
+Each error row checks the exit code (2), the message (file name, line and column where they
+apply) and that no output folder appeared; each policy row checks that the run succeeds and
+that ``run.json`` counts what was changed. The expected behaviour is the project's own
+contract (docs/input-policy.md, docs/zones.md, docs/diagnostics.md, DESIGN.md "Exit codes");
+the expected ids, lines and counts are worked out by hand from the small invented files below.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Sequence
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+import pytest
+
+from specgraph.cli import main
+
+EXIT_OK, EXIT_INPUT = 0, 2
+
+# Two triangles (J1-J2-J3 and J4-J5-J6) joined by J3-J4: connected, six nodes, seven links.
+TWO_TRIANGLES = "source,target\nJ1,J2\nJ2,J3\nJ3,J1\nJ3,J4\nJ4,J5\nJ5,J6\nJ6,J4\n"
+# A path J1..J5 and a separate link J6-J7: two components of five and two nodes.
+PATH_AND_PAIR = "source,target\nJ1,J2\nJ2,J3\nJ3,J4\nJ4,J5\nJ6,J7\n"
+
+
+# ------------------------------------------------------------------ helpers
+def write(folder: Path, name: str, data: str | bytes) -> Path:
+    """Write ``data`` byte for byte (no newline translation)."""
+    path = folder / name
+    path.write_bytes(data.encode("utf-8") if isinstance(data, str) else data)
+    return path
+
+
+def run(
+    capsys: pytest.CaptureFixture[str], out: Path, command: str, *args: str | Path
+) -> tuple[int, str]:
+    """Run ``specgraph COMMAND ARGS --out OUT --quiet``; return the exit code and stderr."""
+    code = main([command, *map(str, args), "--out", str(out), "--quiet"])
+    return code, capsys.readouterr().err
+
+
+def refused(
+    capsys: pytest.CaptureFixture[str],
+    tmp_path: Path,
+    command: str,
+    *args: str | Path,
+    names: Sequence[str] = (),
+) -> str:
+    """Run a command that must stop with exit 2, name ``names`` and write nothing."""
+    out = tmp_path / "refused-out"
+    code, err = run(capsys, out, command, *args)
+    assert code == EXIT_INPUT, err
+    assert "error" in err
+    assert "Traceback" not in err
+    for name in names:
+        assert name in err, (name, err)
+    assert not out.exists(), "an output folder appeared although the run was refused"
+    return err
+
+
+def zoned(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, *args: str | Path
+) -> tuple[dict[str, Any], pd.DataFrame, str]:
+    """Run ``specgraph zones`` that must succeed; return run.json, zones.csv (ids as text)."""
+    out = tmp_path / "out"
+    code, err = run(capsys, out, "zones", *args)
+    assert code == EXIT_OK, err
+    record = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    zones = pd.read_csv(out / "zones.csv", dtype={"node": str}, keep_default_na=False)
+    return record, zones, err
+
+
+def policy(record: dict[str, Any]) -> dict[str, Any]:
+    return dict(record["network"]["input_policy"])
+
+
+# -------------------------------------------------------------- files, rows
+@pytest.mark.parametrize(
+    "data", [pytest.param("", id="zero-bytes"), pytest.param("\n \n\n", id="blank-lines")]
+)
+def test_empty_file(capsys: pytest.CaptureFixture[str], tmp_path: Path, data: str) -> None:
+    edges = write(tmp_path, "edges.csv", data)
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", "line 1", "empty"])
+
+
+def test_header_only_edge_table(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target,weight\n")
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", "line 1", "no rows"])
+
+
+def test_header_only_node_table(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    nodes = write(tmp_path, "junctions.csv", "node\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--nodes",
+        nodes,
+        names=["junctions.csv", "line 1", "no rows"],
+    )
+
+
+def test_missing_file_and_folder(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    refused(capsys, tmp_path, "zones", tmp_path / "nowhere.csv", names=["nowhere.csv", "no such"])
+    folder = tmp_path / "a-folder"
+    folder.mkdir()
+    refused(capsys, tmp_path, "zones", folder, names=["a-folder", "folder"])
+
+
+def test_misnamed_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "from,to\nJ1,J2\n")
+    err = refused(
+        capsys, tmp_path, "zones", edges, names=["edges.csv", "line 1", "column 'source'"]
+    )
+    # The message lists the columns present and the option that maps one.
+    assert "'from', 'to'" in err
+    assert "--source" in err
+
+
+def test_missing_weight_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--weight",
+        "length_m",
+        names=["edges.csv", "line 1", "column 'length_m'", "--weight"],
+    )
+
+
+def test_column_named_twice(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target,source\nJ1,J2,J3\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        names=["edges.csv", "line 1", "column 'source' (column 3)", "twice"],
+    )
+
+
+def test_wrong_delimiter_not_recognised(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # A colon is none of the recognised delimiters: the header reads as one column.
+    edges = write(tmp_path, "edges.csv", "source:target\nJ1:J2\n")
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", "line 1", "'source:target'"])
+
+
+def test_alternative_delimiter_detected_and_recorded(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    edges = write(tmp_path, "edges.csv", "source;target;weight\nJ1;J2;1.5\nJ2;J3;2\n")
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    table = policy(record)["edge_table"]
+    assert table["delimiter"] == ";"
+    assert table["delimiter_detected"] is True
+    assert sorted(zones["node"]) == ["J1", "J2", "J3"]
+
+
+def test_ragged_row_too_many_fields(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J2\nJ2,J3,J4\n")
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", "line 3", "3 fields"])
+
+
+def test_ragged_row_too_few_fields(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J2\nJ2\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        names=["edges.csv", "line 3", "column 'target' (column 2)", "empty"],
+    )
+
+
+def test_embedded_newline_read_and_lines_stay_physical(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    # The quoted id "J\n1" spans lines 2-3, so the bad weight of the next row is on line 4.
+    good = write(tmp_path, "good.csv", 'source,target\n"J\n1",J2\nJ2,J3\nJ3,"J\n1"\n')
+    _, zones, _ = zoned(capsys, tmp_path, good, "--zones", "1")
+    assert sorted(zones["node"]) == ["J\n1", "J2", "J3"]
+    bad = write(tmp_path, "bad.csv", 'source,target,weight\n"J\n1",J2,1\nJ2,J3,x\n')
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        bad,
+        names=["bad.csv", "line 4", "column 'weight' (column 3)"],
+    )
+
+
+def test_unterminated_quote_names_line(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # The quote opened on line 3 is never closed.
+    edges = write(tmp_path, "edges.csv", 'source,target\nJ1,J2\nJ2,"J3\nJ3,J4\n')
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", "line 3"])
+
+
+def test_unterminated_quote_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", 'source,target\nJ1,J2\nJ2,"J3\nJ3,J4\n')
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv"])
+
+
+# ------------------------------------------------------------------ weights
+@pytest.mark.parametrize(
+    ("cell", "why"),
+    [
+        pytest.param("NaN", "not finite", id="nan"),
+        pytest.param("inf", "not finite", id="inf"),
+        pytest.param("-inf", "not finite", id="minus-inf"),
+        pytest.param("1e400", "not finite", id="overflows"),
+        pytest.param("-2", "negative", id="negative"),
+        pytest.param("heavy", "not a number", id="text"),
+        pytest.param("", "empty", id="empty"),
+        pytest.param('"1,5"', "not a plain number", id="decimal-comma"),
+    ],
+)
+def test_bad_weight(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, cell: str, why: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", f"source,target,weight\nJ1,J2,1\nJ2,J3,{cell}\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        names=["edges.csv", "line 3", "column 'weight' (column 3)", why],
+    )
+
+
+@pytest.mark.parametrize("cell", ["NaN", "-1", "x", ""], ids=["nan", "negative", "text", "empty"])
+def test_bad_length_in_distance_mode(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, cell: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", f"source,target,length_m\nJ1,J2,10\nJ2,J3,{cell}\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--weight",
+        "length_m",
+        "--distance",
+        names=["edges.csv", "line 3", "column 'length_m' (column 3)"],
+    )
+
+
+def test_zero_weight_link_dropped_and_counted(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target,weight\nJ1,J2,1\nJ2,J3,0\nJ3,J4,1\n")
+    record, zones, err = zoned(capsys, tmp_path, edges, "--zones", "2")
+    assert policy(record)["zero_weight_links_dropped"] == 1
+    # The ends are kept: the network falls into {J1, J2} and {J3, J4}.
+    assert sorted(zones["node"]) == ["J1", "J2", "J3", "J4"]
+    assert record["network"]["components"] == 2
+    assert "2 connected components" in err
+
+
+def test_zero_length_in_distance_mode(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target,weight\nJ1,J2,1\nJ2,J3,0\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--distance",
+        names=["edges.csv", "line 3", "column 'weight' (column 3)", "zero"],
+    )
+
+
+def test_distance_without_weight_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    refused(capsys, tmp_path, "zones", edges, "--distance", names=["--distance", "--weight"])
+
+
+# -------------------------------------------------------------------- links
+def test_duplicate_and_reversed_links_merged_and_counted(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    # J1-J2 three times (once reversed): two rows merged into the first.
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J2\nJ2,J1\nJ1,J2\nJ2,J3\n")
+    record, _, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert policy(record)["duplicate_links_merged"] == 2
+    assert policy(record)["input_links"] == 4
+    assert record["network"]["links"] == 2
+
+
+def test_self_loop_dropped_and_counted(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J1\nJ1,J2\nJ2,J3\n")
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert policy(record)["self_loops_dropped"] == 1
+    assert record["network"]["links"] == 2
+    assert sorted(zones["node"]) == ["J1", "J2", "J3"]
+
+
+# ---------------------------------------------------------------------- ids
+def test_leading_zeros_kept(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\n007,7\n7,0007\n")
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert sorted(zones["node"]) == ["0007", "007", "7"]
+    assert record["network"]["nodes"] == 3
+
+
+def test_ids_pandas_would_read_as_missing_are_ids(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nNA,null\nnull,None\nNone,NaN\nNaN,NA\n")
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert sorted(zones["node"]) == ["NA", "NaN", "None", "null"]
+    assert record["network"]["nodes"] == 4
+
+
+def test_empty_id_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J2\n,J3\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        names=["edges.csv", "line 3", "column 'source' (column 1)", "empty"],
+    )
+
+
+def test_missing_id_in_parquet_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    path = tmp_path / "edges.parquet"
+    pq.write_table(pa.table({"source": ["J1", None, "J3"], "target": ["J2", "J3", "J1"]}), path)
+    # Parquet has no lines: the message names the 1-based data row instead.
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        path,
+        names=["edges.parquet", "column 'source'", "row 2", "empty"],
+    )
+
+
+def test_mixed_type_ids_are_text(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # "1" and "1.0" are two ids: nothing is parsed as a number.
+    edges = write(tmp_path, "edges.csv", "source,target\n1,J2\n1.0,J2\nJ2,2\n")
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert sorted(zones["node"]) == ["1", "1.0", "2", "J2"]
+    assert record["network"]["nodes"] == 4
+
+
+def test_integer_ids_in_parquet_become_text(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    path = tmp_path / "edges.parquet"
+    table = pa.table({"source": pa.array([1, 2, 3], pa.int64()), "target": ["2", "3", "01"]})
+    pq.write_table(table, path)
+    _, zones, _ = zoned(capsys, tmp_path, path, "--zones", "1")
+    assert sorted(zones["node"]) == ["01", "1", "2", "3"]
+
+
+@pytest.mark.parametrize(
+    ("data", "line"),
+    [
+        pytest.param(b"source,target\nJ1,J2\nJ\xe92,J3\n", "line 3", id="latin-1-byte"),
+        pytest.param("source,target\nJ1,J2\n".encode("utf-16"), "line 1", id="utf-16"),
+    ],
+)
+def test_non_utf8_bytes(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, data: bytes, line: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", data)
+    refused(capsys, tmp_path, "zones", edges, names=["edges.csv", line, "UTF-8"])
+
+
+def test_byte_order_mark_accepted(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", b"\xef\xbb\xbfsource,target\r\nJ1,J2\r\nJ2,J3\r\n")
+    _, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert sorted(zones["node"]) == ["J1", "J2", "J3"]
+
+
+def test_very_long_line(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    long_id = "X" * 1_000_000
+    edges = write(tmp_path, "edges.csv", f"source,target\nJ1,J2\nJ2,{long_id}\n")
+    _, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert sorted(zones["node"], key=len) == ["J1", "J2", long_id]
+
+
+def test_huge_numeric_id_kept_exactly(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # 400 digits: far beyond int64 and float64 range; must stay the exact text.
+    huge = "9" * 399 + "1"
+    edges = write(tmp_path, "edges.csv", f"source,target\n{huge},J2\nJ2,J3\n")
+    _, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert huge in set(zones["node"])
+
+
+# ------------------------------------------------------------ node tables
+def test_duplicate_node_row(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rows = "".join(f"J{i}\n" for i in range(1, 7))
+    nodes = write(tmp_path, "junctions.csv", "node\n" + rows + "J3\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--nodes",
+        nodes,
+        names=["junctions.csv", "line 8", "column 'node'", "'J3'", "line 4"],
+    )
+
+
+def test_link_end_not_in_node_table(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    nodes = write(tmp_path, "junctions.csv", "node\n" + "".join(f"J{i}\n" for i in range(1, 6)))
+    # J6 first appears as the target of line 7 (J5,J6).
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--nodes",
+        nodes,
+        names=["edges.csv", "line 7", "column 'target'", "'J6'", "junctions.csv"],
+    )
+
+
+def test_bad_node_size(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rows = "".join(f"J{i},{'nan' if i == 2 else 1}\n" for i in range(1, 7))
+    nodes = write(tmp_path, "junctions.csv", "node,served\n" + rows)
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--nodes",
+        nodes,
+        "--size-col",
+        "served",
+        names=["junctions.csv", "line 3", "column 'served' (column 2)", "not finite"],
+    )
+
+
+# ------------------------------------------------------------- network shape
+def test_disconnected_network(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", PATH_AND_PAIR)
+    record, zones, err = zoned(capsys, tmp_path, edges, "--zones", "1")
+    assert record["network"]["components"] == 2
+    # Raised to one zone per component, with a warning (docs/zones.md "Zone count").
+    assert record["scores"]["zones"] == 2
+    assert zones.groupby("zone")["node"].apply(set).tolist() in (
+        [{"J1", "J2", "J3", "J4", "J5"}, {"J6", "J7"}],
+    )
+    assert "2 connected components" in err
+    assert "raised to 2" in err
+
+
+def test_isolated_nodes_counted(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    nodes = write(tmp_path, "junctions.csv", "node\n" + "".join(f"J{i}\n" for i in range(1, 9)))
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--nodes", nodes, "--zones", "2")
+    assert policy(record)["isolated_nodes"] == 2
+    assert record["network"]["components"] == 3
+    # Each isolated node is its own component, hence its own zone.
+    single = zones.groupby("zone")["node"].apply(set)
+    assert {"J7"} in single.tolist()
+    assert {"J8"} in single.tolist()
+
+
+def test_zone_count_larger_than_a_component(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    # 5 zones on components of 5 and 2 nodes: allowed (5 <= 7 nodes), so it should run.
+    edges = write(tmp_path, "edges.csv", PATH_AND_PAIR)
+    record, zones, _ = zoned(capsys, tmp_path, edges, "--zones", "5")
+    assert record["scores"]["zones"] == 5
+    assert sorted(zones["zone"].unique().tolist()) == [0, 1, 2, 3, 4]
+
+
+def test_zone_count_equal_to_node_count(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J2\nJ2,J3\nJ3,J4\nJ4,J5\n")
+    record, _, _ = zoned(capsys, tmp_path, edges, "--zones", "5")
+    assert record["scores"]["zones"] == 5
+
+
+def test_zone_count_larger_than_network(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    refused(capsys, tmp_path, "zones", edges, "--zones", "9", names=["zones", "6", "9"])
+
+
+@pytest.mark.parametrize("value", ["0", "-3", "many", "1.5"])
+def test_zone_count_not_a_count(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, value: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    refused(capsys, tmp_path, "zones", edges, "--zones", value, names=["--zones"])
+
+
+# ----------------------------------------------------------------- rules
+UNKNOWN_IN_RULE_FILES = [
+    pytest.param("--supply-list", "supply.csv", "node\nJ1\nQX-9\n", "'QX-9'", id="supply-list"),
+    pytest.param("--keep-list", "keep.csv", "source,target\nJ1,J2\nJ1,QX-9\n", "'QX-9'", id="keep"),
+    pytest.param(
+        "--keep-list",
+        "keep.csv",
+        "source,target\nJ1,J2\nJ1,J5\n",
+        "'J1' - 'J5'",
+        id="keep-not-a-link",
+    ),
+    pytest.param("--fixed", "fixed.csv", "node,zone\nJ1,0\nQX-9,1\n", "'QX-9'", id="fixed"),
+]
+
+
+@pytest.mark.parametrize(("option", "name", "text", "shown"), UNKNOWN_IN_RULE_FILES)
+def test_unknown_ids_in_rule_files_refused(
+    capsys: pytest.CaptureFixture[str],
+    tmp_path: Path,
+    option: str,
+    name: str,
+    text: str,
+    shown: str,
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rules = write(tmp_path, name, text)
+    refused(capsys, tmp_path, "zones", edges, option, rules, names=[shown])
+
+
+@pytest.mark.parametrize(("option", "name", "text", "shown"), UNKNOWN_IN_RULE_FILES)
+def test_unknown_ids_in_rule_files_name_file_and_line(
+    capsys: pytest.CaptureFixture[str],
+    tmp_path: Path,
+    option: str,
+    name: str,
+    text: str,
+    shown: str,
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rules = write(tmp_path, name, text)
+    # The offending row is line 3 of every rule file above.
+    refused(capsys, tmp_path, "zones", edges, option, rules, names=[name, "line 3", option])
+
+
+def test_rule_file_missing_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    supply = write(tmp_path, "supply.csv", "id\nJ1\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--supply-list",
+        supply,
+        names=["supply.csv", "line 1", "'node'", "'id'"],
+    )
+
+
+def test_bad_yes_no_flag(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rows = "J1,yes\nJ2,maybe\nJ3,\nJ4,\nJ5,\nJ6,\n"
+    nodes = write(tmp_path, "junctions.csv", "node,inlet\n" + rows)
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--nodes",
+        nodes,
+        "--supply-col",
+        "inlet",
+        names=["junctions.csv", "line 3", "column 'inlet' (column 2)", "'maybe'"],
+    )
+
+
+def test_fixed_zone_not_whole(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    fixed = write(tmp_path, "fixed.csv", "node,zone\nJ1,0\nJ4,1.5\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--fixed",
+        fixed,
+        names=["fixed.csv", "line 3", "column 'zone' (column 2)", "'1.5'"],
+    )
+
+
+@pytest.mark.parametrize(
+    ("edges_text", "options", "names"),
+    [
+        pytest.param(
+            TWO_TRIANGLES,
+            ["--min-size", "5", "--max-size", "2"],
+            ["min_size", "5", "2"],
+            id="min-above-max",
+        ),
+        pytest.param(
+            TWO_TRIANGLES,
+            ["--max-size", "0.5"],
+            ["max_size", "'J1'", "0.5"],
+            id="node-above-max",
+        ),
+        pytest.param(
+            TWO_TRIANGLES,
+            ["--min-size", "7"],
+            ["min_size", "component", "7"],
+            id="network-below-min",
+        ),
+        pytest.param(
+            PATH_AND_PAIR,
+            ["--min-size", "3"],
+            ["min_size", "component", "'J6'"],
+            id="component-below-min",
+        ),
+    ],
+)
+def test_impossible_size_bounds(
+    capsys: pytest.CaptureFixture[str],
+    tmp_path: Path,
+    edges_text: str,
+    options: list[str],
+    names: list[str],
+) -> None:
+    edges = write(tmp_path, "edges.csv", edges_text)
+    refused(capsys, tmp_path, "zones", edges, *options, names=names)
+
+
+def test_component_without_supply_point(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", PATH_AND_PAIR)
+    supply = write(tmp_path, "supply.csv", "node\nJ1\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--supply-list",
+        supply,
+        names=["component", "'J6'", "no source"],
+    )
+
+
+def test_supply_points_tied_by_kept_link(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    supply = write(tmp_path, "supply.csv", "node\nJ1\nJ2\n")
+    keep = write(tmp_path, "keep.csv", "source,target\nJ1,J2\n")
+    refused(
+        capsys,
+        tmp_path,
+        "zones",
+        edges,
+        "--supply-list",
+        supply,
+        "--keep-list",
+        keep,
+        names=["'J1'", "'J2'", "keep_links"],
+    )
+
+
+# ------------------------------------------------------- score: zone files
+ZONES_OK = "node,zone\nJ1,0\nJ2,0\nJ3,0\nJ4,1\nJ5,1\nJ6,1\n"
+
+
+def test_score_unknown_ids(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", ZONES_OK + "QZ-1,1\n")
+    refused(capsys, tmp_path, "score", edges, zones, names=["districts.csv", "'QZ-1'", "1 of 7"])
+
+
+def test_score_mixed_type_ids_do_not_match(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    # Ids are text: "2.0" in the zones file is not node "2" of the edge table.
+    edges = write(tmp_path, "edges.csv", "source,target\n1,2\n2,3\n3,1\n")
+    zones = write(tmp_path, "districts.csv", "node,zone\n1,0\n2.0,0\n3,0\n")
+    refused(capsys, tmp_path, "score", edges, zones, names=["districts.csv", "'2.0'"])
+
+
+def test_score_duplicate_node(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", ZONES_OK + "J2,1\n")
+    refused(
+        capsys,
+        tmp_path,
+        "score",
+        edges,
+        zones,
+        names=["districts.csv", "line 8", "column 'node' (column 1)", "'J2'"],
+    )
+
+
+@pytest.mark.parametrize(
+    "cell", ["north", "-1", "0.5", ""], ids=["text", "negative", "half", "empty"]
+)
+def test_score_zone_not_whole(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, cell: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", ZONES_OK.replace("J3,0", f"J3,{cell}"))
+    refused(
+        capsys,
+        tmp_path,
+        "score",
+        edges,
+        zones,
+        names=["districts.csv", "line 4", "column 'zone' (column 2)"],
+    )
+
+
+def test_score_missing_zone_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", "node,district\nJ1,0\n")
+    refused(capsys, tmp_path, "score", edges, zones, names=["districts.csv", "line 1", "'zone'"])
+
+
+def test_score_header_only_zones_file(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", "node,zone\n")
+    refused(capsys, tmp_path, "score", edges, zones, names=["districts.csv", "no rows"])
+
+
+def test_score_partial_zoning_counted(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", "node,zone\nJ1,0\nJ2,0\nJ3,0\nJ4,1\n")
+    out = tmp_path / "out"
+    code, err = run(capsys, out, "score", edges, zones)
+    assert code == EXIT_OK, err
+    record = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    assert record["coverage"]["unassigned"] == 2
+    unassigned = pd.read_csv(out / "unassigned.csv", dtype=str)
+    assert sorted(unassigned["node"]) == ["J5", "J6"]
