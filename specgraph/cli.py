@@ -20,6 +20,7 @@ from collections.abc import Iterator, Sequence
 from typing import Any
 
 from . import __version__
+from ._guard import check_memory
 from .diagnostics import (
     DEFAULT_REPEATS,
     DEFAULT_SPREAD,
@@ -415,6 +416,7 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
         y=args.y_col,
         size=args.size_col,
     )
+    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
     inputs = [{"role": "edges", "path": args.edges, "checksum": file_checksum(args.edges)}]
     if args.nodes:
         inputs.append({"role": "nodes", "path": args.nodes, "checksum": file_checksum(args.nodes)})
@@ -613,7 +615,9 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     files: dict[str, Any] = {"zone_scores.csv": card.zones, "run.json": jsonable(record)}
     if coverage.unassigned:
         files["unassigned.csv"] = pd.DataFrame({"node": list(card.unassigned)})
-    written = write_outputs(args.out, files)
+    written = write_outputs(
+        args.out, files, remove=() if coverage.unassigned else ["unassigned.csv"]
+    )
     overall = card.overall
     logger.info(
         "%d zones, normalized cut %.4g, modularity %.4g, %d flagged as outliers, "
@@ -711,7 +715,8 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
         "caution": CAUTION,
     }
     files["run.json"] = jsonable(record)
-    written = write_outputs(args.out, files)
+    stale = [] if result.zones is not None else ["zone_connectivity.csv"]
+    written = write_outputs(args.out, files, remove=stale)
     logger.info(
         "algebraic connectivity %.4g (normalized %.4g); %d bridges, %d articulation nodes",
         result.algebraic_connectivity,

@@ -20,6 +20,7 @@ __all__ = [
     "InputError",
     "OutputError",
     "ParameterError",
+    "ResourceError",
     "SpecgraphError",
 ]
 
@@ -111,3 +112,11 @@ class ConvergenceError(SpecgraphError, RuntimeError):
     def __init__(self, message: str, *, partial: Any) -> None:
         super().__init__(message)
         self.partial = partial
+
+
+class ResourceError(SpecgraphError, MemoryError):
+    """A run would need more memory than the machine has; refused before it starts.
+
+    The message gives the estimate, what is available and what would fit
+    (a smaller part of the network, or a machine with more memory).
+    """

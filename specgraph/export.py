@@ -1,10 +1,32 @@
-"""Writing results: CSV tables and the JSON run record, atomically.
+"""Writing results: CSV tables and the JSON run record, atomically and spreadsheet-safe.
 
 Every file is first written in full to a hidden temporary file in the output
-folder, flushed and synced to disk; only when all of them are complete are
-they moved into place with :func:`os.replace` (atomic on POSIX within one file
-system). A failure before that point removes the temporary files and leaves
-whatever the folder held before untouched.
+folder (``.<name>.<pid>.<random>.partial``), flushed and synced to disk; only
+when all of them are complete are they moved into place with
+:func:`os.replace` (atomic on POSIX within one file system). A failure before
+that point removes the temporary files and leaves whatever the folder held
+before untouched.
+
+A set of several files cannot be swapped in one system call, so the moment of
+commit is itself a file: before the first move, a hidden journal
+(``.specgraph-commit.<pid>.json``) listing the moves (and the files of an
+earlier result to delete, ``remove=``) is put in place atomically; it is
+removed after the last. A process killed outright (SIGKILL,
+power cut) therefore leaves either the previous result untouched (killed
+before the journal: at most stale hidden ``.partial`` files remain) or a
+committed new result whose journal says which moves are still due.
+:func:`recover_outputs`, which every :func:`write_outputs` call runs first on
+its folder, completes such moves and deletes the stale temporary files and
+journals of processes that no longer run. Files of a process that is still
+running are never touched, so only concurrent writers into the same folder
+can meet each other's files, and each keeps its own.
+
+Text cells of every CSV are neutralized against spreadsheet formulas (a
+leading ``=``, ``+``, ``-``, ``@``, tab or carriage return gets a leading
+single quote, see :data:`FORMULA_TRIGGERS` and :func:`specgraph._guard.
+neutralize_text`); numeric columns are written as they are. A node id such as
+``-12`` is text and is written ``'-12``; :func:`specgraph._guard.restore_text`
+gives the id back.
 
 Floats are written with Python's shortest round-trip representation, so the
 same numbers always give the same bytes.
@@ -13,27 +35,33 @@ same numbers always give the same bytes.
 from __future__ import annotations
 
 import contextlib
+import csv
 import hashlib
 import json
 import os
 import platform
+import re
 import tempfile
 from collections.abc import Iterable, Mapping
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal, cast
 
 import numpy as np
 import pandas as pd
 
+from ._guard import FORMULA_ESCAPE, FORMULA_TRIGGERS, neutralize_frame
 from .exceptions import OutputError
 from .zones import Zoning
 
 __all__ = [
     "CAUTION",
+    "FORMULA_ESCAPE",
+    "FORMULA_TRIGGERS",
     "file_checksum",
     "jsonable",
     "library_versions",
+    "recover_outputs",
     "run_record",
     "write_outputs",
     "zoning_tables",
@@ -48,6 +76,13 @@ CAUTION = (
 
 #: Bytes read at a time when hashing input files.
 _HASH_CHUNK = 1 << 20
+
+#: Name of the commit journal of process ``pid`` in an output folder.
+_JOURNAL = ".specgraph-commit.{pid}.json"
+_JOURNAL_PATTERN = re.compile(r"^\.specgraph-commit\.(?P<pid>\d+)\.json$")
+#: Temporary files of process ``pid``: ``.<name>.<pid>.<random>.partial``
+#: (the journal's own temporary file included).
+_PARTIAL_PATTERN = re.compile(r"^\..+\.(?P<pid>\d+)\.[^.]+\.partial$")
 
 _LIBRARIES = ("specgraph", "numpy", "scipy", "pandas", "scikit-learn", "networkx")
 
@@ -182,7 +217,7 @@ def _write_temp(folder: Path, name: str, content: pd.DataFrame | Mapping[str, An
     with tempfile.NamedTemporaryFile(
         "w",
         dir=folder,
-        prefix=f".{name}.",
+        prefix=f".{name}.{os.getpid()}.",
         suffix=".partial",
         delete=False,
         encoding="utf-8",
@@ -191,7 +226,8 @@ def _write_temp(folder: Path, name: str, content: pd.DataFrame | Mapping[str, An
         temp = Path(handle.name)
         try:
             if isinstance(content, pd.DataFrame):
-                content.to_csv(handle, index=False, lineterminator="\n")
+                table = neutralize_frame(content)
+                table.to_csv(handle, index=False, lineterminator="\n", quoting=_quoting(table))
             else:
                 json.dump(content, handle, indent=2, allow_nan=False)
                 handle.write("\n")
@@ -204,16 +240,156 @@ def _write_temp(folder: Path, name: str, content: pd.DataFrame | Mapping[str, An
     return temp
 
 
+def _quoting(table: pd.DataFrame) -> Literal[0, 2]:
+    """Quote every text cell when one holds a carriage return, else only where needed.
+
+    Python's csv writer quotes a field holding a line break only for the
+    characters of its line terminator (``"\\n"`` here), so a bare ``"\\r"``
+    in an id would be written unquoted and end the row early in every reader.
+    Tables with such a cell (rare) are written with all text quoted instead.
+    """
+    texts = [table.columns.to_series()]
+    for position in range(table.shape[1]):
+        column = table.iloc[:, position]
+        if isinstance(column.dtype, pd.CategoricalDtype):
+            column = column.cat.categories.to_series()
+        texts.append(column)
+    for column in texts:
+        is_text = pd.api.types.is_object_dtype(column.dtype) or pd.api.types.is_string_dtype(
+            column.dtype
+        )
+        if is_text and column.str.contains("\r", regex=False, na=False).any():
+            return cast(Literal[2], csv.QUOTE_NONNUMERIC)
+    return cast(Literal[0], csv.QUOTE_MINIMAL)
+
+
 def _default_file_mode() -> int:
     umask = os.umask(0)
     os.umask(umask)
     return 0o666 & ~umask
 
 
+def _sync_folder(folder: Path) -> None:
+    """Make renames in ``folder`` durable (POSIX; a no-op where folders cannot be opened)."""
+    if os.name != "posix":
+        return
+    with contextlib.suppress(OSError):
+        descriptor = os.open(folder, os.O_RDONLY)
+        try:
+            os.fsync(descriptor)
+        finally:
+            os.close(descriptor)
+
+
+def _process_gone(pid: int) -> bool:
+    """True when no process ``pid`` exists (POSIX); False when unsure (nothing live is touched)."""
+    if os.name != "posix" or pid == os.getpid() or pid <= 0:
+        return False
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return True
+    except OSError:  # e.g. PermissionError: it exists, under another user
+        return False
+    return False
+
+
+def _stage_journal(folder: Path, staged: list[tuple[Path, Path]], stale: list[str]) -> Path:
+    """Put the commit journal of ``staged`` in place atomically; return its path."""
+    journal = folder / _JOURNAL.format(pid=os.getpid())
+    plan = {
+        "specgraph_commit": 1,
+        "moves": [[temp.name, final.name] for temp, final in staged],
+        "remove": stale,
+    }
+    os.replace(_write_temp(folder, journal.name, plan), journal)
+    _sync_folder(folder)
+    return journal
+
+
+def _commit(folder: Path, staged: list[tuple[Path, Path]], stale: list[str], journal: Path) -> None:
+    """Move the staged files into place, remove ``stale``, then drop the journal."""
+    mode = _default_file_mode()
+    for temp, final in staged:
+        # mkstemp creates files readable by the owner only; give the result the
+        # permissions an ordinary open() would have under the user's umask.
+        os.chmod(temp, mode)
+        os.replace(temp, final)
+    for name in stale:
+        (folder / name).unlink(missing_ok=True)
+    _sync_folder(folder)
+    journal.unlink()
+
+
+def recover_outputs(folder: str | Path) -> list[Path]:
+    """Finish or clean up what killed writers left in ``folder``.
+
+    For the commit journal of each process that no longer runs, the moves it
+    lists whose temporary file is still there are done (the new result was
+    complete when the journal was written), the files it lists for removal
+    are deleted, and the journal is removed. Then
+    the stale hidden ``.partial`` files of processes that no longer run are
+    deleted. Files of running processes (including this one) are left alone.
+    :func:`write_outputs` calls this first; call it before reading a folder
+    that a killed run may have written.
+
+    Parameters
+    ----------
+    folder : str or Path
+        An output folder; a missing folder is left missing.
+
+    Returns
+    -------
+    list of Path
+        The result files put in place by completing journals.
+    """
+    folder = Path(folder)
+    if not folder.is_dir():
+        return []
+    finished: list[Path] = []
+    names = sorted(entry.name for entry in os.scandir(folder))
+    for name in names:
+        match = _JOURNAL_PATTERN.match(name)
+        if match is None or not _process_gone(int(match["pid"])):
+            continue
+        journal = folder / name
+        try:
+            plan = json.loads(journal.read_text(encoding="utf-8"))
+            moves = [(str(temp), str(final)) for temp, final in plan["moves"]]
+            stale = [str(name) for name in plan.get("remove", [])]
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
+            continue  # not ours after all, or unreadable: leave it for a person to look at
+        mode = _default_file_mode()
+        for temp, final in moves:
+            source = folder / Path(temp).name
+            if source.exists():
+                with contextlib.suppress(FileNotFoundError):  # a concurrent recovery won
+                    os.chmod(source, mode)
+                    os.replace(source, folder / Path(final).name)
+                    finished.append(folder / Path(final).name)
+        for name in stale:
+            (folder / Path(name).name).unlink(missing_ok=True)
+        _sync_folder(folder)
+        journal.unlink(missing_ok=True)
+    for name in names:
+        match = _PARTIAL_PATTERN.match(name)
+        if match is not None and _process_gone(int(match["pid"])):
+            with contextlib.suppress(FileNotFoundError):
+                (folder / name).unlink()
+    return finished
+
+
 def write_outputs(
-    folder: str | Path, files: Mapping[str, pd.DataFrame | Mapping[str, Any]]
+    folder: str | Path,
+    files: Mapping[str, pd.DataFrame | Mapping[str, Any]],
+    *,
+    remove: Iterable[str] = (),
 ) -> list[Path]:
     """Write tables (CSV) and mappings (JSON) into ``folder``, all or nothing.
+
+    Text cells of the tables are neutralized against spreadsheet formulas
+    (see the module notes); numeric cells are written unchanged. Leftovers of
+    writers that were killed are handled first by :func:`recover_outputs`.
 
     Parameters
     ----------
@@ -222,6 +398,12 @@ def write_outputs(
     files : mapping
         File name to a DataFrame (written as CSV, no index) or a mapping
         (written as JSON).
+    remove : iterable of str, default=()
+        File names in ``folder`` that belong to the same kind of result but
+        not to this one (e.g. an optional table a previous run wrote); they
+        are deleted in the same commit as the new files are put in place, so
+        the folder never mixes them with the new result. Names in ``files``
+        are ignored here.
 
     Returns
     -------
@@ -229,11 +411,14 @@ def write_outputs(
         The files written, in the order given.
     """
     folder = Path(folder)
+    stale = sorted({Path(name).name for name in remove} - set(files))
     staged: list[tuple[Path, Path]] = []
     try:
         folder.mkdir(parents=True, exist_ok=True)
+        recover_outputs(folder)
         for name, content in files.items():
             staged.append((_write_temp(folder, name, content), folder / name))
+        journal = _stage_journal(folder, staged, stale)
     except BaseException as exc:
         for temp, _ in staged:
             with contextlib.suppress(OSError):
@@ -244,10 +429,5 @@ def write_outputs(
                 "choose another output folder"
             ) from exc
         raise
-    mode = _default_file_mode()
-    for temp, final in staged:
-        # mkstemp creates files readable by the owner only; give the result the
-        # permissions an ordinary open() would have under the user's umask.
-        os.chmod(temp, mode)
-        os.replace(temp, final)
+    _commit(folder, staged, stale, journal)
     return [final for _, final in staged]

@@ -128,6 +128,21 @@ def _refuse_unknown(
     )
 
 
+def _read_ids(frame: pd.DataFrame, column: Hashable) -> tuple[np.ndarray, np.ndarray]:
+    """Ids of a list or zone table, with the spreadsheet guard of our own exports undone.
+
+    specgraph writes a text cell that starts with ``=``, ``+``, ``-``, ``@``, tab or
+    carriage return with a leading ``'`` (see :mod:`specgraph._guard`), so a zone
+    table it wrote must read back to the network's ids; the quote is taken off
+    here (and only here: edge and node tables are read exactly as written).
+    """
+    from .._guard import restore_text
+
+    ids, empty = _ids(frame, column)
+    restored = restore_text(pd.Series(ids, dtype=object)).to_numpy(dtype=object)
+    return restored, empty
+
+
 def _located(path: str | None) -> Origin:
     """The origin of a table already read, with a line finder that reads lazily."""
     if path is None:
@@ -207,7 +222,7 @@ def read_node_list(
     origin = Origin(table.record["path"], table.locate)
     frame = table.frame
     _require_column(frame, node, origin, "the node column option")
-    ids, empty = _ids(frame, node)
+    ids, empty = _read_ids(frame, node)
     chosen = (
         np.ones(len(frame), dtype=bool) if flag is None else flag_mask(frame, flag, origin=origin)
     )
@@ -279,7 +294,7 @@ def read_link_list(
     ends = []
     for column in (source, target):
         _require_column(frame, column, origin, "--source/--target")
-        ids, empty = _ids(frame, column)
+        ids, empty = _read_ids(frame, column)
         if empty.any():
             raise origin.error(
                 "the node id is empty; fill it in or delete the row",
@@ -341,7 +356,7 @@ def read_zone_file(
     frame = table.frame
     for column in (node, zone):
         _require_column(frame, column, origin, "the node or zone column option")
-    ids, empty = _ids(frame, node)
+    ids, empty = _read_ids(frame, node)
     if empty.any():
         raise origin.error(
             "the node id is empty; fill it in or delete the row",
