@@ -17,6 +17,7 @@ import os
 import sys
 import textwrap
 from collections.abc import Iterator, Sequence
+from pathlib import Path
 from typing import Any
 
 from . import __version__
@@ -60,7 +61,8 @@ _EXIT_CODES = """\
 exit codes:
   0  success
   2  bad usage or bad input (the message names the file, line and column)
-  3  the eigen-solve did not reach its tolerance; no zones were written
+  3  the eigen-solve did not reach its tolerance; no zones were written, only
+     not-converged.json with the partial figures
   1  unexpected internal error (please report it with --debug output)
 """
 
@@ -849,8 +851,10 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str,
         partial = exc.partial
         logger.error("error: %s", exc)
         logger.error(
-            "partial residuals: %s; nothing was written", [f"{r:.3g}" for r in partial.residuals]
+            "partial residuals: %s; no zones were written",
+            [f"{r:.3g}" for r in partial.residuals],
         )
+        _record_not_converged(args, argv, exc)
         return EXIT_NOT_CONVERGED, None
     except (SpecgraphError, ValueError) as exc:
         if args.debug:
@@ -865,6 +869,39 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str,
         )
         return EXIT_INTERNAL, None
     return EXIT_OK, summary
+
+
+#: The only file a run whose eigen-solve missed its tolerance writes: the
+#: partial figures, for the record, next to (never in place of) earlier results.
+NOT_CONVERGED_FILE = "not-converged.json"
+
+
+def _record_not_converged(
+    args: argparse.Namespace, argv: list[str], error: ConvergenceError
+) -> None:
+    """Write the partial eigen-solve figures of a failed run to ``NOT_CONVERGED_FILE``."""
+    partial = error.partial
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "converged": False,
+        "message": str(error),
+        "eigen_solve": {
+            "method": partial.method,
+            "tol": partial.tol,
+            "values": partial.values,
+            "residuals": partial.residuals,
+            "matvecs": partial.matvecs,
+            "iterations": partial.iterations,
+        },
+        "caution": CAUTION,
+    }
+    try:
+        write_outputs(args.out, {NOT_CONVERGED_FILE: jsonable(record)})
+    except SpecgraphError as exc:  # the error already reported matters more
+        logger.error("could not record the partial figures: %s", exc)
+    else:
+        logger.error("partial figures recorded in %s", Path(args.out) / NOT_CONVERGED_FILE)
 
 
 def run() -> None:

@@ -507,7 +507,7 @@ def test_bad_usage_exits_2(
         pytest.param(["spectrum", "--count", "4"], id="spectrum"),
     ],
 )
-def test_missed_tolerance_exits_3_and_writes_nothing(
+def test_missed_tolerance_exits_3_and_writes_no_zones(
     tmp_path: Path, capsys: pytest.CaptureFixture[str], command: list[str]
 ) -> None:
     # Dense residuals are about 1e-16 on this graph: no solve can meet 1e-300.
@@ -520,8 +520,11 @@ def test_missed_tolerance_exits_3_and_writes_nothing(
     assert "residual" in err
     assert "tol=1e-300" in err
     assert "Traceback" not in err
-    assert not (out / "zones.csv").exists()
-    assert not out.exists()
+    # Only the record of the failure: no zones or spectrum presented as valid.
+    assert sorted(p.name for p in out.iterdir()) == ["not-converged.json"]
+    record = json.loads((out / "not-converged.json").read_text(encoding="utf-8"))
+    assert record["converged"] is False
+    assert max(record["eigen_solve"]["residuals"]) > record["eigen_solve"]["tol"]
 
 
 # ------------------------------------------------------------ help, version
