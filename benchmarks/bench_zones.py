@@ -135,6 +135,11 @@ import scipy.sparse as sp
 from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components
 
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+# bench_eigen.py is a sibling script: its child-process memory probes and the
+# git state of the checkout are shared rather than copied.
+from bench_eigen import _git_state, _peak_kib, _release_free_heap, _reset_peak, _status_kib
+
 logger = logging.getLogger("bench_zones")
 
 # --------------------------------------------------------------------------- options
@@ -590,39 +595,6 @@ PREPARE: dict[str, Callable[[Graph, dict[str, Any]], Prepared]] = {
 
 
 # --------------------------------------------------------------------------- child process
-
-
-def _status_kib(name: str) -> int | None:
-    try:
-        text = Path("/proc/self/status").read_text()
-    except OSError:
-        return None
-    match = re.search(rf"^{name}:\s+(\d+)\s+kB", text, re.MULTILINE)
-    return int(match.group(1)) if match else None
-
-
-def _release_free_heap() -> None:
-    """Return freed heap pages to the system (glibc), so that the RSS count sees reuse."""
-    try:
-        import ctypes
-
-        ctypes.CDLL("libc.so.6").malloc_trim(0)
-    except (OSError, AttributeError):
-        pass
-
-
-def _reset_peak() -> bool:
-    """Reset this process's peak RSS to its current RSS (Linux >= 4.0)."""
-    try:
-        Path("/proc/self/clear_refs").write_text("5")
-    except OSError:
-        return False
-    return True
-
-
-def _peak_kib() -> int:
-    peak = _status_kib("VmHWM")
-    return peak if peak is not None else resource.getrusage(resource.RUSAGE_SELF).ru_maxrss
 
 
 def warm_up(spec: dict[str, Any]) -> None:
@@ -1111,26 +1083,6 @@ def _version(package: str) -> str:
         return version(package)
     except PackageNotFoundError:
         return "not installed"
-
-
-def _git_state() -> str:
-    root = Path(__file__).resolve().parent.parent
-    try:
-        commit = subprocess.run(
-            ["git", "-C", str(root), "rev-parse", "--short", "HEAD"],
-            capture_output=True,
-            text=True,
-            check=True,
-        ).stdout.strip()
-        dirty = subprocess.run(
-            ["git", "-C", str(root), "status", "--porcelain", "--untracked-files=no"],
-            capture_output=True,
-            text=True,
-            check=True,
-        ).stdout.strip()
-    except (OSError, subprocess.CalledProcessError):
-        return "not a git checkout"
-    return f"commit {commit}" + (" with uncommitted changes" if dirty else "")
 
 
 def header(args: argparse.Namespace, argv: list[str]) -> list[str]:
