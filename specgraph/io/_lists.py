@@ -143,6 +143,19 @@ def _read_ids(frame: pd.DataFrame, column: Hashable) -> tuple[np.ndarray, np.nda
     return restored, empty
 
 
+def _refuse_empty(
+    empty: np.ndarray, *, frame: pd.DataFrame, column: Hashable, origin: Origin
+) -> None:
+    """Raise at the first row whose id is empty."""
+    if empty.any():
+        raise origin.error(
+            "the node id is empty; fill it in or delete the row",
+            frame=frame,
+            column=column,
+            row=int(np.flatnonzero(empty)[0]),
+        )
+
+
 def _located(path: str | None) -> Origin:
     """The origin of a table already read, with a line finder that reads lazily."""
     if path is None:
@@ -226,14 +239,7 @@ def read_node_list(
     chosen = (
         np.ones(len(frame), dtype=bool) if flag is None else flag_mask(frame, flag, origin=origin)
     )
-    bad = np.flatnonzero(empty & chosen)
-    if bad.size:
-        raise origin.error(
-            "the node id is empty; fill it in or delete the row",
-            frame=frame,
-            column=node,
-            row=int(bad[0]),
-        )
+    _refuse_empty(empty & chosen, frame=frame, column=node, origin=origin)
     rows = np.flatnonzero(chosen)
     _refuse_unknown(
         ids[rows],
@@ -295,13 +301,7 @@ def read_link_list(
     for column in (source, target):
         _require_column(frame, column, origin, "--source/--target")
         ids, empty = _read_ids(frame, column)
-        if empty.any():
-            raise origin.error(
-                "the node id is empty; fill it in or delete the row",
-                frame=frame,
-                column=column,
-                row=int(np.flatnonzero(empty)[0]),
-            )
+        _refuse_empty(empty, frame=frame, column=column, origin=origin)
         _refuse_unknown(ids, network, frame=frame, column=column, origin=origin, option=option)
         ends.append(ids)
     if network is not None:
@@ -357,13 +357,7 @@ def read_zone_file(
     for column in (node, zone):
         _require_column(frame, column, origin, "the node or zone column option")
     ids, empty = _read_ids(frame, node)
-    if empty.any():
-        raise origin.error(
-            "the node id is empty; fill it in or delete the row",
-            frame=frame,
-            column=node,
-            row=int(np.flatnonzero(empty)[0]),
-        )
+    _refuse_empty(empty, frame=frame, column=node, origin=origin)
     repeated = pd.Series(ids).duplicated().to_numpy()
     if repeated.any():
         row = int(np.flatnonzero(repeated)[0])
