@@ -38,6 +38,8 @@ from specgraph.io import read_edges, read_node_list, read_table, read_zone_file
 from specgraph.zones import ZoneConstraints
 
 #: Examples per reader test in the default run (each is one small file, milliseconds).
+#: The default-run tests are derandomized (the same examples every run, so CI cannot
+#: flake); the ``slow`` variants draw fresh examples each time.
 READER_EXAMPLES = 60
 #: Examples of the zoning test in the default run (each a full zoning of <= 60 nodes).
 ZONING_EXAMPLES = 40
@@ -95,7 +97,7 @@ def _check_bytes(data: bytes, suffix: str) -> None:
             _try_reader(name, path)
 
 
-@settings(max_examples=READER_EXAMPLES, deadline=None, database=None)
+@settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
 @given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet"]))
 def test_random_bytes_never_crash_a_reader(data: bytes, suffix: str) -> None:
     _check_bytes(data, suffix)
@@ -173,7 +175,7 @@ def table_files(draw: st.DrawFn) -> bytes:
     return (b"\xef\xbb\xbf" if bom else b"") + data
 
 
-@settings(max_examples=READER_EXAMPLES, deadline=None, database=None)
+@settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
 @given(data=table_files())
 def test_random_tables_never_crash_a_reader(data: bytes) -> None:
     _check_bytes(data, ".csv")
@@ -299,7 +301,7 @@ def _check_pipeline(
     event(outcome)
 
 
-@settings(max_examples=ZONING_EXAMPLES, deadline=None, database=None)
+@settings(max_examples=ZONING_EXAMPLES, deadline=None, database=None, derandomize=True)
 @given(data=st.data())
 def test_random_graphs_zone_or_refuse(data: st.DataObject) -> None:
     graph = data.draw(graphs())
