@@ -425,12 +425,9 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
     return network, inputs
 
 
-def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
-    """The zone constraints the options ask for, read from their files and columns.
-
-    Ids in rule files are checked against the network here, so that an unknown
-    id is reported at its file, line and column.
-    """
+def _read_sources(network: Network, args: argparse.Namespace) -> tuple[str, ...]:
+    """Supply points from ``--supply-col`` and ``--supply-list``, each once, checked
+    against the network so that an unknown id is reported at its file and line."""
     sources: tuple[str, ...] = ()
     if getattr(args, "supply_col", None):
         sources += read_node_list(
@@ -444,6 +441,16 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
         sources += read_node_list(
             args.supply_list, node=args.node_col, network=network, option="--supply-list"
         )
+    return tuple(dict.fromkeys(sources))
+
+
+def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
+    """The zone constraints the options ask for, read from their files and columns.
+
+    Ids in rule files are checked against the network here, so that an unknown
+    id is reported at its file, line and column.
+    """
+    sources = _read_sources(network, args)
     keep: list[tuple[str, str]] = []
     if getattr(args, "keep_col", None):
         ids = network.node_ids
@@ -464,7 +471,7 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
         min_size=args.min_size,
         max_size=args.max_size,
         size_by="weight" if by_size else "nodes",
-        sources=tuple(dict.fromkeys(sources)),
+        sources=sources,
         keep_links=tuple(keep),
         fixed=fixed,
     )
@@ -581,18 +588,14 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     network, inputs = _read(args)
     mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
     labels, coverage = labels_from_mapping(network, mapping, path=args.zones_file)
-    sources: tuple[str, ...] = ()
-    if args.supply_col:
-        sources += read_node_list(args.nodes, node=args.node_col, flag=args.supply_col)
-    if args.supply_list:
-        sources += read_node_list(args.supply_list, node=args.node_col)
+    sources = _read_sources(network, args)
     inputs.append(
         {"role": "zones", "path": args.zones_file, "checksum": file_checksum(args.zones_file)}
     )
     card = score(
         network,
         labels,
-        sources=tuple(dict.fromkeys(sources)) if sources else None,
+        sources=sources or None,
         eigengap=not args.no_eigengap,
         rng=args.seed,
         tol=args.tol,

@@ -162,3 +162,19 @@ def test_json_summaries(tmp_path: Path, capsys: pytest.CaptureFixture[str], comm
         assert summary["summary"]["adjusted_rand"] == pytest.approx(1.0)
     else:
         assert summary["summary"]["bridges"] == len(list(nx.bridges(graph)))
+
+
+def test_score_unknown_supply_id_named_at_its_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    edges, zones, _ = barbell_files(tmp_path)
+    supply = tmp_path / "inlets.csv"
+    supply.write_text("node\nBJ-000\nBJ-999\n", encoding="utf-8")
+    out = tmp_path / "out"
+    code = main(["score", str(edges), str(zones), "--supply-list", str(supply), "--out", str(out)])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    # Same rule as `specgraph zones`: the file, the line and the option are named.
+    for words in ("inlets.csv", "line 3", "'BJ-999'", "--supply-list"):
+        assert words in err
+    assert not out.exists()
