@@ -36,7 +36,14 @@ from .diagnostics import (
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
 from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
 from .export import CAUTION, file_checksum, jsonable, run_record, write_outputs, zoning_tables
-from .io import flagged_links, read_edges, read_link_list, read_node_list, read_zone_file
+from .io import (
+    GRAPHML_SUFFIXES,
+    flagged_links,
+    read_edges,
+    read_link_list,
+    read_node_list,
+    read_zone_file,
+)
 from .network import Network
 from .operators import laplacian
 from .zones import (
@@ -104,8 +111,14 @@ def _caution_epilog(examples: str) -> str:
 
 def _add_reading(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("reading the network")
-    group.add_argument("edges", metavar="EDGES", help="edge table (CSV, or Parquet)")
-    group.add_argument("--nodes", metavar="NODES", help="node table (ids, coordinates, sizes)")
+    group.add_argument(
+        "edges",
+        metavar="EDGES",
+        help="edge table (CSV or Parquet), or a GraphML file holding nodes and edges",
+    )
+    group.add_argument(
+        "--nodes", metavar="NODES", help="node table (ids, coordinates, sizes); not with GraphML"
+    )
     group.add_argument("--source", default="source", metavar="COL", help="link start column")
     group.add_argument("--target", default="target", metavar="COL", help="link end column")
     group.add_argument(
@@ -392,8 +405,18 @@ def build_parser() -> argparse.ArgumentParser:
     return parser
 
 
+def _holds_nodes(path: str) -> bool:
+    """Whether the edge file also holds the node table (GraphML does)."""
+    return Path(path).suffix.lower() in GRAPHML_SUFFIXES
+
+
+def _node_table(args: argparse.Namespace) -> str:
+    """The file whose node table node-column options refer to."""
+    return str(args.nodes) if args.nodes else str(args.edges)
+
+
 def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespace) -> None:
-    if getattr(args, "edges", None) is None or args.nodes:
+    if getattr(args, "edges", None) is None or args.nodes or _holds_nodes(args.edges):
         return
     for option, value in (
         ("--size-col", args.size_col),
@@ -431,7 +454,7 @@ def _read_sources(network: Network, args: argparse.Namespace) -> tuple[str, ...]
     sources: tuple[str, ...] = ()
     if getattr(args, "supply_col", None):
         sources += read_node_list(
-            args.nodes,
+            _node_table(args),
             node=args.node_col,
             flag=args.supply_col,
             network=network,

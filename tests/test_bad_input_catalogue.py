@@ -502,6 +502,218 @@ def test_zone_count_not_a_count(
     refused(capsys, tmp_path, "zones", edges, "--zones", value, names=["--zones"])
 
 
+# ------------------------------------------------------------------ GraphML
+GRAPHML_HEAD = '<?xml version="1.0" encoding="UTF-8"?>\n'
+GRAPHML_OPEN = '<graphml xmlns="http://graphml.graphdrawing.org/xmlns">\n'
+
+
+def graphml(body: str, *, doctype: str = "", keys: str = "") -> str:
+    """A GraphML document: line 1 the declaration, then the doctype lines, the root, keys, body."""
+    return GRAPHML_HEAD + doctype + GRAPHML_OPEN + keys + body + "</graphml>\n"
+
+
+TRIANGLES_GRAPHML = (
+    '<graph edgedefault="undirected">\n'
+    + "".join(f'<node id="J{i}"/>\n' for i in range(1, 7))
+    + "".join(
+        f'<edge source="{a}" target="{b}"/>\n'
+        for a, b in [
+            ("J1", "J2"),
+            ("J2", "J3"),
+            ("J3", "J1"),
+            ("J3", "J4"),
+            ("J4", "J5"),
+            ("J5", "J6"),
+            ("J6", "J4"),
+        ]
+    )
+    + "</graph>\n"
+)
+
+# The "billion laughs" pattern (OWASP XML External Entity Prevention Cheat Sheet; the
+# defusedxml documentation): nine levels of ten-fold entity references, 10**9 copies.
+_LAUGHS = "".join(
+    f'<!ENTITY lol{level} "{("&lol" + str(level - 1) + ";") * 10}">\n' for level in range(1, 10)
+)
+BOMB_DOCTYPE = '<!DOCTYPE graphml [\n<!ENTITY lol0 "lol">\n' + _LAUGHS + "]>\n"
+
+
+def test_graphml_entity_bomb_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    body = '<graph><node id="&lol9;"/><node id="b"/><edge source="b" target="b"/></graph>\n'
+    path = write(tmp_path, "bomb.graphml", graphml(body, doctype=BOMB_DOCTYPE))
+    # The first declaration is on line 3 (line 1: XML declaration, line 2: <!DOCTYPE).
+    refused(capsys, tmp_path, "zones", path, names=["bomb.graphml", "line 3", "entit"])
+
+
+def test_graphml_external_entity_refused(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    secret = write(tmp_path, "secret.txt", "J1")
+    doctype = f'<!DOCTYPE graphml [ <!ENTITY leak SYSTEM "{secret.as_uri()}"> ]>\n'
+    body = '<graph><node id="&leak;"/><node id="J2"/><edge source="J1" target="J2"/></graph>\n'
+    path = write(tmp_path, "leak.graphml", graphml(body, doctype=doctype))
+    err = refused(capsys, tmp_path, "zones", path, names=["leak.graphml", "line 2", "leak"])
+    assert "J1," not in err
+
+
+def test_graphml_external_dtd_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # A reserved, never-resolving name (RFC 6761 .invalid): a fetch attempt could not succeed.
+    doctype = '<!DOCTYPE graphml SYSTEM "http://graphml.invalid/graphml.dtd">\n'
+    path = write(tmp_path, "dtd.graphml", graphml(TRIANGLES_GRAPHML, doctype=doctype))
+    refused(capsys, tmp_path, "zones", path, names=["dtd.graphml", "graphml.invalid"])
+
+
+@pytest.mark.parametrize(
+    ("text", "line", "column"),
+    [
+        # On line 3, </graph> (at 1-based column 50) does not match the open <edge>; the
+        # XML parser (expat) points at the end tag's name, 1-based column 52.
+        pytest.param(
+            GRAPHML_HEAD + GRAPHML_OPEN + '<graph><node id="a"/><edge source="a" target="a">'
+            "</graph>\n</graphml>\n",
+            "line 3",
+            "column 52",
+            id="mismatched",
+        ),
+        pytest.param(
+            GRAPHML_HEAD + GRAPHML_OPEN + "<graph>\n", "line 4", "column 1", id="truncated"
+        ),
+    ],
+)
+def test_graphml_not_well_formed(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, text: str, line: str, column: str
+) -> None:
+    path = write(tmp_path, "broken.graphml", text)
+    refused(capsys, tmp_path, "zones", path, names=["broken.graphml", line, column, "XML"])
+
+
+def test_graphml_wrong_root(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    path = write(tmp_path, "svg.graphml", GRAPHML_HEAD + '<svg width="10"/>\n')
+    refused(capsys, tmp_path, "zones", path, names=["svg.graphml", "line 2", "<svg>", "GraphML"])
+
+
+@pytest.mark.parametrize(
+    ("body", "element"),
+    [
+        pytest.param(
+            '<graph>\n<node id="a"/>\n<hyperedge><endpoint node="a"/></hyperedge>\n</graph>\n',
+            "<hyperedge>",
+            id="hyperedge",
+        ),
+        pytest.param(
+            '<graph>\n<node id="a"/>\n<node id="b"><port name="p"/></node>\n</graph>\n',
+            "<port>",
+            id="port",
+        ),
+        pytest.param(
+            '<graph>\n<node id="a"/>\n<node id="b"><graph id="inner"/></node>\n</graph>\n',
+            "nested",
+            id="nested-graph",
+        ),
+        pytest.param(
+            '<graph>\n<node id="a"/>\n</graph><graph>\n</graph>\n', "more than one", id="two-graphs"
+        ),
+    ],
+)
+def test_graphml_unsupported_elements(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, body: str, element: str
+) -> None:
+    # Line 1 declaration, 2 root, 3 <graph>, 4 first node: the offending element is on line 5.
+    path = write(tmp_path, "odd.graphml", graphml(body))
+    refused(capsys, tmp_path, "zones", path, names=["odd.graphml", "line 5", element])
+
+
+@pytest.mark.parametrize(
+    ("keys", "data", "words"),
+    [
+        pytest.param("", '<data key="w">2</data>', "no <key>", id="undeclared"),
+        pytest.param(
+            '<key id="w" for="node" attr.name="pressure"/>\n',
+            '<data key="w">2</data>',
+            "for='node'",
+            id="node-key-on-edge",
+        ),
+    ],
+)
+def test_graphml_undeclared_key(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, keys: str, data: str, words: str
+) -> None:
+    body = (
+        '<graph>\n<node id="a"/><node id="b"/>\n'
+        f'<edge source="a" target="b">{data}</edge>\n</graph>\n'
+    )
+    path = write(tmp_path, "keys.graphml", graphml(body, keys=keys))
+    line = 5 + keys.count("\n")
+    refused(capsys, tmp_path, "zones", path, names=["keys.graphml", f"line {line}", words])
+
+
+def test_graphml_bad_weight_names_edge_line(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    keys = '<key id="d0" for="edge" attr.name="capacity"/>\n'
+    edges = [("J1", "J2", "3"), ("J2", "J3", "2"), ("J3", "J1", "-4")]
+    body = (
+        "<graph>\n"
+        + "".join(f'<node id="J{i}"/>\n' for i in range(1, 4))
+        + "".join(
+            f'<edge source="{a}" target="{b}"><data key="d0">{w}</data></edge>\n'
+            for a, b, w in edges
+        )
+        + "</graph>\n"
+    )
+    path = write(tmp_path, "caps.graphml", graphml(body, keys=keys))
+    # Lines: 1 declaration, 2 root, 3 key, 4 <graph>, 5-7 nodes, 8-10 edges: -4 is on line 10.
+    err = refused(
+        capsys, tmp_path, "zones", path, "--weight", "capacity", names=["line 10", "capacity", "-4"]
+    )
+    assert "(column" not in err  # positions of frame columns mean nothing in XML
+
+
+def test_graphml_edge_to_undeclared_node(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    body = (
+        '<graph>\n<node id="a"/>\n<node id="b"/>\n<edge source="a" target="b"/>\n'
+        '<edge source="b" target="zz"/>\n</graph>\n'
+    )
+    path = write(tmp_path, "ends.graphml", graphml(body))
+    refused(capsys, tmp_path, "zones", path, names=["ends.graphml", "line 7", "zz"])
+
+
+def test_graphml_with_node_table_refused(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    path = write(tmp_path, "net.graphml", graphml(TRIANGLES_GRAPHML))
+    nodes = write(tmp_path, "nodes.csv", "node\nJ1\n")
+    refused(capsys, tmp_path, "zones", path, "--nodes", nodes, names=["nodes", "GraphML"])
+
+
+def test_graphml_directed_edges_counted(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    text = graphml(TRIANGLES_GRAPHML.replace("undirected", "directed"))
+    path = write(tmp_path, "flow.graphml", text)
+    record, zones, _ = zoned(capsys, tmp_path, path, "--zones", "2")
+    assert policy(record)["edge_table"]["directed_edges"] == 7
+    # Read as undirected: the two triangles are the two zones (hand-known answer).
+    halves = zones.groupby("zone")["node"].apply(lambda s: sorted(s)).tolist()
+    assert sorted(halves) == [["J1", "J2", "J3"], ["J4", "J5", "J6"]]
+
+
+def test_graphml_key_defaults_applied(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # Every link weighs 5 by default except the bridge J3-J4, which weighs 0.5.
+    keys = '<key id="w" for="edge" attr.name="strength"><default>5</default></key>\n'
+    body = TRIANGLES_GRAPHML.replace(
+        '<edge source="J3" target="J4"/>',
+        '<edge source="J3" target="J4"><data key="w">0.5</data></edge>',
+    )
+    path = write(tmp_path, "defaults.graphml", graphml(body, keys=keys))
+    record, _, _ = zoned(capsys, tmp_path, path, "--weight", "strength", "--zones", "2")
+    out = tmp_path / "out"
+    boundary = pd.read_csv(out / "boundary.csv", dtype={"source": str, "target": str})
+    assert boundary[["source", "target"]].values.tolist() == [["J3", "J4"]]
+    assert boundary["weight"].tolist() == [0.5]
+    assert record["network"]["links"] == 7
+
+
 # ----------------------------------------------------------------- rules
 UNKNOWN_IN_RULE_FILES = [
     pytest.param("--supply-list", "supply.csv", "node\nJ1\nQX-9\n", "'QX-9'", id="supply-list"),

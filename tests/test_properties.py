@@ -83,7 +83,14 @@ def byte_files(draw: st.DrawFn) -> bytes:
     """Random bytes, sometimes after a plausible header or a byte-order mark."""
     lead = draw(
         st.sampled_from(
-            [b"", b"\xef\xbb\xbf", b"source,target\n", b"node,zone\n", b"source,target,weight\n"]
+            [
+                b"",
+                b"\xef\xbb\xbf",
+                b"source,target\n",
+                b"node,zone\n",
+                b"source,target,weight\n",
+                b'<?xml version="1.0"?>\n<graphml>',
+            ]
         )
     )
     return lead + draw(st.binary(max_size=300))
@@ -98,14 +105,14 @@ def _check_bytes(data: bytes, suffix: str) -> None:
 
 
 @settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
-@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet"]))
+@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml"]))
 def test_random_bytes_never_crash_a_reader(data: bytes, suffix: str) -> None:
     _check_bytes(data, suffix)
 
 
 @pytest.mark.slow
 @settings(max_examples=READER_SLOW_EXAMPLES, deadline=None, database=None)
-@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet"]))
+@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml"]))
 def test_random_bytes_never_crash_a_reader_long(data: bytes, suffix: str) -> None:
     _check_bytes(data, suffix)
 
@@ -173,6 +180,48 @@ def table_files(draw: st.DrawFn) -> bytes:
     encoding = draw(st.sampled_from(["utf-8", "utf-8", "latin-1"]))
     data = text.encode(encoding, errors="replace")
     return (b"\xef\xbb\xbf" if bom else b"") + data
+
+
+# --------------------------------------------------------- random GraphML
+#: Elements drawn for random GraphML documents: the format's own (Brandes et al. 2001,
+#: GraphML structural layer) and some it does not allow where they are put.
+_XML_ELEMENTS = ("graph", "node", "edge", "key", "data", "default", "hyperedge", "port", "desc")
+_XML_ATTRIBUTES = ("id", "source", "target", "key", "for", "attr.name", "edgedefault", "directed")
+_XML_TEXT = st.sampled_from(["", "a", "b", "1", "-2", "nan", "1e308", "&amp;", "edge", "node"])
+
+
+@st.composite
+def xml_elements(draw: st.DrawFn, depth: int = 0) -> str:
+    """One random element with random attributes, text and (to depth 3) children."""
+    name = draw(st.sampled_from(_XML_ELEMENTS))
+    names = draw(st.lists(st.sampled_from(_XML_ATTRIBUTES), max_size=3, unique=True))
+    attrs = "".join(f' {a}="{draw(_XML_TEXT)}"' for a in names)
+    children = "" if depth >= 3 else "".join(draw(st.lists(xml_elements(depth + 1), max_size=3)))
+    return f"<{name}{attrs}>{draw(_XML_TEXT)}{children}</{name}>"
+
+
+@st.composite
+def graphml_files(draw: st.DrawFn) -> bytes:
+    """Random GraphML-shaped documents, sometimes cut short or with a document type."""
+    root = draw(st.sampled_from(["graphml", "graph", "svg"]))
+    doctype = draw(st.sampled_from(["", '<!DOCTYPE graphml [<!ENTITY e "x">]>\n']))
+    body = "".join(draw(st.lists(xml_elements(), max_size=6)))
+    text = f'<?xml version="1.0"?>\n{doctype}<{root}>{body}</{root}>\n'.encode()
+    cut = draw(st.integers(min_value=0, max_value=len(text)))
+    return text if draw(st.booleans()) else text[:cut]
+
+
+@settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
+@given(data=graphml_files())
+def test_random_graphml_never_crashes_a_reader(data: bytes) -> None:
+    _check_bytes(data, ".graphml")
+
+
+@pytest.mark.slow
+@settings(max_examples=READER_SLOW_EXAMPLES, deadline=None, database=None)
+@given(data=graphml_files())
+def test_random_graphml_never_crashes_a_reader_long(data: bytes) -> None:
+    _check_bytes(data, ".graphml")
 
 
 @settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)

@@ -1,18 +1,21 @@
-"""Reading networks from tables: CSV and Parquet files, and pandas frames.
+"""Reading networks from tables: CSV, Parquet and GraphML files, and pandas frames.
 
 Node ids are read as strings, exactly as written. Every error names the file,
 line and column it found and says what to do.
 """
 
 from ._frames import network_from_frames
+from ._graphml import GRAPHML_SUFFIXES, read_graphml
 from ._lists import flag_mask, flagged_links, read_link_list, read_node_list, read_zone_file
 from ._tables import read_edges, read_table
 
 __all__ = [
+    "GRAPHML_SUFFIXES",
     "flag_mask",
     "flagged_links",
     "network_from_frames",
     "read_edges",
+    "read_graphml",
     "read_link_list",
     "read_node_list",
     "read_table",

@@ -88,7 +88,8 @@ class Origin:
             if line is None:
                 message = f"row {row + 1}: {message}"
         number = None
-        if frame is not None and column is not None and column in frame.columns:
+        numbered = getattr(self.locate, "column_numbers", True)
+        if numbered and frame is not None and column is not None and column in frame.columns:
             number = list[Hashable](frame.columns).index(column) + 1
         name = None if column is None else str(column)
         return InputError(message, path=self.path, line=line, column=name, column_number=number)

@@ -16,7 +16,7 @@ import pandas as pd
 
 from ..network import Network
 from ._frames import Origin, _ids
-from ._tables import _load_table, read_table
+from ._tables import _load_table
 
 __all__ = [
     "FLAG_FALSE",
@@ -162,8 +162,7 @@ def _located(path: str | None) -> Origin:
         return Origin()
 
     def locate(row: int) -> int | None:
-        _, finder = read_table(path)
-        return finder(row)
+        return _load_table(path, delimiter=None, graphml="edges").locate(row)
 
     return Origin(path, locate)
 
@@ -294,7 +293,7 @@ def read_link_list(
     InputError
         Missing columns or empty ids, naming file, line and column.
     """
-    table = _load_table(path, delimiter=delimiter)
+    table = _load_table(path, delimiter=delimiter, graphml="edges")
     origin = Origin(table.record["path"], table.locate)
     frame = table.frame
     ends = []

@@ -19,13 +19,14 @@ import warnings
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, TextIO
+from typing import Any, Literal, TextIO
 
 import pandas as pd
 
 from ..exceptions import InputError, ParameterError
 from ..network import Network
 from ._frames import Columns, Origin, build_network
+from ._graphml import GRAPHML_SUFFIXES, read_graphml
 
 __all__ = ["read_edges", "read_table"]
 
@@ -380,13 +381,44 @@ def _parquet_text(column: Any) -> pd.Series:
     return text.to_pandas()
 
 
+# ------------------------------------------------------------ GraphML
+def _load_graphml(path: Any, nodes: Any) -> tuple[_Table, _Table | None]:
+    """The edge and node tables of a GraphML file (which holds both)."""
+    checked = _checked_path(path)
+    if nodes is not None:
+        raise ParameterError(
+            f"nodes: a GraphML file holds its own nodes, so no separate node table can be "
+            f"given; received nodes={str(nodes)!r} with the GraphML file {str(checked)!r}"
+        )
+    try:
+        tables = read_graphml(checked)
+    except IsADirectoryError:
+        raise InputError(_FOLDER, path=checked) from None
+    except FileNotFoundError:
+        raise InputError(_NO_FILE, path=checked) from None
+    except OSError as exc:
+        raise _unreadable(checked, exc) from None
+    edges = _Table(tables.edges, tables.edge_lines, tables.record)
+    if tables.nodes.empty:
+        return edges, None
+    return edges, _Table(tables.nodes, tables.node_lines, tables.record)
+
+
 # ------------------------------------------------------------ public API
-def _load_table(path: Any, *, delimiter: str | None) -> _Table:
+def _load_table(
+    path: Any, *, delimiter: str | None, graphml: Literal["nodes", "edges"] = "nodes"
+) -> _Table:
+    """One table of a file; of a GraphML file (which holds two), the one ``graphml`` names."""
     checked = _checked_path(path)
     delimiter = _checked_delimiter(delimiter)
     try:
         if checked.suffix.lower() in PARQUET_SUFFIXES:
             return _read_parquet(checked)
+        if checked.suffix.lower() in GRAPHML_SUFFIXES:
+            tables = read_graphml(checked)
+            if graphml == "edges":
+                return _Table(tables.edges, tables.edge_lines, tables.record)
+            return _Table(tables.nodes, tables.node_lines, tables.record)
         return _read_csv(checked, delimiter)
     except IsADirectoryError:
         raise InputError(_FOLDER, path=checked) from None
@@ -458,7 +490,12 @@ def read_edges(
     Parameters
     ----------
     path : str or path-like
-        The edge table: one row per link.
+        The edge table: one row per link. A ``.graphml`` file holds both
+        tables: its edges (columns ``source``, ``target`` and one per edge
+        key, by the key's ``attr.name``) and its nodes (column ``node`` and
+        one per node key); it is parsed with entity declarations and external
+        references refused (see :mod:`specgraph.io._graphml`), and ``nodes``
+        must then be ``None``.
     source, target, weight, distance, node, x, y, size
         As for :func:`network_from_frames`.
     nodes : str or path-like, default=None
@@ -473,8 +510,11 @@ def read_edges(
         Its ``notes`` also record, under ``"edge_table"`` (and ``"node_table"``),
         the file, its format and the delimiter used.
     """
-    edges = _load_table(path, delimiter=delimiter)
-    node_table = None if nodes is None else _load_table(nodes, delimiter=delimiter)
+    if _checked_path(path).suffix.lower() in GRAPHML_SUFFIXES:
+        edges, node_table = _load_graphml(path, nodes)
+    else:
+        edges = _load_table(path, delimiter=delimiter)
+        node_table = None if nodes is None else _load_table(nodes, delimiter=delimiter)
     notes = {"edge_table": edges.record}
     if node_table is not None:
         notes["node_table"] = node_table.record
