@@ -16,12 +16,13 @@ import math
 import os
 import sys
 import textwrap
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
 from . import __version__
 from ._guard import check_memory
+from ._progress import stage_progress, wants_progress
 from .diagnostics import (
     DEFAULT_REPEATS,
     DEFAULT_SPREAD,
@@ -140,7 +141,9 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
 def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
     parser.add_argument("--out", default=out, metavar="DIR", help=f"output folder (default {out})")
     parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
-    parser.add_argument("--quiet", action="store_true", help="only errors on stderr")
+    parser.add_argument(
+        "--quiet", action="store_true", help="only errors on stderr (no messages, no progress bars)"
+    )
     parser.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
 
 
@@ -501,14 +504,20 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
 
 
 def _zone_and_write(
-    network: Network, inputs: list[dict[str, Any]], args: argparse.Namespace, argv: list[str]
+    network: Network,
+    inputs: list[dict[str, Any]],
+    args: argparse.Namespace,
+    argv: list[str],
+    step: Callable[[str], None],
 ) -> dict[str, Any]:
+    step("reading rules")
     constraints = _constraints(network, args)  # reads (and checks) the rule files first
     for option in ("supply_list", "keep_list", "fixed"):
         path = getattr(args, option, None)
         if path:
             role = option.replace("_", " ")
             inputs.append({"role": role, "path": path, "checksum": file_checksum(path)})
+    step("zoning")
     zoning = find_zones(
         network,
         args.zones,
@@ -520,6 +529,7 @@ def _zone_and_write(
         tol=args.tol,
         rng=args.seed,
     )
+    step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     written = write_outputs(args.out, {**zoning_tables(zoning), "run.json": record})
     for message in zoning.warnings:
@@ -538,10 +548,16 @@ def _zone_and_write(
     return {"out": str(args.out), "scores": scores, "warnings": list(zoning.warnings)}
 
 
+#: Stages of a zoning run, as the progress bar counts them.
+ZONING_STAGES = ["reading", "reading rules", "zoning", "writing"]
+
+
 def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    network, inputs = _read(args)
-    logger.info("read %r", network)
-    return _zone_and_write(network, inputs, args, argv)
+    with stage_progress(ZONING_STAGES, enabled=args.progress) as step:
+        step("reading")
+        network, inputs = _read(args)
+        logger.info("read %r", network)
+        return _zone_and_write(network, inputs, args, argv, step)
 
 
 def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -555,7 +571,8 @@ def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     ]
     args.count_nodes = False
     logger.info("demo: the invented town of Quillmere, %r", network)
-    return _zone_and_write(network, inputs, args, argv)
+    with stage_progress(ZONING_STAGES[1:], enabled=args.progress) as step:
+        return _zone_and_write(network, inputs, args, argv, step)
 
 
 def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -790,6 +807,7 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         spread=args.spread,
         zone_options=options,
         rng=args.seed,
+        progress=args.progress,
     )
     record = {
         "specgraph_run": 1,
@@ -860,6 +878,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         _check_node_options(parser, args)
     except SystemExit as exc:  # argparse exits 2 on bad usage, 0 on --help
         return int(exc.code or 0)
+    args.progress = wants_progress(quiet=args.quiet)
     with _messages_to_stderr(args.quiet):
         code, summary = _dispatch(args, argv)
     if summary is not None and args.json:

@@ -44,6 +44,7 @@ from scipy.optimize import linear_sum_assignment
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 from sklearn.metrics import adjusted_rand_score
 
+from .._progress import count_progress
 from .._validation import check_int, check_positive_float, check_rng
 from ..exceptions import ConvergenceError, ParameterError
 from ..network import Network
@@ -585,6 +586,7 @@ def stability(
     zone_options: dict[str, Any] | None = None,
     reference: Zoning | None = None,
     rng: Any = None,
+    progress: bool = False,
 ) -> Stability:
     """Repeat a zoning over seeds and perturbed weights; per-node confidence and warnings.
 
@@ -614,6 +616,8 @@ def stability(
         with :meth:`numpy.random.Generator.spawn`), the noise, and the
         Lanczos start of the norm estimate. Perturbed runs reuse the
         reference's seed, so they show the effect of the weights alone.
+    progress : bool, default=False
+        Show a bar over the runs on standard error (tqdm).
 
     Returns
     -------
@@ -700,45 +704,50 @@ def stability(
         children[-1],
     )
 
-    def zone(net: Network, stream: np.random.Generator) -> Zoning:
-        start = time.perf_counter()
-        result = find_zones(net, zones, rng=stream, **options)
-        logger.info(
-            "stability run: %d zones in %.2f s", result.n_zones, time.perf_counter() - start
-        )
-        return result
+    runs_due = 2 * repeats + (1 if reference is None else 0)
+    with count_progress(runs_due, what="stability runs", enabled=progress) as advance:
 
-    if reference is None:
-        reference = zone(network, copy.deepcopy(zoning_stream))
-    ref_labels = reference.labels
-    k_ref = int(ref_labels.max()) + 1
-    stays = {"seed": np.zeros(network.n_nodes), "perturbed": np.zeros(network.n_nodes)}
-    jaccard = np.zeros(k_ref)
-    records: list[dict[str, Any]] = []
-    bounds: pd.DataFrame | None = None
-    dk_notes: list[str] = []
+        def zone(net: Network, stream: np.random.Generator) -> Zoning:
+            start = time.perf_counter()
+            result = find_zones(net, zones, rng=stream, **options)
+            advance()
+            logger.info(
+                "stability run: %d zones in %.2f s", result.n_zones, time.perf_counter() - start
+            )
+            return result
 
-    def record(kind: str, run: Zoning) -> None:
-        match = match_zones(ref_labels, run.labels)
-        stays[kind] += match.stayed
-        jaccard[:] += match.jaccard
-        records.append(
-            {
-                "run": len(records),
-                "kind": kind,
-                "zones": run.n_zones,
-                "ari": float(adjusted_rand_score(ref_labels, run.labels)),
-                "stayed": float(match.stayed.mean()),
-            }
-        )
+        if reference is None:
+            reference = zone(network, copy.deepcopy(zoning_stream))
+        ref_labels = reference.labels
+        k_ref = int(ref_labels.max()) + 1
+        stays = {"seed": np.zeros(network.n_nodes), "perturbed": np.zeros(network.n_nodes)}
+        jaccard = np.zeros(k_ref)
+        records: list[dict[str, Any]] = []
+        bounds: pd.DataFrame | None = None
+        dk_notes: list[str] = []
 
-    for stream in seed_streams:
-        record("seed", zone(network, stream))
-    for stream in noise_streams:
-        noisy = perturb_weights(network, spread=spread, rng=stream)
-        if bounds is None:
-            bounds, dk_notes = _davis_kahan(reference, noisy, spread, norm_stream)
-        record("perturbed", zone(noisy, copy.deepcopy(zoning_stream)))
+        def record(kind: str, run: Zoning) -> None:
+            match = match_zones(ref_labels, run.labels)
+            stays[kind] += match.stayed
+            jaccard[:] += match.jaccard
+            records.append(
+                {
+                    "run": len(records),
+                    "kind": kind,
+                    "zones": run.n_zones,
+                    "ari": float(adjusted_rand_score(ref_labels, run.labels)),
+                    "stayed": float(match.stayed.mean()),
+                }
+            )
+
+        for stream in seed_streams:
+            record("seed", zone(network, stream))
+        for stream in noise_streams:
+            noisy = perturb_weights(network, spread=spread, rng=stream)
+            if bounds is None:
+                bounds, dk_notes = _davis_kahan(reference, noisy, spread, norm_stream)
+            record("perturbed", zone(noisy, copy.deepcopy(zoning_stream)))
+
     assert bounds is not None  # repeats >= 1
 
     confidence = (stays["seed"] + stays["perturbed"]) / (2 * repeats)
