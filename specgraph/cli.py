@@ -14,6 +14,7 @@ import json
 import logging
 import math
 import os
+import shlex
 import sys
 import textwrap
 from collections.abc import Callable, Iterator, Sequence
@@ -47,6 +48,7 @@ from .io import (
 )
 from .network import Network
 from .operators import laplacian
+from .report import build_report
 from .zones import (
     ASSIGNMENTS,
     OPERATOR_KINDS,
@@ -240,6 +242,19 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
     )
 
 
+#: File name of the HTML report that --report adds to the output folder.
+REPORT_FILE = "report.html"
+
+
+def _add_report(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--report",
+        action="store_true",
+        help=f"also write {REPORT_FILE}: one self-contained page with the zone map, "
+        "spectrum, tables, run record and cautions",
+    )
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser of the ``specgraph`` command."""
     parser = argparse.ArgumentParser(
@@ -268,6 +283,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_reading(zones)
     _add_zoning(zones, reading=True)
     _add_solving(zones, auto=True)
+    _add_report(zones)
     _add_common(zones, out="specgraph-zones")
 
     spectrum = commands.add_parser(
@@ -393,6 +409,7 @@ def build_parser() -> argparse.ArgumentParser:
         f"{DEFAULT_SPREAD}: about {DEFAULT_SPREAD:.0%} per link)",
     )
     _add_solving(stable, auto=True)
+    _add_report(stable)
     _add_common(stable, out="specgraph-stability")
 
     demo = commands.add_parser(
@@ -404,6 +421,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_zoning(demo, reading=False)
     _add_solving(demo, auto=True)
+    _add_report(demo)
     _add_common(demo, out="specgraph-demo")
     return parser
 
@@ -509,6 +527,8 @@ def _zone_and_write(
     args: argparse.Namespace,
     argv: list[str],
     step: Callable[[str], None],
+    *,
+    markers: Sequence[str] = (),
 ) -> dict[str, Any]:
     step("reading rules")
     constraints = _constraints(network, args)  # reads (and checks) the rule files first
@@ -531,7 +551,17 @@ def _zone_and_write(
     )
     step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
-    written = write_outputs(args.out, {**zoning_tables(zoning), "run.json": record})
+    tables = zoning_tables(zoning)
+    files: dict[str, Any] = {**tables, "run.json": record}
+    if args.report:
+        files[REPORT_FILE] = build_report(
+            zoning,
+            command=shlex.join(["specgraph", *argv]),
+            record=record,
+            tables=tables,
+            sources=tuple(dict.fromkeys([*constraints.sources, *markers])),
+        )
+    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
     for message in zoning.warnings:
         logger.warning("warning: %s", message)
     for name, decision in zoning.decisions.items():
@@ -571,8 +601,10 @@ def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     ]
     args.count_nodes = False
     logger.info("demo: the invented town of Quillmere, %r", network)
+    # The demo zones without rules; its treatment works are shown on the map as markers.
+    works = read_node_list(files.sources, node="node")
     with stage_progress(ZONING_STAGES[1:], enabled=args.progress) as step:
-        return _zone_and_write(network, inputs, args, argv, step)
+        return _zone_and_write(network, inputs, args, argv, step, markers=works)
 
 
 def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -818,15 +850,21 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "warnings": list(result.warnings),
         "caution": CAUTION,
     }
-    written = write_outputs(
-        args.out,
-        {
-            "node_confidence.csv": result.nodes,
-            "zone_stability.csv": result.zones,
-            "runs.csv": result.runs,
-            "run.json": jsonable(record),
-        },
-    )
+    files: dict[str, Any] = {
+        "node_confidence.csv": result.nodes,
+        "zone_stability.csv": result.zones,
+        "runs.csv": result.runs,
+        "run.json": jsonable(record),
+    }
+    if args.report:
+        files[REPORT_FILE] = build_report(
+            result.reference,
+            command=shlex.join(["specgraph", *argv]),
+            stability=result,
+            sources=constraints.sources,
+            title="Zoning stability report",
+        )
+    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
     for message in result.warnings:
         logger.warning("warning: %s", message)
     overall = result.overall

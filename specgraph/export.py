@@ -212,20 +212,28 @@ def run_record(
     )
 
 
-def _write_temp(folder: Path, name: str, content: pd.DataFrame | Mapping[str, Any]) -> Path:
+#: What :func:`write_outputs` can write: a table (CSV), a mapping (JSON), text
+#: (written as it is, UTF-8: HTML reports) or bytes (written as they are: figures, Parquet).
+Content = pd.DataFrame | Mapping[str, Any] | str | bytes
+
+
+def _write_temp(folder: Path, name: str, content: Content) -> Path:
     """Write ``content`` to a hidden temporary file in ``folder``; remove it on failure."""
+    binary = isinstance(content, bytes)
     with tempfile.NamedTemporaryFile(
-        "w",
+        "wb" if binary else "w",
         dir=folder,
         prefix=f".{name}.{os.getpid()}.",
         suffix=".partial",
         delete=False,
-        encoding="utf-8",
-        newline="",
+        encoding=None if binary else "utf-8",
+        newline=None if binary else "",
     ) as handle:
         temp = Path(handle.name)
         try:
-            if isinstance(content, pd.DataFrame):
+            if isinstance(content, bytes | str):
+                handle.write(content)
+            elif isinstance(content, pd.DataFrame):
                 table = neutralize_frame(content)
                 table.to_csv(handle, index=False, lineterminator="\n", quoting=_quoting(table))
             else:
@@ -381,11 +389,11 @@ def recover_outputs(folder: str | Path) -> list[Path]:
 
 def write_outputs(
     folder: str | Path,
-    files: Mapping[str, pd.DataFrame | Mapping[str, Any]],
+    files: Mapping[str, Content],
     *,
     remove: Iterable[str] = (),
 ) -> list[Path]:
-    """Write tables (CSV) and mappings (JSON) into ``folder``, all or nothing.
+    """Write tables (CSV), mappings (JSON), text and bytes into ``folder``, all or nothing.
 
     Text cells of the tables are neutralized against spreadsheet formulas
     (see the module notes); numeric cells are written unchanged. Leftovers of
@@ -396,8 +404,9 @@ def write_outputs(
     folder : str or Path
         Created if missing (with parents).
     files : mapping
-        File name to a DataFrame (written as CSV, no index) or a mapping
-        (written as JSON).
+        File name to a DataFrame (written as CSV, no index), a mapping
+        (written as JSON), a str (written as it is, UTF-8: an HTML report) or
+        bytes (written as they are: a figure, a Parquet file).
     remove : iterable of str, default=()
         File names in ``folder`` that belong to the same kind of result but
         not to this one (e.g. an optional table a previous run wrote); they

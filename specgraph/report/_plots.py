@@ -1,0 +1,871 @@
+"""Figures of a zoning: the spectrum, a zone map, per-zone bars and a stability map.
+
+Every figure is a :class:`matplotlib.figure.Figure` drawn on an Agg canvas;
+pyplot and its global state are never touched, so building figures is safe
+in libraries, servers and threads that each hold their own figures.
+
+Maps and the number of nodes
+----------------------------
+A map must stay readable, and its file small, from a few thousand nodes to a
+million. :func:`map_detail` picks one of three drawings by node count:
+
+``'vector'`` (up to :data:`MAP_RASTER_NODES` nodes)
+    every link as a line in its zone's colour, every node as a dot, boundary
+    links on top in black with a white halo; an SVG keeps every element.
+``'raster'`` (up to :data:`MAP_AGGREGATE_NODES` nodes)
+    the same drawing, but links and nodes are rasterized
+    (``rasterized=True``) so an SVG holds one image instead of a million
+    paths; text, axes and the boundary stay vector where few.
+``'aggregate'`` (above)
+    nodes are binned into a grid of :data:`MAP_CELLS` cells along the longer
+    side; each cell shows the zone holding most of its nodes (the stability
+    map: the least confident node of the cell, so weak spots are not averaged
+    away). Boundary links and sources are drawn over the grid.
+
+Colours
+-------
+Zones are coloured from Paul Tol's *muted* qualitative scheme [1]_, designed
+to stay distinct for viewers with the common colour-vision deficiencies; the
+per-node confidence uses *cividis* [2]_, a sequential map of near-uniform
+lightness that reads the same with and without red-green deficiency.
+
+References
+----------
+.. [1] P. Tol, "Colour Schemes", SRON Technical Note SRON/EPS/TN/09-002,
+   issue 3.2, 2021 (scheme "muted", figure 4).
+.. [2] J. R. Nuñez, C. R. Anderton and R. S. Renslow, "Optimizing colormaps
+   with consideration for color vision deficiency to enable accurate
+   interpretation of scientific data", PLOS ONE 13(7): e0199239, 2018.
+   doi:10.1371/journal.pone.0199239
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Literal, cast
+
+import matplotlib
+import networkx as nx
+import numpy as np
+import pandas as pd
+import scipy.sparse as sp
+from matplotlib import patheffects
+from matplotlib.axes import Axes
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.cm import ScalarMappable
+from matplotlib.collections import LineCollection
+from matplotlib.colors import to_rgb
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+
+from .._validation import check_choice, check_int
+from ..exceptions import ParameterError
+from ..network import Network
+from ..zones._count import HIGH_GAP, MEDIUM_GAP
+
+if TYPE_CHECKING:
+    from ..diagnostics import Stability
+    from ..zones import Zoning
+
+__all__ = [
+    "BAR_ZONES_MAX",
+    "BOUNDARY_COLOUR",
+    "CONFIDENCE_COLOURMAP",
+    "FIGURE_DPI",
+    "LABEL_ZONES_MAX",
+    "LEGEND_ZONES_MAX",
+    "MAP_AGGREGATE_NODES",
+    "MAP_BOUNDARY_VECTOR_LINKS",
+    "MAP_CELLS",
+    "MAP_RASTER_NODES",
+    "MISSING_COLOUR",
+    "PALETTE",
+    "PALETTE_REFERENCE",
+    "SPECTRUM_SERIES_MAX",
+    "ZoneColouring",
+    "cell_majority",
+    "cell_minimum",
+    "figure_bytes",
+    "map_detail",
+    "spectrum_figure",
+    "stability_figure",
+    "zone_bars_figure",
+    "zone_colours",
+    "zone_map_figure",
+]
+
+#: Zone colours: Paul Tol's "muted" qualitative scheme, in the order of its
+#: figure (indigo, cyan, teal, green, olive, sand, rose, wine, purple) [1]_.
+PALETTE: tuple[str, ...] = (
+    "#332288",
+    "#88CCEE",
+    "#44AA99",
+    "#117733",
+    "#999933",
+    "#DDCC77",
+    "#CC6677",
+    "#882255",
+    "#AA4499",
+)
+#: Tol's pale grey of the same scheme, for cells or zones without data.
+MISSING_COLOUR = "#DDDDDD"
+#: Where :data:`PALETTE` comes from (also printed in the report).
+PALETTE_REFERENCE = (
+    'P. Tol, "Colour Schemes", SRON Technical Note SRON/EPS/TN/09-002, issue 3.2 (2021), '
+    'qualitative scheme "muted"'
+)
+#: Boundary links and supply-point markers: black, which no zone colour is.
+BOUNDARY_COLOUR = "#000000"
+#: Sequential colour map of per-node confidence (matplotlib's ``cividis`` [2]_).
+CONFIDENCE_COLOURMAP = "cividis"
+
+#: Maps of more nodes than this rasterize their links and nodes (see the
+#: module notes): beyond some tens of thousands of paths an SVG becomes
+#: slow to open, and the eye no longer tells single links apart anyway.
+MAP_RASTER_NODES = 20_000
+#: Maps of more nodes than this show the majority zone per grid cell instead
+#: of single nodes: at a million nodes single dots overlap many times per
+#: pixel, so the drawn colour would be whichever zone happened to come last.
+MAP_AGGREGATE_NODES = 250_000
+#: Boundary links are rasterized above this many (an SVG would otherwise hold two
+#: paths per link, halo and line: 5 MB at 18,000 links, measured).
+MAP_BOUNDARY_VECTOR_LINKS = 5_000
+#: Grid cells along the longer side of an aggregated map: about one cell per
+#: two pixels of the map at :data:`FIGURE_DPI`.
+MAP_CELLS = 500
+#: Zones up to this count get one legend entry each; beyond it the legend
+#: explains the colouring instead.
+LEGEND_ZONES_MAX = 20
+#: Zones up to this count are numbered on the map, at their median node.
+LABEL_ZONES_MAX = 60
+#: Zones up to this count get one bar each in :func:`zone_bars_figure`;
+#: beyond it the figure shows histograms.
+BAR_ZONES_MAX = 60
+#: Components whose spectra :func:`spectrum_figure` draws at most (the
+#: largest first), when the zone count was not read from one spectrum.
+SPECTRUM_SERIES_MAX = 8
+#: Resolution of raster output (PNG, and the rasterized parts of an SVG).
+FIGURE_DPI = 150
+
+_MAP_SIZE = (8.0, 8.0)
+_HALO = [patheffects.withStroke(linewidth=3, foreground="white")]
+
+MapDetail = Literal["vector", "raster", "aggregate"]
+
+
+# ------------------------------------------------------------------ colours
+@dataclass(frozen=True, eq=False)
+class ZoneColouring:
+    """The colour of each zone.
+
+    Attributes
+    ----------
+    colours : tuple of str
+        Hex colour of zone ``0, 1, ...``, all from :data:`PALETTE`.
+    slots : ndarray of int
+        Index into :data:`PALETTE` of each zone's colour.
+    method : str
+        ``'one colour per zone'`` or ``'greedy colouring of the zone adjacency
+        graph (<networkx strategy>)'``.
+    clashes : int
+        Pairs of neighbouring zones that share a colour: 0, unless the
+        adjacency needs more colours than :data:`PALETTE` holds.
+    """
+
+    colours: tuple[str, ...]
+    slots: np.ndarray
+    method: str
+    clashes: int
+
+
+def _zone_pairs(network: Network, labels: np.ndarray) -> np.ndarray:
+    """Distinct pairs ``(a, b)``, ``a < b``, of zones joined by at least one link."""
+    upper = sp.triu(network.adjacency, k=1, format="coo")
+    a, b = labels[upper.row], labels[upper.col]
+    cross = a != b
+    pairs = np.column_stack([np.minimum(a, b)[cross], np.maximum(a, b)[cross]])
+    return np.unique(pairs, axis=0) if pairs.size else pairs.reshape(0, 2)
+
+
+def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
+    """Colour zones from :data:`PALETTE` so that neighbouring zones differ.
+
+    With at most ``len(PALETTE)`` zones, zone ``z`` gets ``PALETTE[z]``. With
+    more, zones are coloured by a greedy colouring of the *zone adjacency
+    graph* (one vertex per zone, an edge where a link joins two zones) with
+    :func:`networkx.greedy_color`; of the strategies ``'DSATUR'`` [3]_,
+    ``'largest_first'`` and ``'smallest_last'`` the one using the fewest
+    colours is kept, so zones that touch get different colours while zones
+    far apart may share one. Should even that need more colours than the
+    palette has (rare: zone graphs of infrastructure networks are close to
+    planar), colours repeat cyclically and :attr:`ZoneColouring.clashes`
+    counts the neighbours that share one.
+
+    Parameters
+    ----------
+    network : Network
+    labels : ndarray of int, shape (n_nodes,)
+        Zone of each node, numbered from 0.
+
+    Returns
+    -------
+    ZoneColouring
+
+    References
+    ----------
+    .. [3] D. Brélaz, "New methods to color the vertices of a graph",
+       Communications of the ACM 22(4): 251-256, 1979. doi:10.1145/359094.359101
+
+    Examples
+    --------
+    >>> from specgraph import gallery
+    >>> net = gallery.path(4)
+    >>> zone_colours(net, np.array([0, 0, 1, 1])).colours == PALETTE[:2]
+    True
+    """
+    labels = np.asarray(labels, dtype=np.int64)
+    if labels.shape != (network.n_nodes,) or (labels.size and labels.min() < 0):
+        raise ParameterError(
+            f"labels must hold one zone number >= 0 per node ({network.n_nodes}); "
+            f"got shape {labels.shape}."
+        )
+    k = int(labels.max()) + 1 if labels.size else 0
+    p = len(PALETTE)
+    if k <= p:
+        slots = np.arange(k, dtype=np.int64)
+        return ZoneColouring(tuple(PALETTE[:k]), slots, "one colour per zone", 0)
+    pairs = _zone_pairs(network, labels)
+    graph = nx.Graph()
+    graph.add_nodes_from(range(k))
+    graph.add_edges_from(pairs.tolist())
+    best: tuple[int, str, dict[int, int]] | None = None
+    for strategy in ("DSATUR", "largest_first", "smallest_last"):
+        found = nx.greedy_color(graph, strategy=strategy)
+        used = max(found.values()) + 1 if found else 0
+        if best is None or used < best[0]:
+            best = (used, strategy, found)
+    assert best is not None
+    slots = np.array([best[2][z] % p for z in range(k)], dtype=np.int64)
+    clashes = int(np.count_nonzero(slots[pairs[:, 0]] == slots[pairs[:, 1]]))
+    return ZoneColouring(
+        tuple(PALETTE[s] for s in slots.tolist()),
+        slots,
+        f"greedy colouring of the zone adjacency graph ({best[1]})",
+        clashes,
+    )
+
+
+# ------------------------------------------------------------------ output
+def _new_figure(size: tuple[float, float]) -> Figure:
+    figure = Figure(figsize=size, dpi=FIGURE_DPI, layout="constrained")
+    FigureCanvasAgg(figure)
+    return figure
+
+
+def figure_bytes(figure: Figure, *, format: Literal["png", "svg"] = "png") -> bytes:
+    """The figure as PNG or SVG bytes, the same bytes for the same figure.
+
+    Dates and software versions are left out of the file's metadata, and SVG
+    element ids are derived from a fixed salt, so output is reproducible.
+
+    Examples
+    --------
+    >>> from specgraph import find_zones, gallery
+    >>> figure_bytes(zone_bars_figure(find_zones(gallery.barbell(4), 2, rng=0)))[:4]
+    b'\\x89PNG'
+    """
+    check_choice(format, "format", ("png", "svg"))
+    buffer = io.BytesIO()
+    metadata: dict[str, str | None] = (
+        {"Date": None, "Creator": None} if format == "svg" else {"Software": None}
+    )
+    with matplotlib.rc_context({"svg.hashsalt": "specgraph", "svg.fonttype": "path"}):
+        figure.savefig(buffer, format=format, dpi=FIGURE_DPI, metadata=metadata)
+    return buffer.getvalue()
+
+
+# ------------------------------------------------------------------ spectrum
+def _spectrum_series(zoning: Zoning) -> list[tuple[str, np.ndarray, np.ndarray, int]]:
+    """(label, k, lambda_k, chosen k) per series: the zone-count solve, else each component."""
+    count = zoning.decisions.get("zone_count", {})
+    evidence = count.get("evidence")
+    if evidence:
+        table = pd.DataFrame(evidence)
+        ks = np.append(table["zones"].to_numpy(), table["zones"].iloc[-1] + 1)
+        values = np.append(table["eigenvalue"].to_numpy(), table["next_eigenvalue"].iloc[-1])
+        return [("zone-count solve", ks, values, int(count["choice"]))]
+    solves = sorted(zoning.solves, key=lambda s: -s.nodes.size)[:SPECTRUM_SERIES_MAX]
+    return [
+        (
+            f"component {s.component} ({s.nodes.size:,} nodes)",
+            np.arange(1, s.eigen.values.size + 1),
+            np.asarray(s.eigen.values),
+            s.zones,
+        )
+        for s in solves
+    ]
+
+
+def spectrum_figure(zoning: Zoning) -> Figure:
+    """The smallest eigenvalues, the eigengap after the chosen zone count, the candidates.
+
+    Eigenvalue :math:`\\lambda_k` (1-based, ascending) against ``k``. When
+    the zone count was chosen from the spectrum (``zones='auto'`` or a range)
+    the figure shows that solve, the gap after the chosen count shaded, and a
+    second panel with the relative gap
+    :math:`(\\lambda_{k+1} - \\lambda_k)/\\lambda_{k+1}` of every candidate
+    against the confidence levels :data:`specgraph.zones.HIGH_GAP` and
+    :data:`specgraph.zones.MEDIUM_GAP`. Otherwise it shows the solve of each
+    split component (up to :data:`SPECTRUM_SERIES_MAX`).
+
+    Parameters
+    ----------
+    zoning : Zoning
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    series = _spectrum_series(zoning)
+    evidence = zoning.decisions.get("zone_count", {}).get("evidence")
+    figure = _new_figure((8.0, 6.0 if evidence else 4.0))
+    if not series:
+        axes = figure.add_subplot()
+        axes.set_axis_off()
+        axes.text(0.5, 0.5, "No eigen-solve: every component is one zone.", ha="center")
+        return figure
+    top, bottom = (
+        figure.subplots(2, 1, sharex=True, height_ratios=(3, 2))
+        if evidence
+        else (figure.add_subplot(), None)
+    )
+    for index, (label, ks, values, chosen) in enumerate(series):
+        colour = PALETTE[index % len(PALETTE)]
+        top.plot(ks, values, "o-", ms=3.5, lw=1, color=colour, label=label)
+        at = np.flatnonzero(ks == chosen)
+        if at.size and at[0] + 1 < ks.size:
+            low, high = values[at[0]], values[at[0] + 1]
+            top.axvspan(chosen, chosen + 1, color=colour, alpha=0.15, lw=0)
+            top.annotate(
+                f"eigengap after λ_{chosen}",
+                (chosen + 0.5, (low + high) / 2),
+                xytext=(12, 0),
+                textcoords="offset points",
+                va="center",
+                fontsize=8,
+            )
+    top.set_ylabel("eigenvalue λ_k")
+    top.set_title(f"Smallest eigenvalues; {zoning.n_zones} zones chosen", fontsize=10)
+    top.grid(alpha=0.3)
+    if len(series) > 1:
+        top.legend(fontsize=8)
+    if bottom is None:
+        top.set_xlabel("k")
+        return figure
+    _candidate_panel(bottom, pd.DataFrame(evidence), series[0][3])
+    return figure
+
+
+def _candidate_panel(axes: Axes, table: pd.DataFrame, chosen: int) -> None:
+    ks = table["zones"].to_numpy()
+    gaps = table["relative_gap"].to_numpy(dtype=float)
+    colours = np.where(ks == chosen, PALETTE[0], MISSING_COLOUR)
+    axes.bar(ks, gaps, color=colours, edgecolor="#555555", lw=0.4)
+    checked = np.isfinite(table["ncut"].to_numpy(dtype=float))
+    axes.plot(ks[checked], gaps[checked], "v", color=BOUNDARY_COLOUR, ms=4)
+    for level, name in ((HIGH_GAP, "high"), (MEDIUM_GAP, "medium")):
+        axes.axhline(level, color="#555555", ls="--", lw=0.8)
+        axes.text(
+            0.995,
+            level,
+            f"{name} confidence",
+            transform=axes.get_yaxis_transform(),
+            ha="right",
+            va="bottom",
+            fontsize=7,
+        )
+    axes.set_ylabel("relative gap")
+    axes.set_xlabel("k (candidate zone count)")
+    axes.set_ylim(0, 1)
+    axes.legend(
+        handles=[
+            Patch(color=PALETTE[0], label="chosen"),
+            Line2D(
+                [], [], marker="v", ls="", color=BOUNDARY_COLOUR, label="normalized cut checked"
+            ),
+        ],
+        fontsize=7,
+        loc="upper center",
+    )
+
+
+# ------------------------------------------------------------------ maps
+def map_detail(
+    n_nodes: int,
+    *,
+    raster_above: int = MAP_RASTER_NODES,
+    aggregate_above: int = MAP_AGGREGATE_NODES,
+) -> MapDetail:
+    """How a map of ``n_nodes`` nodes is drawn: ``'vector'``, ``'raster'`` or ``'aggregate'``.
+
+    Examples
+    --------
+    >>> map_detail(3_000), map_detail(100_000), map_detail(1_000_000)
+    ('vector', 'raster', 'aggregate')
+    """
+    check_int(n_nodes, "n_nodes", minimum=0)
+    check_int(raster_above, "raster_above", minimum=0)
+    check_int(aggregate_above, "aggregate_above", minimum=0)
+    if n_nodes > aggregate_above:
+        return "aggregate"
+    return "raster" if n_nodes > raster_above else "vector"
+
+
+@dataclass(frozen=True)
+class _Grid:
+    cell: np.ndarray  # cell of each node, row-major in (row, column)
+    shape: tuple[int, int]  # (rows, columns)
+    extent: tuple[float, float, float, float]  # left, right, bottom, top
+
+
+def _grid(xy: np.ndarray, cells: int) -> _Grid:
+    low, high = xy.min(axis=0), xy.max(axis=0)
+    span = high - low
+    longer = float(span.max()) or 1.0
+    span = np.where(span > 0, span, longer)
+    ncol = max(1, math.ceil(cells * span[0] / longer))
+    nrow = max(1, math.ceil(cells * span[1] / longer))
+    col = np.minimum(((xy[:, 0] - low[0]) / span[0] * ncol).astype(np.int64), ncol - 1)
+    row = np.minimum(((xy[:, 1] - low[1]) / span[1] * nrow).astype(np.int64), nrow - 1)
+    extent = (low[0], low[0] + span[0], low[1], low[1] + span[1])
+    return _Grid(row * ncol + col, (nrow, ncol), extent)
+
+
+def cell_majority(cell: np.ndarray, values: np.ndarray, n_cells: int) -> np.ndarray:
+    """The most frequent value of each cell, ``-1`` for an empty cell (ties: smaller value).
+
+    Parameters
+    ----------
+    cell : ndarray of int, shape (n,)
+        Cell of each item, in ``0..n_cells-1``.
+    values : ndarray of int, shape (n,)
+        Non-negative value of each item (a zone number).
+    n_cells : int
+
+    Returns
+    -------
+    ndarray of int, shape (n_cells,)
+
+    Examples
+    --------
+    >>> cell_majority(np.array([0, 0, 0, 2]), np.array([4, 1, 4, 3]), 3).tolist()
+    [4, -1, 3]
+    """
+    cell = np.asarray(cell, dtype=np.int64)
+    values = np.asarray(values, dtype=np.int64)
+    out = np.full(n_cells, -1, dtype=np.int64)
+    if cell.size == 0:
+        return out
+    width = int(values.max()) + 1
+    keys, counts = np.unique(cell * width + values, return_counts=True)
+    key_cell, key_value = keys // width, keys % width
+    # Sort by cell, then most frequent first; the sort is stable and keys come
+    # ascending, so equal counts keep the smaller value first.
+    order = np.lexsort((-counts, key_cell))
+    first = np.ones(order.size, dtype=bool)
+    first[1:] = key_cell[order][1:] != key_cell[order][:-1]
+    out[key_cell[order][first]] = key_value[order][first]
+    return out
+
+
+def cell_minimum(cell: np.ndarray, values: np.ndarray, n_cells: int) -> np.ndarray:
+    """The smallest value of each cell, NaN for an empty cell.
+
+    Examples
+    --------
+    >>> cell_minimum(np.array([0, 0, 2]), np.array([0.5, 0.2, 1.0]), 3).tolist()
+    [0.2, nan, 1.0]
+    """
+    out = np.full(n_cells, np.inf)
+    np.minimum.at(out, np.asarray(cell, dtype=np.int64), np.asarray(values, dtype=np.float64))
+    out[np.isinf(out)] = np.nan
+    return out
+
+
+def _segments(xy: np.ndarray, a: np.ndarray, b: np.ndarray) -> Sequence[np.ndarray]:
+    """Line segments of links ``a[i] - b[i]``: an array of shape (m, 2, 2), which
+    LineCollection takes as it is (a list of m arrays would cost a million objects)."""
+    return cast("Sequence[np.ndarray]", np.stack([xy[a], xy[b]], axis=1))
+
+
+def _links(network: Network) -> tuple[np.ndarray, np.ndarray]:
+    upper = sp.triu(network.adjacency, k=1, format="coo")
+    return upper.row.astype(np.int64), upper.col.astype(np.int64)
+
+
+def _draw_boundary(axes: Axes, xy: np.ndarray, a: np.ndarray, b: np.ndarray, raster: bool) -> None:
+    segments = _segments(xy, a, b)
+    for width, colour, z in ((4.0, "white", 3), (2.0, BOUNDARY_COLOUR, 4)):
+        axes.add_collection(
+            LineCollection(segments, colors=colour, linewidths=width, zorder=z, rasterized=raster)
+        )
+
+
+def _draw_sources(axes: Axes, network: Network, sources: Sequence[str]) -> int:
+    if not sources:
+        return 0
+    index = network.index_of
+    rows = [index[s] for s in sources if s in index]
+    unknown = [s for s in sources if s not in index]
+    if unknown:
+        raise ParameterError(
+            f"sources must be node ids of the network; got {len(unknown)} unknown, "
+            f"for example {unknown[0]!r}."
+        )
+    xy = network.coordinates
+    assert xy is not None
+    axes.scatter(
+        xy[rows, 0],
+        xy[rows, 1],
+        marker="*",
+        s=220,
+        c=BOUNDARY_COLOUR,
+        edgecolors="white",
+        linewidths=1.2,
+        zorder=6,
+    )
+    return len(rows)
+
+
+def _coordinates(network: Network) -> np.ndarray:
+    if network.coordinates is None:
+        raise ParameterError(
+            "network must have node coordinates for a map; got a network without them "
+            "(read a node table with x and y columns)."
+        )
+    return network.coordinates
+
+
+def _detail(network: Network, raster_above: int, aggregate_above: int) -> MapDetail:
+    return map_detail(network.n_nodes, raster_above=raster_above, aggregate_above=aggregate_above)
+
+
+def zone_map_figure(
+    zoning: Zoning,
+    *,
+    sources: Sequence[str] = (),
+    colouring: ZoneColouring | None = None,
+    raster_above: int = MAP_RASTER_NODES,
+    aggregate_above: int = MAP_AGGREGATE_NODES,
+    cells: int = MAP_CELLS,
+) -> Figure:
+    """A map of the zones from node coordinates, boundary links highlighted, sources marked.
+
+    Parameters
+    ----------
+    zoning : Zoning
+        Its network must have coordinates.
+    sources : sequence of str, default=()
+        Node ids of supply points, drawn as black stars.
+    colouring : ZoneColouring, optional
+        Default :func:`zone_colours` of the zoning.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    ParameterError
+        When the network has no coordinates or a source is not a node.
+
+    Other Parameters
+    ----------------
+    raster_above, aggregate_above : int
+        Node counts above which the map is rasterized or aggregated
+        (:func:`map_detail`; defaults :data:`MAP_RASTER_NODES`,
+        :data:`MAP_AGGREGATE_NODES`).
+    cells : int, default=MAP_CELLS
+        Grid cells along the longer side of an aggregated map.
+
+    Notes
+    -----
+    Boundary links are drawn black over a white halo, on top of every zone
+    colour. With more zones than :data:`PALETTE` has colours, colours come
+    from a greedy colouring of the zone adjacency graph (:func:`zone_colours`):
+    neighbouring zones differ, and zone numbers are printed on the map (up to
+    :data:`LABEL_ZONES_MAX` zones) to tell apart distant zones of one colour.
+    """
+    network = zoning.network
+    xy = _coordinates(network)
+    cells = check_int(cells, "cells", minimum=1)
+    detail = _detail(network, raster_above, aggregate_above)
+    colouring = colouring or zone_colours(network, zoning.labels)
+    labels = zoning.labels
+    rgb = np.array([to_rgb(c) for c in colouring.colours]).reshape(-1, 3)
+    a, b = _links(network)
+    cross = labels[a] != labels[b]
+    figure = _new_figure(_MAP_SIZE)
+    axes = figure.add_subplot()
+    if detail == "aggregate":
+        grid = _grid(xy, cells)
+        winner = cell_majority(grid.cell, labels, grid.shape[0] * grid.shape[1])
+        image = np.ones((winner.size, 4))
+        image[winner >= 0, :3] = rgb[winner[winner >= 0]]
+        image[winner < 0, 3] = 0.0
+        axes.imshow(
+            image.reshape(*grid.shape, 4),
+            origin="lower",
+            extent=grid.extent,
+            interpolation="nearest",
+            zorder=1,
+        )
+    else:
+        raster = detail == "raster"
+        inside = ~cross
+        axes.add_collection(
+            LineCollection(
+                _segments(xy, a[inside], b[inside]),
+                colors=rgb[labels[a[inside]]],
+                linewidths=0.8,
+                zorder=1,
+                rasterized=raster,
+            )
+        )
+        size = float(np.clip(20_000 / max(network.n_nodes, 1), 0.3, 10.0))
+        axes.scatter(xy[:, 0], xy[:, 1], s=size, c=rgb[labels], lw=0, zorder=2, rasterized=raster)
+    _draw_boundary(
+        axes, xy, a[cross], b[cross], raster=int(cross.sum()) > MAP_BOUNDARY_VECTOR_LINKS
+    )
+    marked = _draw_sources(axes, network, sources)
+    _label_zones(axes, xy, labels, zoning.n_zones)
+    axes.set_aspect("equal")
+    axes.autoscale_view()
+    axes.set_xlabel("x")
+    axes.set_ylabel("y")
+    how = {
+        "vector": "every link and node drawn",
+        "raster": "links and nodes rasterized",
+        "aggregate": f"majority zone per cell, {cells} cells across",
+    }[detail]
+    axes.set_title(
+        f"{zoning.n_zones} zones, {network.n_nodes:,} nodes ({how})", fontsize=10, loc="left"
+    )
+    _map_legend(axes, colouring, marked)
+    return figure
+
+
+def _label_zones(axes: Axes, xy: np.ndarray, labels: np.ndarray, k: int) -> None:
+    if k > LABEL_ZONES_MAX:
+        return
+    order = np.argsort(labels, kind="stable")
+    starts = np.searchsorted(labels[order], np.arange(k + 1))
+    for zone in range(k):
+        members = order[starts[zone] : starts[zone + 1]]
+        if members.size == 0:
+            continue
+        x, y = np.median(xy[members], axis=0)
+        axes.text(
+            x, y, str(zone), ha="center", va="center", fontsize=9, weight="bold",
+            zorder=7, path_effects=_HALO,
+        )  # fmt: skip
+
+
+def _map_legend(axes: Axes, colouring: ZoneColouring, marked: int) -> None:
+    handles: list[Patch | Line2D] = [
+        Line2D([], [], color=BOUNDARY_COLOUR, lw=1.6, label="boundary link")
+    ]
+    if marked:
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="*",
+                ls="",
+                ms=12,
+                color=BOUNDARY_COLOUR,
+                mec="white",
+                label="supply point",
+            )
+        )
+    k = len(colouring.colours)
+    if k <= LEGEND_ZONES_MAX:
+        handles += [Patch(color=c, label=f"zone {z}") for z, c in enumerate(colouring.colours)]
+    axes.legend(
+        handles=handles,
+        fontsize=7,
+        loc="upper left",
+        bbox_to_anchor=(1.01, 1.0),
+        frameon=False,
+        title=None if k <= LEGEND_ZONES_MAX else "neighbouring zones\nhave different colours",
+        title_fontsize=7,
+    )
+
+
+# ------------------------------------------------------------------ per-zone bars
+def zone_bars_figure(zoning: Zoning, *, colouring: ZoneColouring | None = None) -> Figure:
+    """Per-zone size and conductance, side by side (histograms beyond :data:`BAR_ZONES_MAX`).
+
+    Size is the summed node size when the network has sizes, else the node
+    count; conductance is the zone's boundary weight over the smaller of its
+    volume and the rest's (lower is a better separated zone).
+
+    Parameters
+    ----------
+    zoning : Zoning
+    colouring : ZoneColouring, optional
+        Default :func:`zone_colours` of the zoning (the map's colours).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    table = zoning.zones
+    k = len(table)
+    size_label = "size (node sizes)" if zoning.network.sizes is not None else "size (nodes)"
+    if k > BAR_ZONES_MAX:
+        figure = _new_figure((8.0, 3.5))
+        left, right = figure.subplots(1, 2)
+        left.hist(table["size"], bins="auto", color=PALETTE[0])
+        right.hist(table["conductance"], bins="auto", color=PALETTE[6])
+        left.set_xlabel(size_label)
+        right.set_xlabel("conductance")
+        left.set_ylabel("zones")
+        figure.suptitle(f"{k} zones (too many for one bar each)", fontsize=10)
+        return figure
+    colouring = colouring or zone_colours(zoning.network, zoning.labels)
+    figure = _new_figure((8.0, max(2.5, 0.22 * k + 1.2)))
+    left, right = figure.subplots(1, 2, sharey=True)
+    zones = table["zone"].to_numpy()
+    colours = [colouring.colours[z] for z in zones]
+    left.barh(zones, table["size"], color=colours, edgecolor="#555555", lw=0.4)
+    right.barh(zones, table["conductance"], color=colours, edgecolor="#555555", lw=0.4)
+    left.set_xlabel(size_label)
+    right.set_xlabel("conductance (lower is better separated)")
+    left.set_ylabel("zone")
+    left.set_yticks(zones)
+    left.invert_yaxis()
+    for axes in (left, right):
+        axes.grid(axis="x", alpha=0.3)
+        axes.tick_params(axis="y", labelsize=7)
+    return figure
+
+
+# ------------------------------------------------------------------ stability
+def stability_figure(
+    zoning: Zoning,
+    stability: Stability,
+    *,
+    raster_above: int = MAP_RASTER_NODES,
+    aggregate_above: int = MAP_AGGREGATE_NODES,
+    cells: int = MAP_CELLS,
+) -> Figure:
+    """Per-node confidence on the map, or per-zone confidence bars without coordinates.
+
+    The confidence of a node is the share of the stability runs in which it
+    stayed in its zone (:func:`specgraph.stability`). On the map, boundary
+    links of ``zoning`` are drawn over the confidence colours
+    (:data:`CONFIDENCE_COLOURMAP`); an aggregated map shows the least
+    confident node of each cell. Without coordinates the figure shows each
+    zone's mean confidence and core share.
+
+    Parameters
+    ----------
+    zoning : Zoning
+    stability : Stability
+        Computed on the same network (one confidence per node).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    ParameterError
+        When ``stability`` has not one row per node of the zoning's network.
+
+    Other Parameters
+    ----------------
+    raster_above, aggregate_above, cells : int
+        As for :func:`zone_map_figure`.
+    """
+    network = zoning.network
+    nodes = stability.nodes
+    if len(nodes) != network.n_nodes:
+        raise ParameterError(
+            f"stability must have one row per node ({network.n_nodes}); got {len(nodes)} rows."
+        )
+    if network.coordinates is None:
+        return _stability_bars(stability.zones)
+    xy = network.coordinates
+    confidence = nodes["confidence"].to_numpy(dtype=float)
+    detail = _detail(network, raster_above, aggregate_above)
+    figure = _new_figure(_MAP_SIZE)
+    axes = figure.add_subplot()
+    norm = matplotlib.colors.Normalize(0.0, 1.0)
+    mappable: ScalarMappable
+    if detail == "aggregate":
+        grid = _grid(xy, check_int(cells, "cells", minimum=1))
+        low = cell_minimum(grid.cell, confidence, grid.shape[0] * grid.shape[1])
+        mappable = axes.imshow(
+            np.ma.masked_invalid(low.reshape(grid.shape)),
+            origin="lower",
+            extent=grid.extent,
+            interpolation="nearest",
+            cmap=CONFIDENCE_COLOURMAP,
+            norm=norm,
+            zorder=1,
+        )
+    else:
+        size = float(np.clip(20_000 / max(network.n_nodes, 1), 0.3, 10.0))
+        order = np.argsort(-confidence, kind="stable")  # least confident drawn last, on top
+        mappable = axes.scatter(
+            xy[order, 0],
+            xy[order, 1],
+            c=confidence[order],
+            s=size * 1.5,
+            cmap=CONFIDENCE_COLOURMAP,
+            norm=norm,
+            lw=0,
+            zorder=2,
+            rasterized=detail == "raster",
+        )
+    a, b = _links(network)
+    cross = zoning.labels[a] != zoning.labels[b]
+    _draw_boundary(
+        axes, xy, a[cross], b[cross], raster=int(cross.sum()) > MAP_BOUNDARY_VECTOR_LINKS
+    )
+    figure.colorbar(mappable, ax=axes, shrink=0.7, label="confidence (share of runs stayed)")
+    axes.set_aspect("equal")
+    axes.autoscale_view()
+    axes.set_title(
+        f"Node confidence over {len(stability.runs)} runs (mean {float(np.mean(confidence)):.3f})",
+        fontsize=10,
+        loc="left",
+    )
+    return figure
+
+
+def _stability_bars(zones: pd.DataFrame) -> Figure:
+    k = len(zones)
+    figure = _new_figure((8.0, max(2.5, 0.22 * min(k, BAR_ZONES_MAX) + 1.2)))
+    axes = figure.add_subplot()
+    shown = zones.head(BAR_ZONES_MAX)
+    ids = shown["zone"].to_numpy()
+    axes.barh(ids - 0.2, shown["confidence"], height=0.4, color=PALETTE[0], label="confidence")
+    axes.barh(ids + 0.2, shown["core_share"], height=0.4, color=PALETTE[5], label="core share")
+    axes.set_xlim(0, 1)
+    axes.set_ylabel("zone")
+    axes.invert_yaxis()
+    axes.legend(fontsize=7, loc="lower right")
+    axes.set_title(
+        "Zone confidence (no coordinates for a map)"
+        + (f"; first {BAR_ZONES_MAX} of {k} zones" if k > BAR_ZONES_MAX else ""),
+        fontsize=10,
+        loc="left",
+    )
+    return figure
