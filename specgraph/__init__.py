@@ -14,9 +14,10 @@ traffic model and defer to local codes and licensed engineers before acting.
 
 from importlib.metadata import PackageNotFoundError, version
 
-from . import gallery
+from . import gallery, interop
 from .diagnostics import boundary_links, compare, score, stability, zone_table
 from .eigen import EigenResult, smallest_eigenpairs
+from .estimator import ZoneSplitter
 from .exceptions import (
     ConstraintError,
     ConvergenceError,
@@ -43,12 +44,14 @@ __all__ = [
     "Network",
     "ParameterError",
     "SpecgraphError",
+    "ZoneSplitter",
     "Zoning",
     "__version__",
     "boundary_links",
     "compare",
     "find_zones",
     "gallery",
+    "interop",
     "laplacian",
     "read_edges",
     "score",

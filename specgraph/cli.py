@@ -37,11 +37,23 @@ from .diagnostics import (
 )
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
 from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
-from .export import CAUTION, file_checksum, jsonable, run_record, write_outputs, zoning_tables
+from .export import (
+    CAUTION,
+    file_checksum,
+    jsonable,
+    parquet_available,
+    run_record,
+    write_outputs,
+    zoning_geojson,
+    zoning_parquet,
+    zoning_tables,
+)
 from .io import (
+    DEFAULT_SNAP_TOLERANCE,
     GRAPHML_SUFFIXES,
     flagged_links,
     read_edges,
+    read_geojson_lines,
     read_link_list,
     read_node_list,
     read_zone_file,
@@ -97,6 +109,7 @@ def _bounded(kind: type, minimum: float, *, strict: bool, expected: str) -> Any:
 _positive_int = _bounded(int, 1, strict=False, expected="a whole number >= 1")
 _seed = _bounded(int, 0, strict=False, expected="a whole number >= 0")
 _positive_float = _bounded(float, 0.0, strict=True, expected="a finite number > 0")
+_non_negative_float = _bounded(float, 0.0, strict=False, expected="a finite number >= 0")
 
 
 def _zone_spec(text: str) -> Any:
@@ -117,7 +130,8 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
     group.add_argument(
         "edges",
         metavar="EDGES",
-        help="edge table (CSV or Parquet), or a GraphML file holding nodes and edges",
+        help="edge table (CSV or Parquet), a GraphML file holding nodes and edges, or a "
+        "GeoJSON file of lines (.geojson: line ends become nodes)",
     )
     group.add_argument(
         "--nodes", metavar="NODES", help="node table (ids, coordinates, sizes); not with GraphML"
@@ -137,6 +151,14 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
     group.add_argument("--y-col", metavar="COL", help="y coordinate column of the node table")
     group.add_argument(
         "--size-col", metavar="COL", help="node size column (e.g. connections served)"
+    )
+    group.add_argument(
+        "--snap",
+        type=_non_negative_float,
+        default=DEFAULT_SNAP_TOLERANCE,
+        metavar="TOL",
+        help="GeoJSON only: line ends closer than TOL (coordinate units) become one node "
+        f"(default {DEFAULT_SNAP_TOLERANCE:g}: ends that coincide up to rounding)",
     )
 
 
@@ -244,6 +266,10 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
 
 #: File name of the HTML report that --report adds to the output folder.
 REPORT_FILE = "report.html"
+#: Files that --geojson adds (names of :func:`specgraph.export.zoning_geojson`).
+GEOJSON_FILES = ["zones.geojson", "zone_summary.geojson", "boundary.geojson"]
+#: Suffixes (lower case) of edge files read as GeoJSON line networks.
+GEOJSON_SUFFIXES = frozenset({".geojson"})
 
 
 def _add_report(parser: argparse.ArgumentParser) -> None:
@@ -252,6 +278,21 @@ def _add_report(parser: argparse.ArgumentParser) -> None:
         action="store_true",
         help=f"also write {REPORT_FILE}: one self-contained page with the zone map, "
         "spectrum, tables, run record and cautions",
+    )
+
+
+def _add_formats(parser: argparse.ArgumentParser) -> None:
+    group = parser.add_argument_group("extra output formats")
+    group.add_argument(
+        "--geojson",
+        action="store_true",
+        help="also write zones, zone summary and boundary links as GeoJSON (RFC 7946) "
+        "features carrying the zone ids (needs node coordinates)",
+    )
+    group.add_argument(
+        "--parquet",
+        action="store_true",
+        help="also write the tables as Parquet (needs pyarrow)",
     )
 
 
@@ -284,6 +325,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_zoning(zones, reading=True)
     _add_solving(zones, auto=True)
     _add_report(zones)
+    _add_formats(zones)
     _add_common(zones, out="specgraph-zones")
 
     spectrum = commands.add_parser(
@@ -422,6 +464,7 @@ def build_parser() -> argparse.ArgumentParser:
     _add_zoning(demo, reading=False)
     _add_solving(demo, auto=True)
     _add_report(demo)
+    _add_formats(demo)
     _add_common(demo, out="specgraph-demo")
     return parser
 
@@ -450,7 +493,57 @@ def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespac
 
 
 def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
-    network = read_edges(
+    if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:
+        network = _read_geojson(args)
+    else:
+        network = _read_table(args)
+    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
+    inputs = [{"role": "edges", "path": args.edges, "checksum": file_checksum(args.edges)}]
+    if args.nodes:
+        inputs.append({"role": "nodes", "path": args.nodes, "checksum": file_checksum(args.nodes)})
+    return network, inputs
+
+
+def _read_geojson(args: argparse.Namespace) -> Network:
+    """A line network from GeoJSON; what was snapped or skipped is said on stderr."""
+    for option, value in (("--nodes", args.nodes), ("--size-col", args.size_col)):
+        if value:
+            raise ParameterError(
+                f"{option}: a GeoJSON line network builds its nodes from the line ends, so "
+                f"it takes no node table or node columns; received {option} {value}"
+            )
+    network, report = read_geojson_lines(
+        args.edges, snap_tolerance=args.snap, weight=args.weight, distance=args.distance
+    )
+    logger.info(
+        "GeoJSON: %d features, %d links, %d nodes; %d line ends snapped (largest gap %.3g)",
+        report.features,
+        report.links,
+        report.nodes,
+        report.snapped_ends,
+        report.largest_snap,
+    )
+    for message in report.warnings:
+        logger.warning("warning: %s", message)
+    return network
+
+
+def _check_formats(network: Network, args: argparse.Namespace) -> None:
+    """Refuse extra formats that cannot be written, before any work is done."""
+    if getattr(args, "geojson", False) and network.coordinates is None:
+        raise ParameterError(
+            "--geojson: GeoJSON features need node coordinates, and this network has none; "
+            "give --nodes with --x-col and --y-col (or read a GeoJSON line network)"
+        )
+    if getattr(args, "parquet", False) and not parquet_available():
+        raise ParameterError(
+            "--parquet: writing Parquet needs pyarrow, which is not installed; install it "
+            "with: pip install 'specgraph[parquet]'"
+        )
+
+
+def _read_table(args: argparse.Namespace) -> Network:
+    return read_edges(
         args.edges,
         source=args.source,
         target=args.target,
@@ -462,11 +555,6 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
         y=args.y_col,
         size=args.size_col,
     )
-    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
-    inputs = [{"role": "edges", "path": args.edges, "checksum": file_checksum(args.edges)}]
-    if args.nodes:
-        inputs.append({"role": "nodes", "path": args.nodes, "checksum": file_checksum(args.nodes)})
-    return network, inputs
 
 
 def _read_sources(network: Network, args: argparse.Namespace) -> tuple[str, ...]:
@@ -530,6 +618,7 @@ def _zone_and_write(
     *,
     markers: Sequence[str] = (),
 ) -> dict[str, Any]:
+    _check_formats(network, args)
     step("reading rules")
     constraints = _constraints(network, args)  # reads (and checks) the rule files first
     for option in ("supply_list", "keep_list", "fixed"):
@@ -561,7 +650,18 @@ def _zone_and_write(
             tables=tables,
             sources=tuple(dict.fromkeys([*constraints.sources, *markers])),
         )
-    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
+    # Files of optional formats that this run does not write go in the same commit, so
+    # that a folder never mixes this run's tables with an earlier run's extras.
+    stale = [] if args.report else [REPORT_FILE]
+    if args.geojson:
+        files.update(zoning_geojson(zoning))
+    else:
+        stale += GEOJSON_FILES
+    if args.parquet:
+        files.update(zoning_parquet(zoning))
+    else:
+        stale += [str(Path(name).with_suffix(".parquet")) for name in tables]
+    written = write_outputs(args.out, files, remove=stale)
     for message in zoning.warnings:
         logger.warning("warning: %s", message)
     for name, decision in zoning.decisions.items():

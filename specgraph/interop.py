@@ -1,0 +1,307 @@
+"""networkx and pandas in and out: graphs to networks, zonings to node sets, attributes and frames.
+
+What already exists and is not repeated here:
+
+* :meth:`specgraph.Network.from_networkx` builds a network from a graph with
+  a chosen weight attribute (a missing attribute counts as 1), sizes and
+  positions;
+* :func:`specgraph.io.network_from_frames` (and :meth:`Network.from_pandas`)
+  builds one from pandas edge and node frames;
+* :meth:`specgraph.Zoning.to_frame`, ``Zoning.zones`` and ``Zoning.boundary``
+  are the node, zone and boundary tables as frames.
+
+This module adds :func:`network_from_graph`, which goes through the frame
+reader so that every other edge attribute (a pipe or line id, say) is carried
+into the link table and so into boundary tables, and a missing or bad weight
+is refused naming its edge; and the way back: :func:`zone_sets`,
+:func:`annotate_graph` and :func:`zones_frame`.
+
+Node ids are compared as strings, as everywhere in specgraph: a graph node
+``7`` is the network's node ``"7"``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Hashable
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import pandas as pd
+
+from .exceptions import InputError, ParameterError
+from .io import network_from_frames
+from .network import Network
+from .zones import Zoning
+
+if TYPE_CHECKING:
+    import networkx as nx
+
+__all__ = ["annotate_graph", "network_from_graph", "zone_sets", "zones_frame"]
+
+#: Column names that :func:`network_from_graph` uses for the two link ends of
+#: the intermediate edge frame; chosen so that no ordinary edge attribute
+#: takes them (an attribute named so is refused, naming it).
+_SOURCE, _TARGET = "__source__", "__target__"
+
+
+def _graph_frames(
+    graph: nx.Graph, weight: str | None, size: str | None, pos: str | None
+) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """An edge frame (ends and every edge attribute) and a node frame of ``graph``."""
+    rows = []
+    for number, (u, v, data) in enumerate(graph.edges(data=True)):
+        for reserved in (_SOURCE, _TARGET):
+            if reserved in data:
+                raise InputError(
+                    f"edge {number} ({u!r}, {v!r}): attribute {reserved!r} is reserved"
+                )
+        if weight is not None and weight not in data:
+            raise InputError(
+                f"edge {number} ({u!r}, {v!r}) has no attribute {weight!r}; give every edge "
+                "one, or pass weight=None to give every link weight 1"
+            )
+        rows.append({_SOURCE: u, _TARGET: v, **data})
+    edges = pd.DataFrame(rows, columns=_edge_columns(rows))
+    node_rows: dict[str, list[Any]] = {"node": list(graph.nodes)}
+    if pos is not None:
+        xy = [_position(graph, node, pos) for node in graph.nodes]
+        node_rows["x"] = [p[0] for p in xy]
+        node_rows["y"] = [p[1] for p in xy]
+    if size is not None:
+        node_rows["size"] = [_node_value(graph, node, size) for node in graph.nodes]
+    return edges, pd.DataFrame(node_rows)
+
+
+def _edge_columns(rows: list[dict[Hashable, Any]]) -> list[Hashable]:
+    """Columns of the edge frame: the two ends, then attributes in order of first use."""
+    seen: dict[Hashable, None] = {_SOURCE: None, _TARGET: None}
+    for row in rows:
+        seen.update(dict.fromkeys(row))
+    return list(seen)
+
+
+def _node_value(graph: nx.Graph, node: Any, attribute: str) -> Any:
+    data = graph.nodes[node]
+    if attribute not in data:
+        raise InputError(f"node {node!r} has no attribute {attribute!r}; give every node one")
+    return data[attribute]
+
+
+def _position(graph: nx.Graph, node: Any, attribute: str) -> tuple[Any, Any]:
+    value = _node_value(graph, node, attribute)
+    try:
+        x, y = value
+    except (TypeError, ValueError):
+        raise InputError(
+            f"node {node!r}: attribute {attribute!r} must be a pair (x, y); got {value!r}"
+        ) from None
+    return x, y
+
+
+def network_from_graph(
+    graph: nx.Graph,
+    *,
+    weight: str | None = "weight",
+    distance: bool = False,
+    size: str | None = None,
+    pos: str | None = None,
+) -> Network:
+    """Build a :class:`~specgraph.Network` from a networkx graph, keeping its edge attributes.
+
+    Like :meth:`Network.from_networkx`, but through
+    :func:`specgraph.io.network_from_frames`: every edge attribute other than
+    the weight becomes a column of :attr:`Network.link_table` (so boundary
+    tables carry pipe or line ids), and an edge without the weight attribute,
+    or with a weight that is not a finite number in range, is refused
+    naming the edge instead of counting as 1.
+
+    Parameters
+    ----------
+    graph : networkx.Graph
+        Any networkx graph. Directed graphs and multigraphs are read as
+        undirected, parallel links summed (the input policy of
+        :class:`Network`). Node labels become string ids.
+    weight : str or None, default="weight"
+        Edge attribute holding the weight; ``None`` gives every link weight 1.
+    distance : bool, default=False
+        Read ``weight`` as a length, impedance or latency and turn it into an
+        affinity (:func:`specgraph.network.affinity_from_distance`).
+    size : str, optional
+        Node attribute holding node sizes (finite, >= 0).
+    pos : str, optional
+        Node attribute holding ``(x, y)`` coordinates, as networkx layouts
+        and geometric generators store them.
+
+    Returns
+    -------
+    Network
+        Nodes in the graph's node order, isolated nodes included.
+
+    Raises
+    ------
+    InputError
+        An edge lacks ``weight``, a node lacks ``size`` or ``pos``, or a
+        value is out of range (the message names the edge or node).
+    ParameterError
+        ``graph`` is not a networkx graph, or options conflict.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> g = nx.Graph()
+    >>> g.add_edge("a", "b", weight=2.0, pipe="P-1")
+    >>> g.add_edge("b", "c", weight=1.0, pipe="P-2")
+    >>> net = network_from_graph(g)
+    >>> net.link_table[["source", "target", "weight", "pipe"]].to_numpy().tolist()
+    [['a', 'b', 2.0, 'P-1'], ['b', 'c', 1.0, 'P-2']]
+    """
+    if not hasattr(graph, "edges") or not hasattr(graph, "nodes"):
+        raise ParameterError(f"graph must be a networkx graph; got {type(graph).__name__}.")
+    if graph.number_of_edges() == 0:
+        raise InputError("the graph has no edges; a network needs at least one link")
+    edges, nodes = _graph_frames(graph, weight, size, pos)
+    return network_from_frames(
+        edges,
+        source=_SOURCE,
+        target=_TARGET,
+        weight=weight,
+        distance=distance,
+        nodes=nodes,
+        node="node",
+        x="x" if pos is not None else None,
+        y="y" if pos is not None else None,
+        size="size" if size is not None else None,
+    )
+
+
+def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
+    """The zones as node sets: item ``z`` holds the ids of zone ``z``.
+
+    Parameters
+    ----------
+    zoning : Zoning
+
+    Returns
+    -------
+    list of frozenset of str
+        One set per zone, zones in number order (descending size); the sets
+        are disjoint and cover every node, the form networkx's
+        ``community.modularity`` and ``is_partition`` take.
+
+    Examples
+    --------
+    >>> from specgraph import find_zones, gallery
+    >>> sets = zone_sets(find_zones(gallery.barbell(3), 2, rng=0))
+    >>> [sorted(s) for s in sets]
+    [['0', '1', '2'], ['3', '4', '5']]
+    """
+    _check_zoning(zoning)
+    ids = zoning.network.node_ids
+    order = np.argsort(zoning.labels, kind="stable")
+    bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
+    return [
+        frozenset(ids[order[bounds[z] : bounds[z + 1]]].tolist()) for z in range(zoning.n_zones)
+    ]
+
+
+def annotate_graph(
+    graph: nx.Graph, zoning: Zoning, *, attribute: str = "zone", copy: bool = True
+) -> nx.Graph:
+    """Write each node's zone into a node attribute of a networkx graph.
+
+    Parameters
+    ----------
+    graph : networkx.Graph
+        The graph the zoning's network came from: its nodes, compared as
+        strings, must be exactly the network's nodes.
+    zoning : Zoning
+    attribute : str, default="zone"
+        Node attribute to set (an int zone number).
+    copy : bool, default=True
+        When True the attributes are set on a copy (``graph.copy()``) and
+        ``graph`` is left unchanged; when False they are set on ``graph``
+        itself. Either way the annotated graph is returned.
+
+    Returns
+    -------
+    networkx.Graph
+        The annotated graph (a copy unless ``copy=False``).
+
+    Raises
+    ------
+    InputError
+        A graph node is not in the zoning, a zoning node is not in the
+        graph, or two graph nodes have the same string id.
+
+    Examples
+    --------
+    >>> import networkx as nx
+    >>> from specgraph import find_zones
+    >>> g = nx.barbell_graph(3, 0)
+    >>> zoned = annotate_graph(g, find_zones(network_from_graph(g, weight=None), 2, rng=0))
+    >>> [zoned.nodes[v]["zone"] for v in sorted(zoned)]
+    [0, 0, 0, 1, 1, 1]
+    >>> "zone" in g.nodes[0]
+    False
+    """
+    _check_zoning(zoning)
+    if not isinstance(copy, bool):
+        raise ParameterError(f"copy must be True or False; got {copy!r}.")
+    if not isinstance(attribute, str) or not attribute:
+        raise ParameterError(f"attribute must be a non-empty string; got {attribute!r}.")
+    index = zoning.network.index_of
+    by_id: dict[str, Any] = {}
+    for node in graph.nodes:
+        key = str(node)
+        if key in by_id:
+            raise InputError(
+                f"graph nodes {by_id[key]!r} and {node!r} have the same id {key!r} as text; "
+                "relabel one of them"
+            )
+        if key not in index:
+            raise InputError(f"graph node {node!r} is not in the zoning's network")
+        by_id[key] = node
+    if len(by_id) != zoning.network.n_nodes:
+        missing = next(v for v in zoning.network.node_ids.tolist() if v not in by_id)
+        raise InputError(f"node {missing!r} of the zoning's network is not in the graph")
+    target = graph.copy() if copy else graph
+    labels = zoning.labels
+    for key, node in by_id.items():
+        target.nodes[node][attribute] = int(labels[index[key]])
+    return target
+
+
+def zones_frame(zoning: Zoning) -> pd.DataFrame:
+    """One row per node: ``node``, ``zone``, then ``x``, ``y`` and ``size`` where known.
+
+    Parameters
+    ----------
+    zoning : Zoning
+
+    Returns
+    -------
+    pandas.DataFrame
+        In network row order; ``node`` as text, ``zone`` as int64.
+
+    Examples
+    --------
+    >>> from specgraph import find_zones, gallery
+    >>> zones_frame(find_zones(gallery.path(4), 2, rng=0)).to_numpy().tolist()
+    [['0', 0], ['1', 0], ['2', 1], ['3', 1]]
+    """
+    _check_zoning(zoning)
+    frame = zoning.to_frame()
+    net = zoning.network
+    if net.coordinates is not None:
+        frame["x"] = net.coordinates[:, 0]
+        frame["y"] = net.coordinates[:, 1]
+    if net.sizes is not None:
+        frame["size"] = net.sizes
+    return frame
+
+
+def _check_zoning(zoning: Any) -> None:
+    if not isinstance(zoning, Zoning):
+        raise ParameterError(
+            f"zoning must be a specgraph Zoning (from find_zones); got {type(zoning).__name__}."
+        )
