@@ -160,6 +160,12 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
         help="GeoJSON only: line ends closer than TOL (coordinate units) become one node "
         f"(default {DEFAULT_SNAP_TOLERANCE:g}: ends that coincide up to rounding)",
     )
+    group.add_argument(
+        "--skip-invalid",
+        action="store_true",
+        help="GeoJSON only: leave out features with invalid geometry instead of stopping "
+        "(counted in a warning; the first 20 of each reason listed in run.json)",
+    )
 
 
 def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
@@ -513,7 +519,11 @@ def _read_geojson(args: argparse.Namespace) -> Network:
                 f"it takes no node table or node columns; received {option} {value}"
             )
     network, report = read_geojson_lines(
-        args.edges, snap_tolerance=args.snap, weight=args.weight, distance=args.distance
+        args.edges,
+        snap_tolerance=args.snap,
+        weight=args.weight,
+        distance=args.distance,
+        on_invalid="skip" if args.skip_invalid else "raise",
     )
     logger.info(
         "GeoJSON: %d features, %d links, %d nodes; %d line ends snapped (largest gap %.3g)",

@@ -714,6 +714,91 @@ def test_graphml_key_defaults_applied(capsys: pytest.CaptureFixture[str], tmp_pa
     assert record["network"]["links"] == 7
 
 
+# ------------------------------------------------------------------ GeoJSON
+def _feature(geometry: dict[str, Any], **properties: Any) -> dict[str, Any]:
+    return {"type": "Feature", "properties": properties, "geometry": geometry}
+
+
+def _collection(*features: dict[str, Any]) -> str:
+    return json.dumps({"type": "FeatureCollection", "features": list(features)})
+
+
+# A triangle of three lines in projected (metre-like) coordinates.
+TRIANGLE_LINES = [
+    _feature({"type": "LineString", "coordinates": [[500.0, 500.0], [600.0, 500.0]]}),
+    _feature({"type": "LineString", "coordinates": [[600.0, 500.0], [550.0, 600.0]]}),
+    _feature({"type": "LineString", "coordinates": [[550.0, 600.0], [500.0, 500.0]]}),
+]
+
+
+def test_geojson_not_json(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    path = write(tmp_path, "mains.geojson", '{"type": "FeatureCollection",\n "features": [,]}')
+    # The stray comma is on line 2, column 15 (1-based, counted by hand).
+    refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "line 2", "column 15"])
+
+
+def test_geojson_not_utf8(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    path = write(tmp_path, "mains.geojson", b'{"type": "FeatureCollection", "name": "\xe9"}')
+    refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "UTF-8"])
+
+
+def test_geojson_not_a_feature_collection(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    path = write(tmp_path, "one.geojson", json.dumps(TRIANGLE_LINES[0]))
+    refused(capsys, tmp_path, "zones", path, names=["one.geojson", "FeatureCollection", "Feature"])
+
+
+def test_geojson_no_lines(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    points = _feature({"type": "Point", "coordinates": [1.0, 2.0]})
+    path = write(tmp_path, "points.geojson", _collection(points))
+    refused(capsys, tmp_path, "zones", path, names=["points.geojson", "no line"])
+
+
+@pytest.mark.parametrize(
+    "coordinates",
+    [[[500.0, 500.0], ["x", 1.0]], [[500.0, 500.0], [float("nan"), 1.0]], [[500.0, 500.0]]],
+    ids=["text", "nan", "one-position"],
+)
+def test_geojson_invalid_feature(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, coordinates: list[Any]
+) -> None:
+    bad = _feature({"type": "LineString", "coordinates": coordinates})
+    path = write(tmp_path, "mains.geojson", _collection(*TRIANGLE_LINES, bad))
+    refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "feature 3", "--skip-invalid"])
+
+
+def test_geojson_invalid_feature_skipped(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    bad = _feature({"type": "LineString", "coordinates": [[500.0, 500.0], ["x", 1.0]]})
+    path = write(tmp_path, "mains.geojson", _collection(bad, *TRIANGLE_LINES))
+    record, zones, err = zoned(capsys, tmp_path, path, "--zones", "1", "--skip-invalid")
+    assert "1 skipped" in err
+    listed = policy(record)["geojson"]["skipped_first"]
+    assert [entry["feature"] for entries in listed.values() for entry in entries] == [0]
+    assert len(zones) == 3
+
+
+def test_geojson_non_line_features_listed(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    # Longitude/latitude-looking coordinates (|x| <= 180, |y| <= 90) and one point feature.
+    lines = [
+        _feature({"type": "LineString", "coordinates": [[1.0, 1.0], [1.5, 1.0]]}),
+        _feature({"type": "LineString", "coordinates": [[1.5, 1.0], [1.2, 1.4]]}),
+        _feature({"type": "LineString", "coordinates": [[1.2, 1.4], [1.0, 1.0]]}),
+    ]
+    hydrant = _feature({"type": "Point", "coordinates": [1.1, 1.1]})
+    path = write(tmp_path, "mains.geojson", _collection(*lines, hydrant))
+    record, zones, err = zoned(capsys, tmp_path, path, "--zones", "1")
+    assert "1 skipped" in err
+    assert "degrees" in err
+    skipped = policy(record)["geojson"]["skipped_first"]
+    assert [entry["feature"] for entries in skipped.values() for entry in entries] == [3]
+    assert len(zones) == 3
+
+
 # ----------------------------------------------------------------- rules
 UNKNOWN_IN_RULE_FILES = [
     pytest.param("--supply-list", "supply.csv", "node\nJ1\nQX-9\n", "'QX-9'", id="supply-list"),

@@ -18,6 +18,7 @@ from __future__ import annotations
 
 import csv
 import io
+import json
 import math
 import re
 import tempfile
@@ -34,7 +35,13 @@ from hypothesis import strategies as st
 
 from specgraph import Network, find_zones
 from specgraph.exceptions import ConstraintError, InputError, ParameterError
-from specgraph.io import read_edges, read_node_list, read_table, read_zone_file
+from specgraph.io import (
+    read_edges,
+    read_geojson_lines,
+    read_node_list,
+    read_table,
+    read_zone_file,
+)
 from specgraph.zones import ZoneConstraints
 
 #: Examples per reader test in the default run (each is one small file, milliseconds).
@@ -62,6 +69,7 @@ READERS: dict[str, Callable[[Path], Any]] = {
     "read_table": read_table,
     "read_zone_file": read_zone_file,
     "read_node_list": read_node_list,
+    "read_geojson_lines": read_geojson_lines,
 }
 
 
@@ -90,6 +98,7 @@ def byte_files(draw: st.DrawFn) -> bytes:
                 b"node,zone\n",
                 b"source,target,weight\n",
                 b'<?xml version="1.0"?>\n<graphml>',
+                b'{"type": "FeatureCollection", "features": [',
             ]
         )
     )
@@ -105,14 +114,18 @@ def _check_bytes(data: bytes, suffix: str) -> None:
 
 
 @settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
-@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml"]))
+@given(
+    data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml", ".geojson"])
+)
 def test_random_bytes_never_crash_a_reader(data: bytes, suffix: str) -> None:
     _check_bytes(data, suffix)
 
 
 @pytest.mark.slow
 @settings(max_examples=READER_SLOW_EXAMPLES, deadline=None, database=None)
-@given(data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml"]))
+@given(
+    data=byte_files(), suffix=st.sampled_from([".csv", ".txt", ".parquet", ".graphml", ".geojson"])
+)
 def test_random_bytes_never_crash_a_reader_long(data: bytes, suffix: str) -> None:
     _check_bytes(data, suffix)
 
@@ -222,6 +235,56 @@ def test_random_graphml_never_crashes_a_reader(data: bytes) -> None:
 @given(data=graphml_files())
 def test_random_graphml_never_crashes_a_reader_long(data: bytes) -> None:
     _check_bytes(data, ".graphml")
+
+
+# --------------------------------------------------------- random GeoJSON
+#: JSON values that can stand where RFC 7946 expects coordinates: numbers (finite or not),
+#: text, nulls and nested lists of them.
+_JSON_LEAVES = st.one_of(
+    st.floats(allow_nan=True, allow_infinity=True, width=32),
+    st.integers(min_value=-(10**20), max_value=10**20),
+    st.sampled_from(["", "x", "1"]),
+    st.none(),
+)
+_NONSENSE = st.recursive(_JSON_LEAVES, lambda inner: st.lists(inner, max_size=4), max_leaves=12)
+#: Valid line positions on a coarse grid, so that ends often coincide and lines join.
+_POSITION = st.lists(st.integers(min_value=0, max_value=3).map(float), min_size=2, max_size=2)
+_COORDINATES = st.one_of(st.lists(_POSITION, min_size=2, max_size=4), _NONSENSE)
+_GEOMETRY_TYPES = st.sampled_from(
+    ["LineString", "MultiLineString", "Point", "Polygon", "GeometryCollection", "", None]
+)
+
+
+@st.composite
+def geojson_files(draw: st.DrawFn) -> bytes:
+    """RFC 7946-shaped collections with random geometry types, coordinates and properties."""
+    features = []
+    for _ in range(draw(st.integers(min_value=0, max_value=6))):
+        geometry = draw(
+            st.one_of(
+                st.none(),
+                st.fixed_dictionaries({"type": _GEOMETRY_TYPES, "coordinates": _COORDINATES}),
+            )
+        )
+        properties = draw(
+            st.one_of(st.none(), st.dictionaries(st.sampled_from(["id", "w", ""]), _JSON_LEAVES))
+        )
+        features.append({"type": "Feature", "geometry": geometry, "properties": properties})
+    kind = draw(st.sampled_from(["FeatureCollection", "FeatureCollection", "Feature", "Topology"]))
+    return json.dumps({"type": kind, "features": features}).encode()
+
+
+@settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)
+@given(data=geojson_files())
+def test_random_geojson_never_crashes_a_reader(data: bytes) -> None:
+    _check_bytes(data, ".geojson")
+
+
+@pytest.mark.slow
+@settings(max_examples=READER_SLOW_EXAMPLES, deadline=None, database=None)
+@given(data=geojson_files())
+def test_random_geojson_never_crashes_a_reader_long(data: bytes) -> None:
+    _check_bytes(data, ".geojson")
 
 
 @settings(max_examples=READER_EXAMPLES, deadline=None, database=None, derandomize=True)

@@ -342,8 +342,9 @@ def _read_feature(index: int, feature: Any, parsed: _Parsed, path: Path, on_inva
     except _Invalid as exc:
         if on_invalid == "raise":
             raise InputError(
-                f"feature {index}: {exc}; correct the feature, or pass on_invalid='skip' to "
-                "leave invalid features out (they are listed in the report)",
+                f"feature {index}: {exc}; correct the feature, or leave invalid features "
+                "out with --skip-invalid (on_invalid='skip' in Python): they are then "
+                "listed in the run record",
                 path=path,
             ) from None
         parsed.skipped.append(SkippedPart(index, None, f"invalid: {exc}"))
