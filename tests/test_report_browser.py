@@ -20,12 +20,10 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
 import pytest
 
-from specgraph import find_zones
-from specgraph.demo import demo_files, load_demo
-from specgraph.report import write_report
+from specgraph.cli import REPORT_FILE, main
+from specgraph.demo import load_demo
 
 CHROMIUM = Path("/usr/bin/chromium")
 CHROMEDRIVER = Path("/usr/bin/chromedriver")
@@ -64,18 +62,10 @@ def artifacts(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 @pytest.fixture(scope="module")
 def demo_report(artifacts: Path) -> tuple[Path, int]:
-    """The report of the demo zoning, as ``specgraph demo --report`` makes it; node count."""
-    network = load_demo()
-    sources = pd.read_csv(demo_files().sources, dtype=str)["node"].tolist()
-    zoning = find_zones(network, "auto", rng=0)
-    path = write_report(
-        artifacts / "demo-report.html",
-        zoning,
-        command="specgraph demo --seed 0 --report",
-        sources=sources,
-        title="Quillmere demo zones",
-    )
-    return path, network.n_nodes
+    """The report that ``specgraph demo --report`` writes, run through the command line."""
+    out = artifacts / "demo"
+    assert main(["demo", "--report", "--out", str(out), "--quiet"]) == 0
+    return out / REPORT_FILE, load_demo().n_nodes
 
 
 @pytest.fixture(scope="module")
