@@ -15,6 +15,14 @@ Input policies (documented in ``docs/input-policy.md`` and counted in
   and counted;
 * a link of affinity zero joins nothing; it is left out of the adjacency, its two
   ends stay in the network, and it is counted.
+
+A network read as directed (``directed=True``) also keeps :attr:`Network.arcs`:
+the directed affinities, row = from-node, column = to-node, with the same
+policies (self-loops dropped, repeated arcs in the *same* direction summed, zero
+arcs dropped; ``a -> b`` and ``b -> a`` are two arcs, not a repeat). Its
+:attr:`Network.adjacency` is then the symmetrized ``arcs + arcs.T``, so every
+undirected stage works on it unchanged; only the stages that ask for direction
+(random walks, the directed Laplacian) read :attr:`Network.arcs`.
 """
 
 from __future__ import annotations
@@ -29,7 +37,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from .exceptions import InputError
+from .exceptions import InputError, ParameterError
 
 if TYPE_CHECKING:
     import networkx as nx
@@ -114,11 +122,19 @@ class Network:
     notes : mapping, optional
         What was done to the input on the way in (counts of self-loops,
         merged duplicates, zero-weight links, weight conversion).
+    arcs : sparse array of shape (n, n), optional
+        Directed affinities (row = from-node, column = to-node), non-negative,
+        zero diagonal, with ``adjacency == arcs + arcs.T`` (checked to
+        :data:`SYMMETRY_RTOL`). None for an undirected network.
 
     Attributes
     ----------
     n_nodes, n_links : int
         Number of nodes and of distinct undirected links in the adjacency.
+    directed : bool
+        Whether the network keeps its arcs.
+    n_arcs : int
+        Number of distinct arcs (0 for an undirected network).
     degrees : ndarray
         Weighted degree of each node.
     component_labels : ndarray of int
@@ -133,6 +149,7 @@ class Network:
     sizes: np.ndarray | None = None
     links: pd.DataFrame | None = None
     notes: Mapping[str, Any] = field(default_factory=dict)
+    arcs: sp.csr_array | None = None
 
     def __post_init__(self) -> None:
         # A private copy: the canonicalization below works in place, and neither
@@ -164,6 +181,29 @@ class Network:
         object.__setattr__(self, "coordinates", self._checked_coordinates(n))
         object.__setattr__(self, "sizes", self._checked_sizes(n))
         object.__setattr__(self, "notes", MappingProxyType(dict(self.notes)))
+        object.__setattr__(self, "arcs", self._checked_arcs(adjacency))
+
+    def _checked_arcs(self, adjacency: sp.csr_array) -> sp.csr_array | None:
+        if self.arcs is None:
+            return None
+        arcs = sp.csr_array(self.arcs, dtype=np.float64, copy=True)
+        arcs.sum_duplicates()
+        arcs.eliminate_zeros()
+        arcs.sort_indices()
+        if arcs.shape != adjacency.shape:
+            raise InputError(f"arcs must have shape {adjacency.shape}; got {arcs.shape}")
+        data = arcs.data
+        if data.size and not (np.all(np.isfinite(data)) and data.min() > 0):
+            raise InputError("arcs must hold finite, non-negative affinities")
+        if arcs.diagonal().any():
+            raise InputError("arcs must have a zero diagonal (no self-loops)")
+        gap = abs(adjacency - (arcs + arcs.T))
+        scale = adjacency.data.max() if adjacency.nnz else 1.0
+        if gap.nnz and gap.max() > SYMMETRY_RTOL * scale:
+            raise InputError("adjacency must equal arcs + arcs.T for a directed network")
+        for part in (arcs.data, arcs.indices, arcs.indptr):
+            _readonly(part)
+        return arcs
 
     def _checked_coordinates(self, n: int) -> np.ndarray | None:
         if self.coordinates is None:
@@ -189,6 +229,14 @@ class Network:
     @property
     def n_links(self) -> int:
         return int(self.adjacency.nnz // 2)
+
+    @property
+    def directed(self) -> bool:
+        return self.arcs is not None
+
+    @property
+    def n_arcs(self) -> int:
+        return 0 if self.arcs is None else int(self.arcs.nnz)
 
     @cached_property
     def degrees(self) -> np.ndarray:
@@ -255,7 +303,7 @@ class Network:
         """The network induced on ``nodes`` (row indices), in that order.
 
         The link table is not carried over: the sub-network lists its links
-        from the adjacency.
+        from the adjacency. The arcs of a directed network are carried over.
         """
         nodes = np.asarray(nodes, dtype=np.int64)
         sub = self.adjacency[nodes][:, nodes]
@@ -264,6 +312,7 @@ class Network:
             self.node_ids[nodes],
             coordinates=None if self.coordinates is None else self.coordinates[nodes],
             sizes=None if self.sizes is None else self.sizes[nodes],
+            arcs=None if self.arcs is None else self.arcs[nodes][:, nodes],
         )
 
     # ---------------------------------------------------------- constructors
@@ -279,6 +328,7 @@ class Network:
         sizes: np.ndarray | None = None,
         extra: pd.DataFrame | None = None,
         notes: Mapping[str, Any] | None = None,
+        directed: bool = False,
     ) -> Network:
         """Build a network from parallel arrays of link ends and affinities.
 
@@ -302,6 +352,10 @@ class Network:
             Further per-link columns to carry into :attr:`link_table`.
         notes : mapping, optional
             Notes to keep beside the policy counts.
+        directed : bool, default=False
+            Keep the direction ``source -> target`` in :attr:`arcs`; the
+            adjacency is then ``arcs + arcs.T``. Only arcs repeated in the
+            same direction count as duplicates.
 
         Returns
         -------
@@ -312,6 +366,12 @@ class Network:
         >>> net = Network.from_links(["a", "b", "b"], ["b", "c", "a"], [1.0, 2.0, 0.5])
         >>> net.n_nodes, net.n_links, net.notes["duplicate_links_merged"]
         (3, 2, 1)
+        >>> net = Network.from_links(["a", "b", "b"], ["b", "c", "a"], [1.0, 2.0, 0.5],
+        ...                          directed=True)
+        >>> net.n_links, net.n_arcs, net.notes["duplicate_links_merged"]
+        (2, 3, 0)
+        >>> net.arcs.toarray().tolist()
+        [[0.0, 1.0, 0.0], [0.5, 0.0, 2.0], [0.0, 0.0, 0.0]]
         """
         import pandas as pd
 
@@ -324,8 +384,13 @@ class Network:
             raise InputError("weight must have one value per link")
         if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
             raise InputError("weights must be finite and >= 0")
+        if not isinstance(directed, bool):
+            raise ParameterError(f"directed must be True or False; got {directed!r}.")
         ids, i, j = _index_links(src, dst, node_ids)
-        adjacency, counts = _adjacency_from_links(i, j, w, ids.size)
+        adjacency, counts = _adjacency_from_links(i, j, w, ids.size, directed=directed)
+        arcs = None
+        if directed:
+            arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
         table = pd.DataFrame({"source": src, "target": dst, "weight": w})
         if extra is not None:
             table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
@@ -336,6 +401,7 @@ class Network:
             sizes=sizes,
             links=table,
             notes={**counts, **(notes or {})},
+            arcs=arcs,
         )
 
     @classmethod
@@ -345,6 +411,7 @@ class Network:
         *,
         node_ids: Sequence[Any] | None = None,
         symmetrize: bool = False,
+        directed: bool = False,
     ) -> Network:
         """Build a network from a square sparse or dense adjacency matrix.
 
@@ -358,6 +425,10 @@ class Network:
         symmetrize : bool, default=False
             When True, a directed matrix is made undirected as ``A + A^T``;
             when False, an asymmetric matrix is refused.
+        directed : bool, default=False
+            Keep the matrix as the arcs (row = from-node) of a directed
+            network whose adjacency is ``A + A^T``; ``symmetrize`` is then
+            implied.
 
         Returns
         -------
@@ -367,10 +438,16 @@ class Network:
         n = adjacency.shape[0]
         loops = int(np.count_nonzero(adjacency.diagonal()))
         adjacency = adjacency - sp.diags_array(adjacency.diagonal())
-        if symmetrize:
+        arcs = adjacency if directed else None
+        if symmetrize or directed:
             adjacency = adjacency + adjacency.T
         ids = np.arange(n).astype(str) if node_ids is None else node_ids
-        return cls(adjacency, np.asarray(ids, dtype=object), notes={"self_loops_dropped": loops})
+        return cls(
+            adjacency,
+            np.asarray(ids, dtype=object),
+            notes={"self_loops_dropped": loops},
+            arcs=arcs,
+        )
 
     @classmethod
     def from_networkx(
@@ -456,14 +533,17 @@ def _index_links(
 
 
 def _adjacency_from_links(
-    i: np.ndarray, j: np.ndarray, w: np.ndarray, n: int
+    i: np.ndarray, j: np.ndarray, w: np.ndarray, n: int, *, directed: bool = False
 ) -> tuple[sp.csr_array, dict[str, int]]:
-    """Symmetric adjacency with the module's input policies, and their counts."""
+    """Symmetric adjacency (or, directed, the arcs) with the input policies, and their counts."""
     loops = i == j
     zero = (w == 0) & ~loops
     keep = ~loops & ~zero
-    lo = np.minimum(i[keep], j[keep])
-    hi = np.maximum(i[keep], j[keep])
+    if directed:
+        lo, hi = i[keep], j[keep]
+    else:
+        lo = np.minimum(i[keep], j[keep])
+        hi = np.maximum(i[keep], j[keep])
     pair_keys = lo * n + hi
     distinct = np.unique(pair_keys).size
     upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()  # sums repeats
@@ -473,4 +553,7 @@ def _adjacency_from_links(
         "zero_weight_links_dropped": int(zero.sum()),
         "duplicate_links_merged": int(keep.sum() - distinct),
     }
+    if directed:
+        upper.sum_duplicates()
+        return upper, counts
     return (upper + upper.T).tocsr(), counts

@@ -33,6 +33,19 @@ low-degree nodes instead of following the large-scale structure:
   columns) and a Gershgorin lower bound :attr:`GraphOperator.lower_bound` below
   zero, from which the eigen-solver takes a shift.
 
+One operator serves directed networks (:attr:`Network.arcs`):
+
+* ``'directed'``: the directed Laplacian of Chung [6]_,
+  :math:`\\mathcal{L} = I - (\\Phi^{1/2} P \\Phi^{-1/2} + \\Phi^{-1/2} P^T \\Phi^{1/2})/2`,
+  with :math:`\\Phi` the stationary distribution of the random surfer
+  (:func:`specgraph.walks.stationary_distribution`: the walk *with*
+  teleportation, which has one positive stationary distribution even when
+  the network is not strongly connected). The teleport jumps of that walk
+  form a dense rank-one flow; they are kept as holding steps at each node
+  (see :func:`laplacian`, Notes), so the operator stays sparse, positive
+  semi-definite, block diagonal in the connected components, and has the
+  exact null vector :math:`\\Phi^{1/2}` on each.
+
 Isolated nodes follow the convention of scipy's ``csgraph.laplacian`` and
 networkx: their row of ``N`` is zero, so each isolated node is a component with
 eigenvalue 0 like any other.
@@ -49,13 +62,16 @@ References
    degree-corrected stochastic blockmodel", NIPS 26, 2013.
 .. [5] A. Saade, F. Krzakala and L. Zdeborova, "Spectral clustering of graphs
    with the Bethe Hessian", NIPS 27, 2014.
+.. [6] F. Chung, "Laplacians and the Cheeger inequality for directed
+   graphs", Annals of Combinatorics 9(1):1-19, 2005.
+   :doi:`10.1007/s00026-005-0237-z`
 """
 
 from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
-from typing import Any, Literal
+from typing import TYPE_CHECKING, Any, Literal
 
 import numpy as np
 import scipy.sparse as sp
@@ -64,17 +80,21 @@ from ._validation import check_choice, check_positive_float
 from .exceptions import ParameterError
 from .network import Network
 
+if TYPE_CHECKING:
+    from .walks import StationaryResult
+
 __all__ = [
     "BETHE_MIN_R",
     "DEFAULT_TAU",
     "GraphOperator",
     "LaplacianKind",
     "bethe_radius",
+    "directed_flow",
     "laplacian",
 ]
 
 LaplacianKind = Literal[
-    "combinatorial", "normalized", "random_walk", "regularized", "bethe_hessian"
+    "combinatorial", "normalized", "random_walk", "regularized", "bethe_hessian", "directed"
 ]
 
 #: Default regularization of the ``'regularized'`` kind: ``tau`` is the mean
@@ -286,6 +306,73 @@ def bethe_radius(network: Network) -> float:
     return float(np.sqrt(max(float((counts**2).sum() / total) - 1.0, BETHE_MIN_R**2)))
 
 
+def directed_flow(
+    network: Network, *, damping: float | None = None
+) -> tuple[sp.csr_array, np.ndarray, StationaryResult]:
+    r"""The symmetrized stationary flow along the arcs, and the stationary distribution.
+
+    Returns :math:`S = lpha(\Phi P + P^T \Phi)/2` (sparse, the flow of the
+    random surfer along the network's own arcs at stationarity, made
+    symmetric), :math:`\phi`, and the stationary solve.
+    """
+    from .walks import DEFAULT_DAMPING, stationary_distribution
+
+    if network.arcs is None:
+        raise ParameterError(
+            "kind='directed' needs a directed network (one read with directed=True, "
+            "which keeps its arcs); got an undirected network."
+        )
+    walk = stationary_distribution(network, damping=DEFAULT_DAMPING if damping is None else damping)
+    _, inv, _ = _walk_parts(network)
+    phi = walk.values
+    flow = sp.diags_array(walk.damping * phi * inv) @ network.arcs
+    return ((flow + flow.T) * 0.5).tocsr(), phi, walk
+
+
+def _walk_parts(network: Network) -> tuple[sp.csr_array, np.ndarray, np.ndarray]:
+    from .walks import transition_parts
+
+    return transition_parts(network)
+
+
+def _directed(network: Network, damping: float | None) -> GraphOperator:
+    r"""Chung's directed Laplacian with the teleport flow kept as holding steps.
+
+    :math:`\mathcal{L} = I - \Phi^{-1/2}igl(S + \operatorname{diag}(\phi - S\mathbf{1})igr)
+    \Phi^{-1/2} = \operatorname{diag}(S\mathbf{1}/\phi) - \Phi^{-1/2} S \Phi^{-1/2}`.
+    """
+    flow, phi, walk = directed_flow(network, damping=damping)
+    through = np.asarray(flow.sum(axis=1)).ravel()
+    s = _inverse_sqrt(phi)
+    # Scale the one-sided flow, then symmetrize: (X + X^T)/2 is symmetric to
+    # the last bit, which D^-1/2 S D^-1/2 computed in one go is not.
+    _, inv, _ = _walk_parts(network)
+    one_sided = sp.diags_array(walk.damping * phi * inv * s) @ network.arcs @ sp.diags_array(s)
+    scaled = (one_sided + one_sided.T) * 0.5
+    matrix = (sp.diags_array(through * s * s) - scaled).tocsr()
+    matrix.eliminate_zeros()
+    basis = _component_basis(network, np.sqrt(phi))
+    parameters = {
+        "damping": walk.damping,
+        "stationary_iterations": walk.iterations,
+        "stationary_residual": walk.residual,
+        "stationary_error_bound": walk.error_bound,
+        "dangling_nodes": walk.dangling,
+        "teleport_share": float(1.0 - through.sum() / phi.sum()) if phi.sum() > 0 else 0.0,
+    }
+    return GraphOperator(
+        matrix,
+        "directed",
+        2.0,
+        basis,
+        network.degrees,
+        network.component_labels,
+        None,
+        0.0,
+        parameters,
+    )
+
+
 def _bethe_hessian(network: Network, r: float | None) -> GraphOperator:
     """``H(r) = (r^2 - 1) I - r A + D`` on the link pattern, with Gershgorin bounds."""
     r = bethe_radius(network) if r is None else check_positive_float(r, "r")
@@ -318,7 +405,7 @@ _BUILDERS: dict[str, Callable[[Network], GraphOperator]] = {
 }
 
 #: Kinds that take a parameter, with the name of that parameter.
-_PARAMETRIZED = {"regularized": "tau", "bethe_hessian": "r"}
+_PARAMETRIZED = {"regularized": "tau", "bethe_hessian": "r", "directed": "damping"}
 
 
 def laplacian(
@@ -327,6 +414,7 @@ def laplacian(
     kind: LaplacianKind = "normalized",
     tau: float | None = None,
     r: float | None = None,
+    damping: float | None = None,
 ) -> GraphOperator:
     r"""Build a Laplacian (or a deformed Laplacian) of ``network`` as a :class:`GraphOperator`.
 
@@ -336,7 +424,7 @@ def laplacian(
         The network.
     kind : str, default='normalized'
         One of ``'normalized'``, ``'combinatorial'``, ``'random_walk'``,
-        ``'regularized'``, ``'bethe_hessian'``. ``'combinatorial'`` is
+        ``'regularized'``, ``'bethe_hessian'``, ``'directed'``. ``'combinatorial'`` is
         :math:`L = D - A`; ``'normalized'`` is
         :math:`I - D^{-1/2} A D^{-1/2}`; ``'random_walk'`` is
         :math:`I - D^{-1} A`, represented by its symmetric similar matrix;
@@ -344,7 +432,9 @@ def laplacian(
         with :math:`A_\tau = A + (\tau/n_c)\mathbf{1}\mathbf{1}^T` on each
         component of :math:`n_c` nodes; ``'bethe_hessian'`` is
         :math:`H(r) = (r^2 - 1) I - r A + D` with :math:`A` and :math:`D` the
-        unweighted link pattern and its neighbour counts.
+        unweighted link pattern and its neighbour counts; ``'directed'`` is
+        Chung's directed Laplacian of the random surfer on
+        :attr:`Network.arcs` (see Notes).
     tau : float, optional
         Regularization of ``'regularized'``, ``>= 0``; the mean weighted
         degree when None (:data:`DEFAULT_TAU`). ``tau=0`` gives the
@@ -352,6 +442,9 @@ def laplacian(
     r : float, optional
         Parameter of ``'bethe_hessian'``, ``> 0``; :func:`bethe_radius` when
         None. ``r=1`` gives :math:`D - A`.
+    damping : float, optional
+        Damping of the random surfer of ``'directed'``, in (0, 1);
+        :data:`specgraph.walks.DEFAULT_DAMPING` (0.85) when None.
 
     Returns
     -------
@@ -360,8 +453,13 @@ def laplacian(
     Raises
     ------
     ParameterError
-        For an unknown kind, or ``tau`` / ``r`` given to a kind that does not
-        take it.
+        For an unknown kind, ``tau`` / ``r`` / ``damping`` given to a kind
+        that does not take it, ``damping`` outside (0, 1), or
+        ``kind='directed'`` on a network without arcs.
+    ConvergenceError
+        When the stationary distribution of ``'directed'`` misses its
+        tolerance (it cannot with the default cap; see
+        :func:`specgraph.walks.default_maxiter`).
 
     Notes
     -----
@@ -386,6 +484,38 @@ def laplacian(
     ``null_basis`` has zero columns and ``lower_bound`` is a Gershgorin lower
     bound, from which the eigen-solver takes its shift.
 
+    *Directed.* Let :math:`\phi` be the stationary distribution of the
+    random surfer :math:`G = lpha P + c v^T` (:mod:`specgraph.walks`; ``v``
+    uniform, so :math:`\phi > 0`), and split its flow
+    :math:`\Phi G` into the flow along arcs, :math:`lpha\Phi P`, and the
+    teleport flow :math:`\Phi c v^T`. Chung's Laplacian of ``G`` [6]_ is the
+    normalized Laplacian :math:`I - \Phi^{-1/2} S_G \Phi^{-1/2}` of the
+    symmetric flow :math:`S_G = (\Phi G + G^T\Phi)/2`, whose row sums are
+    :math:`\phi` (stationarity). The teleport part of :math:`S_G` is dense
+    and couples every node to every other; here each node's teleport flow
+    is instead kept on the node itself (a holding step, a self-loop of the
+    same weight), which changes no row sum:
+
+    .. math::
+
+        \mathcal{L} = I - \Phi^{-1/2}igl(S + \operatorname{diag}(\phi - S\mathbf{1})igr)
+        \Phi^{-1/2}, \qquad S = lpha(\Phi P + P^T\Phi)/2 .
+
+    So :math:`\mathcal{L}` is the normalized Laplacian of a symmetric
+    non-negative matrix with row sums :math:`\phi` (:math:`S\mathbf{1} \le
+    \phi` because the teleport flow is non-negative): sparse (the pattern of
+    the adjacency), positive semi-definite with eigenvalues in [0, 2], block
+    diagonal in the connected components, with exact null vector
+    :math:`\Phi^{1/2}` on each. It equals Chung's :math:`\mathcal{L}_G` minus
+    :math:`\Phi^{-1/2} L_T \Phi^{-1/2}`, :math:`L_T` the combinatorial
+    Laplacian of the symmetrized teleport flow, so its eigenvalues are at
+    most Chung's (Weyl). Cheeger's inequality holds for it with cuts
+    measured by the stationary flow along arcs and volumes by :math:`\phi`
+    (Chung's circulation conductance without the teleport jumps). Within a
+    component, a uniform teleport makes :math:`\phi` proportional to the
+    component's own stationary distribution, so zoning components one at a
+    time gives the same operator.
+
     Examples
     --------
     >>> from specgraph.gallery import path
@@ -400,7 +530,7 @@ def laplacian(
            [ 0., -2.,  4.]])
     """
     check_choice(kind, "kind", (*_BUILDERS, *_PARAMETRIZED))
-    for name, value in (("tau", tau), ("r", r)):
+    for name, value in (("tau", tau), ("r", r), ("damping", damping)):
         if value is not None and _PARAMETRIZED.get(kind) != name:
             raise ParameterError(
                 f"{name} applies to kind={_kind_of(name)!r} only; got {name}={value!r} "
@@ -410,6 +540,8 @@ def laplacian(
         return _regularized(network, tau)
     if kind == "bethe_hessian":
         return _bethe_hessian(network, r)
+    if kind == "directed":
+        return _directed(network, damping)
     return _BUILDERS[kind](network)
 
 

@@ -394,6 +394,7 @@ def build_network(
     edge_origin: Origin,
     node_origin: Origin,
     notes: Mapping[str, Any],
+    directed: bool = False,
 ) -> Network:
     """Check the frames, then build the network (shared by the public readers)."""
     _check_options(edges, nodes, columns)
@@ -422,6 +423,7 @@ def build_network(
         sizes=None if table is None else table.sizes,
         extra=edges[extra].reset_index(drop=True) if extra else None,
         notes=record,
+        directed=directed,
     )
 
 
@@ -462,6 +464,7 @@ def network_from_frames(
     node_path: str | None = None,
     locate: Callable[[int], int | None] | None = None,
     node_locate: Callable[[int], int | None] | None = None,
+    directed: bool = False,
 ) -> Network:
     """Build a :class:`~specgraph.Network` from an edge frame and an optional node frame.
 
@@ -498,6 +501,10 @@ def network_from_frames(
     locate, node_locate : callable, default=None
         ``locate(row_position)`` gives the 1-based file line of a 0-based data
         row, or ``None``; errors then name the line, else the 1-based row.
+    directed : bool, default=False
+        Keep each link's direction ``source -> target`` in
+        :attr:`~specgraph.Network.arcs` (one-way streets, flow from sources
+        to consumers); the undirected adjacency is then ``arcs + arcs.T``.
 
     Returns
     -------
@@ -537,4 +544,5 @@ def network_from_frames(
         edge_origin=Origin(path, locate),
         node_origin=Origin(node_path, node_locate),
         notes={},
+        directed=directed,
     )

@@ -481,8 +481,9 @@ def read_edges(
     y: str | None = None,
     size: str | None = None,
     delimiter: str | None = None,
+    directed: bool = False,
 ) -> Network:
-    """Read an edge table (and optionally a node table) from CSV or Parquet files.
+    """Read an edge table (and optionally a node table) from CSV, Parquet or GraphML.
 
     Both tables are read with :func:`read_table` and turned into a network by
     :func:`network_from_frames`; errors name the file, line and column.
@@ -503,6 +504,9 @@ def read_edges(
     delimiter : str, default=None
         CSV delimiter of both tables; ``None`` chooses per file as in
         :func:`read_table`.
+    directed : bool, default=False
+        Keep each link's direction ``source -> target``
+        (see :func:`network_from_frames`).
 
     Returns
     -------
@@ -528,4 +532,5 @@ def read_edges(
             Origin() if node_table is None else Origin(node_table.record["path"], node_table.locate)
         ),
         notes=notes,
+        directed=directed,
     )

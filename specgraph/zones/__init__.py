@@ -32,11 +32,13 @@ from ._constraints import (
 )
 from ._count import ZoneCount, choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
+from ._local import LocalZone, PushResult, acl_sweep_bound, local_zone, personalized_push
 from ._refine import Refinement, normalized_cut, refine_boundary
 from ._sweep import SweepCut, sweep_cut
 from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
 from ._zoning import (
     ASSIGNMENTS,
+    NORMALIZED_LIKE,
     OPERATOR_KINDS,
     TREE_TREATMENTS,
     ComponentSolve,
@@ -50,6 +52,7 @@ __all__ = [
     "ASSIGN_METHODS",
     "BALANCE_ROUNDS",
     "KMEANS_RESTARTS",
+    "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
     "AssignmentChoice",
@@ -59,6 +62,8 @@ __all__ = [
     "ComponentSolve",
     "Contraction",
     "Enforcement",
+    "LocalZone",
+    "PushResult",
     "Refinement",
     "ResolvedConstraints",
     "SweepCut",
@@ -66,6 +71,7 @@ __all__ = [
     "ZoneConstraints",
     "ZoneCount",
     "Zoning",
+    "acl_sweep_bound",
     "allocate_zones",
     "attach_trees",
     "balance_sizes",
@@ -79,10 +85,12 @@ __all__ = [
     "enforce_constraints",
     "find_zones",
     "kmeans_labels",
+    "local_zone",
     "normalized_cut",
     "normalized_rows",
     "number_by_size",
     "parse_zone_spec",
+    "personalized_push",
     "qr_concentration",
     "qr_labels",
     "recursive_bisection",

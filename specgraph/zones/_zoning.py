@@ -35,6 +35,7 @@ from ..eigen import DEFAULT_TOL, METHODS, EigenResult, smallest_eigenpairs
 from ..exceptions import ParameterError
 from ..network import Network
 from ..operators import laplacian
+from ..walks import DEFAULT_DAMPING, check_damping
 from ._allocate import allocate_zones
 from ._assign import bisection_labels, choose_assignment, kmeans_labels, qr_labels
 from ._constraints import (
@@ -51,6 +52,7 @@ from ._trees import MIN_TREE_SHARE, core_and_trees, trees_worth_stripping
 
 __all__ = [
     "ASSIGNMENTS",
+    "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
     "ComponentSolve",
@@ -62,7 +64,18 @@ __all__ = [
 logger = logging.getLogger(__name__)
 
 #: Operators ``find_zones`` can embed with (besides ``"auto"``).
-OPERATOR_KINDS = ("normalized", "random_walk", "combinatorial", "regularized", "bethe_hessian")
+OPERATOR_KINDS = (
+    "normalized",
+    "random_walk",
+    "combinatorial",
+    "regularized",
+    "bethe_hessian",
+    "directed",
+)
+#: Operators whose eigenvectors embed like the normalized Laplacian's (the
+#: directed Laplacian is the normalized Laplacian of the symmetrized
+#: stationary flow, :func:`specgraph.laplacian`).
+NORMALIZED_LIKE = ("normalized", "random_walk", "directed")
 #: Assignment methods (besides ``"auto"``).
 ASSIGNMENTS = ("kmeans", "qr", "bisection")
 #: Treatments of dangling trees (besides ``"auto"``).
@@ -240,7 +253,10 @@ def _merge(network: Network, rules: ResolvedConstraints, pairs: np.ndarray) -> _
     first = np.full(contraction.n_groups, network.n_nodes, dtype=np.int64)
     np.minimum.at(first, groups, np.arange(network.n_nodes))
     sizes = contraction.sum_nodes(rules.sizes)
-    work = Network(contraction.adjacency, network.node_ids[first], sizes=sizes)
+    # Arcs are contracted with the same groups (arcs inside a group vanish,
+    # parallel arcs add up), so the merged network keeps its direction.
+    arcs = None if network.arcs is None else contract_links(network.arcs, pairs).adjacency
+    work = Network(contraction.adjacency, network.node_ids[first], sizes=sizes, arcs=arcs)
     return _Merged(work, groups, merged_rules, sizes)
 
 
@@ -261,10 +277,17 @@ class _SolveOptions:
     tol: float
     maxiter: int | None
     rng: np.random.Generator
+    damping: float | None = None
+    #: Parameters of every operator built (the stationary solves of ``directed``).
+    records: list[dict[str, Any]] = field(default_factory=list)
 
     def solve(self, network: Network, count: int) -> EigenResult:
+        extra = {"damping": self.damping} if self.kind == "directed" else {}
+        operator = laplacian(network, kind=self.kind, **extra)  # type: ignore[arg-type]
+        if operator.parameters:
+            self.records.append({"nodes": network.n_nodes, **operator.parameters})
         return smallest_eigenpairs(
-            laplacian(network, kind=self.kind),  # type: ignore[arg-type]
+            operator,
             min(count, network.n_nodes),
             method=self.method,
             tol=self.tol,
@@ -292,7 +315,8 @@ def _choose_count(
     if len(candidates) == 1:
         only = candidates.start
         return only, {"choice": only, "reason": f"the only count {bounded}"}, None
-    normalized = replace(solver, kind="normalized")
+    count_kind = "directed" if solver.kind == "directed" else "normalized"
+    normalized = replace(solver, kind=count_kind) if solver.kind != count_kind else solver
     result = normalized.solve(work, max(candidates) + 1)
     vectors = result.vectors
 
@@ -309,7 +333,7 @@ def _choose_count(
         "reason": choice.reason + (f" (counts {bounded})" if bounded else ""),
         "evidence": choice.evidence.to_dict(orient="records"),
     }
-    return choice.zones, record, result if c == 1 and solver.kind == "normalized" else None
+    return choice.zones, record, result if c == 1 and solver.kind == count_kind else None
 
 
 def _counts_within_bounds(
@@ -367,7 +391,7 @@ def _assign_component(
         labels = np.arange(sub.n_nodes, dtype=np.int64)
         return labels, eig, {"choice": "one node per zone", "reason": "as many zones as nodes"}
     if assign == "auto":
-        if solver.kind in ("normalized", "random_walk"):
+        if solver.kind in NORMALIZED_LIKE:
             picked = choose_assignment(
                 eig.values, eig.vectors, k, sample=sub.n_nodes > QR_SAMPLE_ROWS, rng=solver.rng
             )
@@ -441,6 +465,7 @@ def find_zones(
     tol: float = DEFAULT_TOL,
     maxiter: int | None = None,
     rng: Any = None,
+    damping: float = DEFAULT_DAMPING,
 ) -> Zoning:
     """Split a network into well-connected zones that keep the given constraints.
 
@@ -472,10 +497,14 @@ def find_zones(
     Other Parameters
     ----------------
     operator : {'auto', 'normalized', 'random_walk', 'combinatorial', 'regularized', \
-'bethe_hessian'}, default='auto'
+'bethe_hessian', 'directed'}, default='auto'
         Operator whose smallest eigenvectors embed the nodes
         (:func:`specgraph.laplacian`). ``'auto'`` is ``'normalized'``, with
         dangling trees attached when they are many (see ``trees``).
+        ``'directed'`` (networks read with ``directed=True`` only) is Chung's
+        directed Laplacian of the random surfer on the arcs; the zone count
+        ``'auto'`` then reads the eigengaps of that operator, and the
+        stationary solves are recorded in ``decisions["directed"]``.
     assign : {'auto', 'kmeans', 'qr', 'bisection'}, default='auto'
         How embedded nodes become zones: k-means on normalized rows (Ng,
         Jordan and Weiss 2001), the pivoted-QR assignment (Damle, Minden and
@@ -499,6 +528,9 @@ def find_zones(
         Iteration cap of iterative eigen-solvers.
     rng : None, int or numpy.random.Generator
         Seeds start vectors, k-means and tie-breaks.
+    damping : float, default=0.85
+        Damping of the random surfer of ``operator='directed'``, in (0, 1)
+        (:data:`specgraph.walks.DEFAULT_DAMPING`); checked, unused otherwise.
 
     Notes
     -----
@@ -522,6 +554,12 @@ def find_zones(
     check_choice(eigen_method, "eigen_method", METHODS)
     if not isinstance(refine, bool):
         raise ParameterError(f"refine must be True or False; got {refine!r}.")
+    damping = check_damping(damping)
+    if operator == "directed" and not network.directed:
+        raise ParameterError(
+            "operator='directed' needs a directed network (read with directed=True, which "
+            "keeps the arcs); got an undirected network."
+        )
     generator = check_rng(rng)
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
     decisions: dict[str, dict[str, Any]] = {}
@@ -531,7 +569,7 @@ def find_zones(
     merged = _merge(network, rules, np.concatenate([rules.keep_pairs, tree_pairs]))
     work = merged.network
     kind, decisions["operator"] = _operator_choice(operator, tree_pairs.size > 0)
-    solver = _SolveOptions(kind, eigen_method, tol, maxiter, generator)
+    solver = _SolveOptions(kind, eigen_method, tol, maxiter, generator, damping)
     k, decisions["zone_count"], known = _choose_count(work, spec, merged.rules, solver)
     per_component, notes = _zones_per_component(work, min(k, work.n_nodes))
 
@@ -551,6 +589,8 @@ def find_zones(
         offset += k_c
     if methods:
         decisions["assign"] = _summarize_methods(methods)
+    if kind == "directed":
+        decisions["directed"] = _directed_record(damping, solver.records)
 
     enforced = enforce_constraints(work.adjacency, raw, merged.rules, rng=generator)
     labels_w = enforced.labels
@@ -601,10 +641,23 @@ def find_zones(
             "eigen_method": eigen_method,
             "tol": tol,
             "maxiter": maxiter,
+            **({"damping": damping} if kind == "directed" else {}),
         },
         decisions=decisions,
         warnings=tuple(notes),
     )
+
+
+def _directed_record(damping: float, records: list[dict[str, Any]]) -> dict[str, Any]:
+    """The damping and every stationary-distribution solve behind the directed Laplacian."""
+    steps = [int(r["stationary_iterations"]) for r in records]
+    worst = max((float(r["stationary_error_bound"]) for r in records), default=0.0)
+    reason = (
+        f"Chung's directed Laplacian of the random surfer with damping {damping:g}: "
+        f"{len(records)} stationary solve(s) by power iteration, "
+        f"{max(steps, default=0)} steps at most, L1 error at most {worst:.2g}"
+    )
+    return {"damping": damping, "reason": reason, "solves": [dict(r) for r in records]}
 
 
 def _summarize_methods(methods: list[dict[str, Any]]) -> dict[str, Any]:
