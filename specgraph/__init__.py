@@ -28,7 +28,8 @@ from .exceptions import (
 from .io import read_edges
 from .network import Network
 from .operators import GraphOperator, laplacian
-from .zones import Zoning, find_zones
+from .walks import StationaryResult, stationary_distribution
+from .zones import LocalZone, Zoning, find_zones, local_zone
 
 try:
     __version__ = version("specgraph")
@@ -41,9 +42,11 @@ __all__ = [
     "EigenResult",
     "GraphOperator",
     "InputError",
+    "LocalZone",
     "Network",
     "ParameterError",
     "SpecgraphError",
+    "StationaryResult",
     "ZoneSplitter",
     "Zoning",
     "__version__",
@@ -53,9 +56,11 @@ __all__ = [
     "gallery",
     "interop",
     "laplacian",
+    "local_zone",
     "read_edges",
     "score",
     "smallest_eigenpairs",
     "stability",
+    "stationary_distribution",
     "zone_table",
 ]

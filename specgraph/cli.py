@@ -21,6 +21,8 @@ from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from . import __version__
 from ._guard import check_memory
 from ._progress import stage_progress, wants_progress
@@ -28,6 +30,7 @@ from .diagnostics import (
     DEFAULT_REPEATS,
     DEFAULT_SPREAD,
     DEFAULT_TOP,
+    boundary_links,
     compare_frames,
     labels_from_mapping,
     robustness,
@@ -61,12 +64,15 @@ from .io import (
 from .network import Network
 from .operators import laplacian
 from .report import build_report
+from .walks import DEFAULT_DAMPING
 from .zones import (
     ASSIGNMENTS,
+    DEFAULT_LOCAL_ALPHA,
     OPERATOR_KINDS,
     TREE_TREATMENTS,
     ZoneConstraints,
     find_zones,
+    local_zone,
     parse_zone_spec,
 )
 
@@ -112,6 +118,17 @@ _positive_float = _bounded(float, 0.0, strict=True, expected="a finite number > 
 _non_negative_float = _bounded(float, 0.0, strict=False, expected="a finite number >= 0")
 
 
+def _open_unit(text: str) -> float:
+    """A number strictly between 0 and 1 (a damping factor or a teleport probability)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number in (0, 1), got {text!r}") from None
+    if not 0.0 < value < 1.0:
+        raise argparse.ArgumentTypeError(f"expected a number in (0, 1), got {text!r}")
+    return value
+
+
 def _zone_spec(text: str) -> Any:
     try:
         return parse_zone_spec(text)
@@ -138,6 +155,13 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
     )
     group.add_argument("--source", default="source", metavar="COL", help="link start column")
     group.add_argument("--target", default="target", metavar="COL", help="link end column")
+    group.add_argument(
+        "--directed",
+        action="store_true",
+        help="keep each link's direction, source to target (one-way streets, flow from "
+        "sources to consumers); zones then follow the random walk along the links (the "
+        "directed Laplacian) and importance follows the arcs",
+    )
     group.add_argument(
         "--weight", metavar="COL", help="weight column (affinity: bigger = more strongly tied)"
     )
@@ -192,6 +216,14 @@ def _add_solving(parser: argparse.ArgumentParser, *, auto: bool) -> None:
         type=_positive_float,
         default=DEFAULT_TOL,
         help=f"eigen residual bound (default {DEFAULT_TOL})",
+    )
+    group.add_argument(
+        "--damping",
+        type=_open_unit,
+        default=DEFAULT_DAMPING,
+        metavar="D",
+        help="with --directed: probability that the random walk follows a link rather than "
+        f"jumping to a random node (default {DEFAULT_DAMPING})",
     )
     group.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
 
@@ -350,7 +382,7 @@ def build_parser() -> argparse.ArgumentParser:
         metavar="M",
         help=f"eigenvalues to compute (default {DEFAULT_SPECTRUM_COUNT})",
     )
-    _add_solving(spectrum, auto=False)
+    _add_solving(spectrum, auto=True)
     _add_common(spectrum, out="specgraph-spectrum")
 
     score = commands.add_parser(
@@ -380,6 +412,14 @@ def build_parser() -> argparse.ArgumentParser:
         help="skip the eigen-solve for the eigengap at the zone count (large networks)",
     )
     score.add_argument("--tol", type=_positive_float, default=DEFAULT_TOL, help=argparse.SUPPRESS)
+    score.add_argument(
+        "--damping",
+        type=_open_unit,
+        default=DEFAULT_DAMPING,
+        metavar="D",
+        help="node importance: probability that the random walk follows a link rather than "
+        f"jumping to a random node (default {DEFAULT_DAMPING})",
+    )
     score.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
     _add_common(score, out="specgraph-score")
 
@@ -460,6 +500,43 @@ def build_parser() -> argparse.ArgumentParser:
     _add_report(stable)
     _add_common(stable, out="specgraph-stability")
 
+    local = commands.add_parser(
+        "local",
+        help="a compact, weakly attached zone around one or more assets",
+        description="Find a compact zone of low conductance around one or more assets (a "
+        "failed pump, a substation, a junction) from a random walk that restarts at them "
+        "(Andersen-Chung-Lang push) and a sweep cut; only the part of the network the walk "
+        "reaches is examined.",
+        epilog=_caution_epilog(
+            "  specgraph local pipes.csv --around QJ-0412\n"
+            "  specgraph local pipes.csv --around QJ-0412 QJ-0977 --size-limit 300"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(local)
+    local.add_argument(
+        "--around",
+        nargs="+",
+        required=True,
+        metavar="NODE",
+        help="id of the asset (or several ids): the zone holds all of them",
+    )
+    local.add_argument(
+        "--size-limit",
+        type=_positive_float,
+        metavar="N",
+        help="largest zone, in --size-col units when given, else in nodes",
+    )
+    local.add_argument(
+        "--alpha",
+        type=_open_unit,
+        default=DEFAULT_LOCAL_ALPHA,
+        metavar="A",
+        help="restart probability of the walk: larger keeps the zone tighter "
+        f"(default {DEFAULT_LOCAL_ALPHA})",
+    )
+    _add_common(local, out="specgraph-local")
+
     demo = commands.add_parser(
         "demo",
         help="zone the bundled demo network (the invented town of Quillmere)",
@@ -512,11 +589,16 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
 
 def _read_geojson(args: argparse.Namespace) -> Network:
     """A line network from GeoJSON; what was snapped or skipped is said on stderr."""
-    for option, value in (("--nodes", args.nodes), ("--size-col", args.size_col)):
+    for option, value in (
+        ("--nodes", args.nodes),
+        ("--size-col", args.size_col),
+        ("--directed", args.directed),
+    ):
         if value:
             raise ParameterError(
-                f"{option}: a GeoJSON line network builds its nodes from the line ends, so "
-                f"it takes no node table or node columns; received {option} {value}"
+                f"{option}: not available for a GeoJSON line network (its nodes are built "
+                "from the line ends, and its lines are read without direction); leave the "
+                f"option out, or convert the lines to an edge table; received {option} {value}"
             )
     network, report = read_geojson_lines(
         args.edges,
@@ -564,6 +646,7 @@ def _read_table(args: argparse.Namespace) -> Network:
         x=args.x_col,
         y=args.y_col,
         size=args.size_col,
+        directed=args.directed,
     )
 
 
@@ -647,6 +730,7 @@ def _zone_and_write(
         refine=not args.no_refine,
         tol=args.tol,
         rng=args.seed,
+        damping=args.damping,
     )
     step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
@@ -722,8 +806,15 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 
     network, inputs = _read(args)
     count = min(args.count, network.n_nodes)
+    # 'auto': the directed Laplacian for a network read with directions, else the normalized.
+    if args.operator == "auto":
+        args.operator = "directed" if network.directed else "normalized"
+    damping = args.damping if args.operator == "directed" else None
     result = smallest_eigenpairs(
-        laplacian(network, kind=args.operator), count, tol=args.tol, rng=args.seed
+        laplacian(network, kind=args.operator, damping=damping),
+        count,
+        tol=args.tol,
+        rng=args.seed,
     )
     table = pd.DataFrame(
         {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
@@ -732,7 +823,7 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     # the other operators' eigenvalues are listed without them.
     suggested = (
         suggest_zone_counts(result.values, n_components=network.n_components)
-        if args.operator in ("normalized", "random_walk")
+        if args.operator in ("normalized", "random_walk", "directed")
         else []
     )
     record = {
@@ -781,6 +872,7 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         eigengap=not args.no_eigengap,
         rng=args.seed,
         tol=args.tol,
+        damping=args.damping,
     )
     if coverage.unassigned:
         logger.warning(
@@ -800,6 +892,10 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "caution": CAUTION,
     }
     files: dict[str, Any] = {"zone_scores.csv": card.zones, "run.json": jsonable(record)}
+    if card.node_importance is not None:
+        files["node_importance.csv"] = pd.DataFrame(
+            {"node": network.node_ids, "zone": labels, "importance": card.node_importance}
+        )
     if coverage.unassigned:
         files["unassigned.csv"] = pd.DataFrame({"node": list(card.unassigned)})
     written = write_outputs(
@@ -934,6 +1030,7 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "constraints": constraints,
         "refine": not args.no_refine,
         "tol": args.tol,
+        "damping": args.damping,
     }
     logger.info(
         "zoning %d times (1 reference, %d other seeds, %d with weights perturbed by %.0f%%)",
@@ -990,6 +1087,78 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     return {"out": str(args.out), "overall": jsonable(overall), "warnings": list(result.warnings)}
 
 
+def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    import pandas as pd
+
+    network, inputs = _read(args)
+    if network.directed:
+        logger.warning(
+            "warning: the local zone walks the links in both directions; --directed is "
+            "recorded but does not change it"
+        )
+    found = local_zone(network, args.around, size_limit=args.size_limit, alpha=args.alpha)
+    inside = np.zeros(network.n_nodes, dtype=np.int64)
+    rows = np.array([network.index_of[node] for node in found.nodes], dtype=np.int64)
+    inside[rows] = 1
+    crossing = boundary_links(network, inside)
+    crossing.insert(
+        3, "inside", np.where(crossing["zone_a"] == 1, crossing["source"], crossing["target"])
+    )
+    crossing = crossing.drop(columns=["zone_a", "zone_b"])
+    zone = pd.DataFrame({"node": found.nodes, "sweep_rank": np.arange(len(found.nodes))})
+    figures = {
+        "around": list(found.seeds),
+        "nodes": len(found.nodes),
+        "size": found.size,
+        "volume": found.volume,
+        "boundary_weight": found.boundary_weight,
+        "boundary_links": len(crossing),
+        "conductance": found.conductance,
+        "connected": found.connected,
+        "alpha": found.alpha,
+        "epsilon": found.epsilon,
+        "pushes": found.pushes,
+        "touched_nodes": found.touched,
+        "network_nodes": network.n_nodes,
+        "pushed_volume": found.pushed_volume,
+        "work_bound": found.work_bound,
+        "sweep_conductance_bound": found.sweep_bound,
+    }
+    record = {
+        "specgraph_run": 1,
+        "command": ["specgraph", *argv],
+        "inputs": inputs,
+        "local_zone": figures,
+        "caution": CAUTION,
+    }
+    written = write_outputs(
+        args.out,
+        {
+            "local_zone.csv": zone,
+            "local_boundary.csv": crossing,
+            "sweep.csv": found.profile,
+            "run.json": jsonable(record),
+        },
+    )
+    if not found.connected:
+        logger.warning(
+            "warning: the zone is in several pieces (the assets are far apart); each piece "
+            "is weakly attached, but they do not form one area"
+        )
+    logger.info(
+        "local zone around %s: %d nodes, conductance %.4g, %d boundary links; the walk "
+        "touched %d of %d nodes",
+        ", ".join(found.seeds),
+        len(found.nodes),
+        found.conductance,
+        len(crossing),
+        found.touched,
+        network.n_nodes,
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "local_zone": jsonable(figures)}
+
+
 _COMMANDS = {
     "zones": _cmd_zones,
     "spectrum": _cmd_spectrum,
@@ -998,6 +1167,7 @@ _COMMANDS = {
     "robustness": _cmd_robustness,
     "stability": _cmd_stability,
     "demo": _cmd_demo,
+    "local": _cmd_local,
 }
 
 
@@ -1036,7 +1206,7 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
     """Run one command; map every failure to its exit code and a one-line message."""
-    if args.command in ("zones", "demo", "score", "stability", "robustness"):
+    if args.command in ("zones", "demo", "score", "stability", "robustness", "local"):
         logger.info("caution: %s", CAUTION)
     try:
         summary = _COMMANDS[args.command](args, argv)

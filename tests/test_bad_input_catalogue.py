@@ -14,6 +14,7 @@ from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
 
+import networkx as nx
 import pandas as pd
 import pytest
 
@@ -959,6 +960,62 @@ def test_supply_points_tied_by_kept_link(
         keep,
         names=["'J1'", "'J2'", "keep_links"],
     )
+
+
+# --------------------------------------------------- directed and local zones
+def test_local_unknown_asset(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    refused(capsys, tmp_path, "local", edges, "--around", "J9", names=["J9"])
+
+
+@pytest.mark.parametrize("value", ["0", "1", "1.5", "x"])
+def test_damping_outside_unit_interval(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, value: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    args = ("--directed", "--damping", value)
+    refused(capsys, tmp_path, "zones", edges, *args, names=["--damping", value])
+
+
+@pytest.mark.parametrize("value", ["0", "1", "-0.1"])
+def test_local_alpha_outside_unit_interval(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, value: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    args = ("--around", "J1", "--alpha", value)
+    refused(capsys, tmp_path, "local", edges, *args, names=["--alpha", value])
+
+
+def test_directed_geojson_refused(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    path = write(tmp_path, "mains.geojson", _collection(*TRIANGLE_LINES))
+    refused(capsys, tmp_path, "zones", path, "--directed", names=["--directed"])
+
+
+def test_directed_reverse_links_are_two_arcs(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES + "J2,J1\n")
+    record, _, _ = zoned(capsys, tmp_path, edges, "--directed", "--zones", "2")
+    assert policy(record)["duplicate_links_merged"] == 0
+    assert record["network"]["links"] == 7  # the undirected view: J1-J2 once, weight 2
+
+
+def test_directed_dead_ends_teleport(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    # J6 has no outgoing link in this orientation (a dead end).
+    edges = write(
+        tmp_path, "edges.csv", "source,target\nJ1,J2\nJ2,J3\nJ3,J1\nJ3,J4\nJ4,J5\nJ5,J6\n"
+    )
+    zones = write(tmp_path, "zones.csv", "node,zone\nJ1,0\nJ2,0\nJ3,0\nJ4,1\nJ5,1\nJ6,1\n")
+    out = tmp_path / "out"
+    code, err = run(capsys, out, "score", edges, zones, "--directed")
+    assert code == EXIT_OK, err
+    graph = nx.DiGraph([("J1", "J2"), ("J2", "J3"), ("J3", "J1"), ("J3", "J4")])
+    graph.add_edges_from([("J4", "J5"), ("J5", "J6")])
+    # networkx pagerank sends a dead end's step to a uniformly chosen node (its default).
+    reference = nx.pagerank(graph, alpha=0.85, tol=1e-13, max_iter=1000)
+    nodes = pd.read_csv(out / "node_importance.csv", dtype={"node": str})
+    ours = dict(zip(nodes["node"], nodes["importance"], strict=True))
+    assert all(abs(ours[n] - reference[n]) < 1e-9 for n in reference)
 
 
 # ------------------------------------------------------- score: zone files

@@ -349,3 +349,20 @@ def test_labels_from_mapping_refuses_unknown_ids_with_count_and_path():
 def test_labels_from_mapping_refuses_bad_zones():
     with pytest.raises(InputError, match="integers >= 0"):
         labels_from_mapping(gallery.path(3), {"0": -1})
+
+
+def test_importance_is_pagerank_summed_per_zone() -> None:
+    # Reference: networkx pagerank (random surfer with teleportation, damping 0.85) on the
+    # karate club graph shipped with networkx, summed over an arbitrary two-zone split.
+    graph = nx.karate_club_graph()
+    network = Network.from_networkx(graph, weight="weight")
+    labels = np.array([0 if graph.nodes[n]["club"] == "Mr. Hi" else 1 for n in graph])
+    rows = [network.index_of[str(n)] for n in graph]
+    card = score(network, labels[np.argsort(rows)], eigengap=False)
+    reference = nx.pagerank(graph, alpha=0.85, weight="weight", tol=1e-13, max_iter=1000)
+    per_zone = [sum(v for n, v in reference.items() if labels[n] == z) for z in (0, 1)]
+    np.testing.assert_allclose(card.zones["importance"], per_zone, atol=1e-9)
+    np.testing.assert_allclose(card.node_importance[rows], [reference[n] for n in graph], atol=1e-9)
+    assert card.overall["damping"] == 0.85
+    assert card.overall["importance_unassigned"] == 0.0
+    assert score(network, labels, eigengap=False, importance=False).node_importance is None

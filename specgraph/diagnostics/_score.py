@@ -34,6 +34,7 @@ from ..eigen import DEFAULT_TOL, smallest_eigenpairs
 from ..exceptions import InputError, ParameterError
 from ..network import Network
 from ..operators import laplacian
+from ..walks import DEFAULT_DAMPING, stationary_distribution
 
 __all__ = [
     "EXAMPLES_SHOWN",
@@ -123,8 +124,9 @@ class Scorecard:
         One row per zone, ordered by zone number, with columns ``zone`` (the
         user's number), ``nodes``, ``size``, ``internal_weight``,
         ``boundary_weight``, ``boundary_links``, ``conductance``,
-        ``ncut_share``, ``modularity_share``, ``connected``, ``volume``, then
-        ``sources`` when sources were given, and ``flags``.
+        ``ncut_share``, ``modularity_share``, ``connected``, ``volume``,
+        ``importance`` (when computed), then ``sources`` when sources were
+        given, and ``flags``.
     overall : dict
         Whole-zoning figures, JSON-ready (every key always present; ``None``
         where not computed): ``zones``, ``assigned_nodes``,
@@ -135,18 +137,22 @@ class Scorecard:
         ``flagged_zones``, ``sources``, ``unassigned_sources``,
         ``zones_without_source``, ``zones_with_several_sources``,
         ``eigenvalue_k``, ``eigenvalue_next``, ``eigengap``,
-        ``relative_eigengap``.
+        ``relative_eigengap``, ``damping``, ``importance_unassigned``.
     unassigned : ndarray of str
         Ids of the unassigned nodes, in network order.
     eigenvalues : ndarray or None
         The ``k + 1`` smallest eigenvalues of the normalized Laplacian for
         ``k`` zones, when the eigengap was computed.
+    node_importance : ndarray or None
+        Each node's share of the stationary distribution of the random
+        surfer (sums to 1), when ``importance`` was asked for.
     """
 
     zones: pd.DataFrame
     overall: dict[str, Any]
     unassigned: np.ndarray
     eigenvalues: np.ndarray | None
+    node_importance: np.ndarray | None = None
 
 
 def labels_from_mapping(
@@ -359,6 +365,8 @@ def score(
     eigengap: bool = True,
     rng: Any = None,
     tol: float = DEFAULT_TOL,
+    importance: bool = True,
+    damping: float = DEFAULT_DAMPING,
 ) -> Scorecard:
     """Score a zoning: per-zone and overall figures, outliers and the eigengap.
 
@@ -376,6 +384,16 @@ def score(
         Compute the ``k + 1`` smallest eigenvalues of the normalized Laplacian
         (``k`` the number of zones) and the gap after the ``k``-th. This is the
         one costly step; everything else is a few passes over the links.
+    importance : bool, default=True
+        Compute each node's importance, its share of the stationary
+        distribution of the random surfer with teleportation
+        (:func:`specgraph.walks.stationary_distribution`, on the arcs of a
+        directed network), and each zone's sum of it (column ``importance``):
+        the long-run share of time a walker following the links spends in the
+        zone.
+    damping : float, default=0.85
+        Probability that the surfer follows a link rather than teleporting
+        (:data:`specgraph.walks.DEFAULT_DAMPING`).
 
     Returns
     -------
@@ -483,6 +501,17 @@ def score(
     )
     source_figures = _source_figures(network, sources, coded, k, zones)
     zones["flags"] = outlier_flags(zones)
+    node_importance = None
+    importance_figures: dict[str, Any] = {"damping": None, "importance_unassigned": None}
+    if importance:
+        walk = stationary_distribution(network, damping=damping)
+        node_importance = walk.values
+        per_zone = np.bincount(coded, weights=node_importance, minlength=k + 1)
+        zones.insert(list(zones.columns).index("volume") + 1, "importance", per_zone[:k])
+        importance_figures = {
+            "damping": walk.damping,
+            "importance_unassigned": float(per_zone[k]),
+        }
 
     # Crossing links: zone-zone ones appear in two zones' boundaries, zone-outside
     # ones in one zone's boundary and in the outside row.
@@ -509,12 +538,14 @@ def score(
         "eigengap": None,
         "relative_eigengap": None,
         **gap,
+        **importance_figures,
     }
     return Scorecard(
         zones=zones,
         overall=overall,
         unassigned=network.node_ids[~assigned].copy(),
         eigenvalues=eigenvalues,
+        node_importance=node_importance,
     )
 
 

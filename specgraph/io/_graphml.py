@@ -18,8 +18,8 @@ column per declared ``<key>`` holding the ``<data>`` values as exact text
 there is neither). The two tables then go through the same checks as CSV
 tables, and an error names the line of the element it concerns. Hyperedges,
 ports and nested graphs have no meaning for a network of links and are
-refused with their line; a directed graph is read as undirected and says so
-in the notes.
+refused with their line. Whether edges marked directed keep their direction
+is the reader's choice (:func:`specgraph.io.read_edges`, ``directed=``).
 """
 
 from __future__ import annotations
@@ -337,12 +337,6 @@ def read_graphml(path: Path) -> GraphMLTables:
         "edges": len(state.edges),
         "directed_edges": state.directed_edges,
     }
-    if state.directed_edges:
-        logger.warning(
-            "%s: %d edges are marked directed; they are read as undirected links",
-            path,
-            state.directed_edges,
-        )
     return GraphMLTables(
         edges,
         _ElementLines(state.edge_lines),

@@ -516,6 +516,14 @@ def read_edges(
     """
     if _checked_path(path).suffix.lower() in GRAPHML_SUFFIXES:
         edges, node_table = _load_graphml(path, nodes)
+        marked = edges.record["directed_edges"]
+        if marked and not directed:
+            logger.warning(
+                "%s: %d edges are marked directed; they are read as undirected links (read "
+                "with --directed, directed=True in Python, to keep their direction)",
+                path,
+                marked,
+            )
     else:
         edges = _load_table(path, delimiter=delimiter)
         node_table = None if nodes is None else _load_table(nodes, delimiter=delimiter)

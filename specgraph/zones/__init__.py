@@ -32,7 +32,14 @@ from ._constraints import (
 )
 from ._count import ZoneCount, choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
-from ._local import LocalZone, PushResult, acl_sweep_bound, local_zone, personalized_push
+from ._local import (
+    DEFAULT_LOCAL_ALPHA,
+    LocalZone,
+    PushResult,
+    acl_sweep_bound,
+    local_zone,
+    personalized_push,
+)
 from ._refine import Refinement, normalized_cut, refine_boundary
 from ._sweep import SweepCut, sweep_cut
 from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
@@ -51,6 +58,7 @@ __all__ = [
     "ASSIGNMENTS",
     "ASSIGN_METHODS",
     "BALANCE_ROUNDS",
+    "DEFAULT_LOCAL_ALPHA",
     "KMEANS_RESTARTS",
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",

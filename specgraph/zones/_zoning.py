@@ -419,9 +419,17 @@ def _assign_component(
     return np.asarray(labels, dtype=np.int64), eig, {"choice": method, "reason": reason}
 
 
-def _operator_choice(operator: str, merged_trees: bool) -> tuple[str, dict[str, Any]]:
+def _operator_choice(
+    operator: str, merged_trees: bool, directed: bool
+) -> tuple[str, dict[str, Any]]:
     if operator != "auto":
         return operator, {"choice": operator, "reason": "asked"}
+    if directed:
+        reason = (
+            "the directed Laplacian (Chung 2005): the network was read with link directions, "
+            "so zones are judged by the stationary flow of a random walk that follows them"
+        )
+        return "directed", {"choice": "directed", "reason": reason}
     reason = (
         "the normalized Laplacian: its small eigenvalues bound the conductance of the best "
         "zones (Cheeger); "
@@ -499,8 +507,10 @@ def find_zones(
     operator : {'auto', 'normalized', 'random_walk', 'combinatorial', 'regularized', \
 'bethe_hessian', 'directed'}, default='auto'
         Operator whose smallest eigenvectors embed the nodes
-        (:func:`specgraph.laplacian`). ``'auto'`` is ``'normalized'``, with
-        dangling trees attached when they are many (see ``trees``).
+        (:func:`specgraph.laplacian`). ``'auto'`` is ``'directed'`` for a
+        network read with directions (:attr:`Network.directed`), else
+        ``'normalized'``, with dangling trees attached when they are many
+        (see ``trees``).
         ``'directed'`` (networks read with ``directed=True`` only) is Chung's
         directed Laplacian of the random surfer on the arcs; the zone count
         ``'auto'`` then reads the eigengaps of that operator, and the
@@ -568,7 +578,7 @@ def find_zones(
     tree_pairs, decisions["trees"] = _tree_pairs(network, rules, trees, k_hint)
     merged = _merge(network, rules, np.concatenate([rules.keep_pairs, tree_pairs]))
     work = merged.network
-    kind, decisions["operator"] = _operator_choice(operator, tree_pairs.size > 0)
+    kind, decisions["operator"] = _operator_choice(operator, tree_pairs.size > 0, network.directed)
     solver = _SolveOptions(kind, eigen_method, tol, maxiter, generator, damping)
     k, decisions["zone_count"], known = _choose_count(work, spec, merged.rules, solver)
     per_component, notes = _zones_per_component(work, min(k, work.n_nodes))
