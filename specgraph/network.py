@@ -292,6 +292,25 @@ class Network:
         dst = index.get_indexer(table["target"].to_numpy(dtype=object))
         return _readonly(src.astype(np.int64)), _readonly(dst.astype(np.int64))
 
+    def __reduce__(self) -> tuple[Any, tuple[Any, ...]]:
+        """Pickle by the constructor's arguments (for joblib, Dask and multiprocessing).
+
+        ``notes`` is held read-only (a mapping proxy, which pickle refuses);
+        it travels as a plain dict and the constructor checks everything again.
+        """
+        return (
+            _rebuild_network,
+            (
+                self.adjacency,
+                self.node_ids,
+                self.coordinates,
+                self.sizes,
+                self.links,
+                dict(self.notes),
+                self.arcs,
+            ),
+        )
+
     def __repr__(self) -> str:
         return (
             f"Network(n_nodes={self.n_nodes}, n_links={self.n_links}, "
@@ -557,3 +576,24 @@ def _adjacency_from_links(
         upper.sum_duplicates()
         return upper, counts
     return (upper + upper.T).tocsr(), counts
+
+
+def _rebuild_network(
+    adjacency: Any,
+    node_ids: Any,
+    coordinates: Any,
+    sizes: Any,
+    links: Any,
+    notes: dict[str, Any],
+    arcs: Any,
+) -> Network:
+    """Unpickle a :class:`Network` (see :meth:`Network.__reduce__`)."""
+    return Network(
+        adjacency,
+        node_ids,
+        coordinates=coordinates,
+        sizes=sizes,
+        links=links,
+        notes=notes,
+        arcs=arcs,
+    )

@@ -240,3 +240,19 @@ def test_constructor_refuses_bad_matrices() -> None:
         Network(sp.csr_array(np.eye(2)), np.array(["a", "b"], dtype=object))
     with pytest.raises(InputError):
         Network(sp.csr_array(np.array([[0.0, -1.0], [-1.0, 0.0]])), np.array(["a", "b"]))
+
+
+def test_pickle_round_trip_keeps_everything() -> None:
+    # pickle is how joblib, Dask and multiprocessing ship networks to workers.
+    import pickle
+
+    net = Network.from_links(
+        ["a", "b", "c"], ["b", "c", "a"], [1.0, 2.0, 3.0], directed=True, sizes=np.ones(3)
+    )
+    back = pickle.loads(pickle.dumps(net))
+    assert (back.adjacency != net.adjacency).nnz == 0
+    assert (back.arcs != net.arcs).nnz == 0
+    assert back.node_ids.tolist() == net.node_ids.tolist()
+    assert dict(back.notes) == dict(net.notes)
+    assert back.link_table.equals(net.link_table)
+    assert not back.adjacency.data.flags.writeable  # still frozen
