@@ -719,7 +719,6 @@ def _zone_and_write(
         if path:
             role = option.replace("_", " ")
             inputs.append({"role": role, "path": path, "checksum": file_checksum(path)})
-    step("zoning")
     zoning = find_zones(
         network,
         args.zones,
@@ -731,6 +730,7 @@ def _zone_and_write(
         tol=args.tol,
         rng=args.seed,
         damping=args.damping,
+        progress=step,
     )
     step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
@@ -773,7 +773,7 @@ def _zone_and_write(
 
 
 #: Stages of a zoning run, as the progress bar counts them.
-ZONING_STAGES = ["reading", "reading rules", "zoning", "writing"]
+ZONING_STAGES = ["reading", "reading rules", "solving", "constraints", "refining", "writing"]
 
 
 def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:

@@ -77,3 +77,14 @@ def test_cli_bars_only_on_a_terminal(
         main(["zones", str(edges), "--zones", "2", "--out", str(tmp_path / "o3"), "--quiet"]) == 0
     )
     assert capsys.readouterr().err == ""
+
+
+def test_find_zones_reports_its_stages_in_order() -> None:
+    from specgraph import find_zones
+
+    seen: list[str] = []
+    find_zones(gallery.barbell(5), 2, rng=0, progress=seen.append)
+    assert seen == ["solving", "constraints", "refining"]
+    seen.clear()
+    find_zones(gallery.barbell(5), 2, rng=0, refine=False, progress=seen.append)
+    assert seen == ["solving", "constraints"]

@@ -23,6 +23,7 @@ Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 from __future__ import annotations
 
 import logging
+from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
 
@@ -474,6 +475,7 @@ def find_zones(
     maxiter: int | None = None,
     rng: Any = None,
     damping: float = DEFAULT_DAMPING,
+    progress: Callable[[str], None] | None = None,
 ) -> Zoning:
     """Split a network into well-connected zones that keep the given constraints.
 
@@ -541,6 +543,10 @@ def find_zones(
     damping : float, default=0.85
         Damping of the random surfer of ``operator='directed'``, in (0, 1)
         (:data:`specgraph.walks.DEFAULT_DAMPING`); checked, unused otherwise.
+    progress : callable, optional
+        Called with the name of each stage as it starts (``'solving'``,
+        ``'constraints'``, ``'refining'``), for progress displays; the
+        command line draws its stage bar with it.
 
     Notes
     -----
@@ -571,8 +577,10 @@ def find_zones(
             "keeps the arcs); got an undirected network."
         )
     generator = check_rng(rng)
+    stage = progress if progress is not None else _no_progress
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
     decisions: dict[str, dict[str, Any]] = {}
+    stage("solving")
 
     k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
     tree_pairs, decisions["trees"] = _tree_pairs(network, rules, trees, k_hint)
@@ -602,6 +610,7 @@ def find_zones(
     if kind == "directed":
         decisions["directed"] = _directed_record(damping, solver.records)
 
+    stage("constraints")
     enforced = enforce_constraints(work.adjacency, raw, merged.rules, rng=generator)
     labels_w = enforced.labels
     decisions["constraints"] = {
@@ -610,6 +619,7 @@ def find_zones(
         "moved": enforced.moved,
     }
     if refine:
+        stage("refining")
         assert merged.rules.pinned is not None
         movable = np.asarray(merged.rules.pinned < 0, dtype=bool)
         movable[merged.rules.sources] = False
@@ -656,6 +666,10 @@ def find_zones(
         decisions=decisions,
         warnings=tuple(notes),
     )
+
+
+def _no_progress(stage: str) -> None:
+    """Stand-in for ``progress=None``: stages pass silently."""
 
 
 def _directed_record(damping: float, records: list[dict[str, Any]]) -> dict[str, Any]:
