@@ -494,7 +494,7 @@ def build_parser() -> argparse.ArgumentParser:
         default=DEFAULT_SPREAD,
         metavar="S",
         help="standard deviation of the log-normal weight noise (default "
-        f"{DEFAULT_SPREAD}: about {DEFAULT_SPREAD:.0%} per link)",
+        f"{DEFAULT_SPREAD}: about {DEFAULT_SPREAD * 100:.0f}%% per link)",
     )
     _add_solving(stable, auto=True)
     _add_report(stable)

@@ -6,6 +6,7 @@ that starts ``python -m specgraph`` in a child process.
 
 from __future__ import annotations
 
+import argparse
 import hashlib
 import json
 import logging
@@ -19,7 +20,7 @@ import pandas as pd
 import pytest
 
 import specgraph
-from specgraph.cli import main
+from specgraph.cli import build_parser, main
 from specgraph.demo import DEMO_ZONES, demo_files
 
 #: First columns of each output file, fixed by the user-facing contract.
@@ -567,3 +568,15 @@ def test_main_leaves_the_library_logger_as_found(tmp_path: Path) -> None:
     before = (logger.handlers[:], logger.level, logger.propagate)
     main(["zones", str(two_cliques_csv(tmp_path)), "--zones", "2", "--out", str(tmp_path / "o")])
     assert (logger.handlers[:], logger.level, logger.propagate) == before
+
+
+def test_every_command_help_renders() -> None:
+    # argparse expands % in help texts; a stray one makes --help crash (exit 1), which
+    # only shows when the help is actually formatted.
+    parser = build_parser()
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    assert parser.format_help()
+    for name, sub in commands.choices.items():
+        text = sub.format_help()
+        assert name in text
+        assert "Decision support only" in text
