@@ -5,7 +5,7 @@ What already exists and is not repeated here:
 * :meth:`specgraph.Network.from_networkx` builds a network from a graph with
   a chosen weight attribute (a missing attribute counts as 1), sizes and
   positions;
-* :func:`specgraph.io.network_from_frames` (and :meth:`Network.from_pandas`)
+* :func:`specgraph.io.network_from_frames`
   builds one from pandas edge and node frames;
 * :meth:`specgraph.Zoning.to_frame`, ``Zoning.zones`` and ``Zoning.boundary``
   are the node, zone and boundary tables as frames.

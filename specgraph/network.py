@@ -516,16 +516,6 @@ class Network:
             notes=notes,
         )
 
-    @classmethod
-    def from_pandas(cls, edges: pd.DataFrame, **options: Any) -> Network:
-        """Build a network from an edge frame (and optional node frame).
-
-        Takes the options of :func:`specgraph.io.network_from_frames`.
-        """
-        from .io import network_from_frames
-
-        return network_from_frames(edges, **options)
-
 
 def _index_links(
     src: np.ndarray, dst: np.ndarray, node_ids: Sequence[Any] | None

@@ -31,7 +31,8 @@ import numpy as np
 import pandas as pd
 
 from .._validation import check_choice, check_int, check_rng
-from ..diagnostics import boundary_links, eigengaps, overall_scores, zone_table
+from ..diagnostics._quality import boundary_links, overall_scores, zone_table
+from ..diagnostics._spectral import eigengaps
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult, smallest_eigenpairs
 from ..exceptions import ParameterError
 from ..network import Network
