@@ -1,9 +1,11 @@
-"""The :class:`Network`: an immutable, undirected, weighted graph ready for spectral work.
+"""The :class:`Network`: an immutable weighted graph ready for spectral work.
 
 Every reader ends here and every later stage starts here. A network holds a
 symmetric CSR adjacency (float64 affinities, no self-loops, no stored zeros), the
-node ids as strings in row order, optional node coordinates and node sizes, and a
-per-input-link table so that results can be joined back to the user's own rows.
+node ids as strings in row order, optional node coordinates and node sizes, a
+per-input-link table so that results can be joined back to the user's own rows,
+and, for a network read with directions, its arcs (``adjacency`` is then their
+symmetrized sum, so every undirected stage works on it unchanged).
 
 Input policies (documented in ``docs/input-policy.md`` and counted in
 :attr:`Network.notes`, so that nothing is dropped silently):
