@@ -135,52 +135,88 @@ class Hierarchy:
         kern.csr_matmat(m.indptr, m.indices, m.data, x, out)
 
     def precondition(self, index: int, rhs: np.ndarray, steps: int, out: np.ndarray) -> None:
-        """``out`` = approximately ``M_index^+ rhs`` (single-precision flexible CG)."""
-        out[...] = self.solve(index, rhs, steps)  # solve copies rhs into single precision
+        """``out`` = approximately ``M_index^+ rhs`` (single-precision flexible CG).
+
+        ``out`` may be ``rhs`` itself: the right-hand side is copied into a
+        single-precision workspace first, and the iterate accumulates in ``out``.
+        """
+        self.solve(index, rhs, steps, out)
         kern.threads_for(self.levels[index].size)
 
     # ---------------------------------------------------------------- cycle
-    def solve(self, index: int, rhs: np.ndarray, steps: int) -> np.ndarray:
+    def solve(
+        self, index: int, rhs: np.ndarray, steps: int, out: np.ndarray | None = None
+    ) -> np.ndarray:
         """Approximate ``M_index^+ rhs`` by ``steps`` flexible CG steps (block-diagonal).
 
         Each column has its own step lengths; the preconditioner is one cycle
         from this level down. On the coarsest level the pseudo-inverse is exact.
-        The result lives in a workspace: use it before the next call.
+        The iterate accumulates in ``out`` (any float type; it may be ``rhs``);
+        without ``out`` it lives in a workspace: use it before the next call.
+        The level keeps five single-precision blocks: the residual, the
+        direction and its product, the previous direction and its product.
+        The cycle smooths in the block of the stale product (the product of
+        the direction before the previous one, overwritten later in the step).
         """
+        width = rhs.shape[1]
         if index == len(self.levels) - 1:
-            return (self.coarse_pinv @ rhs).astype(CYCLE_DTYPE)
+            result = self.coarse_pinv @ rhs
+            if out is None:
+                return result.astype(CYCLE_DTYPE)
+            out[...] = result
+            return out
         m = self.cycle_matrices[index]
-        ws = self._workspace("solve", index, rhs.shape[1], ("x", "r", "d", "dp", "md", "mdp"))
-        ws.x[...] = 0.0
-        ws.r[...] = rhs
+        ws = self._workspace("solve", index, width, ("r", "d", "dp", "md", "mdp"))
+        ws.r[...] = rhs  # before ``out`` is cleared: ``out`` may be ``rhs``
+        if out is None:
+            out = self._workspace("solution", index, width, ("x",)).x
+        out[...] = 0.0
         d, dp, md, mdp = ws.d, ws.dp, ws.md, ws.mdp
         for step in range(steps):
-            d[...] = self.cycle(index, ws.r)
+            self.cycle(index, ws.r, d, scratch=md)
             kern.threads_for(m.shape[0])
             if step:
                 beta = _column_dot(d, mdp) / _column_dot(dp, mdp)
                 kern.subtract_scaled(d, dp, beta.astype(CYCLE_DTYPE))
             kern.csr_matmat(m.indptr, m.indices, m.data, d, md)
             alpha = _column_dot(d, ws.r) / _column_dot(d, md)
-            kern.fcg_update(ws.x, ws.r, d, md, alpha.astype(CYCLE_DTYPE))
+            kern.fcg_update(out, ws.r, d, md, alpha.astype(CYCLE_DTYPE))
             d, dp, md, mdp = dp, d, mdp, md
-        return ws.x
+        return out
 
-    def cycle(self, index: int, rhs: np.ndarray) -> np.ndarray:
-        """One K-cycle for ``M_index x = rhs`` from a zero guess (result in a workspace)."""
+    def cycle(
+        self,
+        index: int,
+        rhs: np.ndarray,
+        out: np.ndarray | None = None,
+        *,
+        scratch: np.ndarray | None = None,
+    ) -> np.ndarray:
+        """One K-cycle for ``M_index x = rhs`` from a zero guess, written into ``out``.
+
+        The Jacobi sweeps alternate between ``out`` and a ``scratch`` block
+        (a workspace of the level if not given); the first buffer is chosen so
+        that the last sweep lands in ``out``. Without ``out`` the result lives
+        in a workspace.
+        """
         lv = self.levels[index]
         m = self.cycle_matrices[index]
-        ws = self._workspace("cycle", index, rhs.shape[1], ("x", "buf"))
-        x, buf = ws.x, ws.buf
+        width = rhs.shape[1]
+        if scratch is None:
+            scratch = self._workspace("cycle", index, width, ("x",)).x
+        if out is None:
+            out = self._workspace("cycle_out", index, width, ("x",)).x
+        swaps = 2 * SMOOTHING_SWEEPS - 1  # sweeps that write the other buffer
+        x, buf = (scratch, out) if swaps % 2 else (out, scratch)
         kern.threads_for(lv.size)
         kern.scale_rows(rhs, lv.smoother, x)  # first Jacobi sweep from zero
         for _ in range(SMOOTHING_SWEEPS - 1):
             kern.jacobi_sweep(m.indptr, m.indices, m.data, lv.smoother, rhs, x, buf)
             x, buf = buf, x
         kern.residual_block(m.indptr, m.indices, m.data, rhs, x, buf)
-        coarse_rhs = self._workspace("restricted", index + 1, rhs.shape[1], ("b",)).b
-        kern.restrict_sum(lv.members_ptr, lv.members, lv.weights, buf, coarse_rhs)
-        coarse = self.solve(index + 1, coarse_rhs, KCYCLE_STEPS)
+        coarse_ws = self._workspace("coarse", index + 1, width, ("b", "x"))
+        kern.restrict_sum(lv.members_ptr, lv.members, lv.weights, buf, coarse_ws.b)
+        coarse = self.solve(index + 1, coarse_ws.b, KCYCLE_STEPS, coarse_ws.x)
         kern.threads_for(lv.size)
         kern.prolong_add(lv.aggregate, lv.weights, coarse, x)
         for _ in range(SMOOTHING_SWEEPS):
@@ -226,23 +262,35 @@ def _coarsen(matrix: sp.csr_array, null: np.ndarray) -> tuple[Level, sp.csr_arra
     coarse.sort_indices()
     members = np.argsort(aggregate, kind="stable")
     members_ptr = np.concatenate([[0], np.cumsum(np.bincount(aggregate, minlength=m))])
+    index = _index_dtype(n)
     level = Level(
         matrix=matrix,
         null=null.reshape(-1, 1),
         smoother=_smoother(matrix),
-        aggregate=aggregate,
+        aggregate=aggregate.astype(index),
         weights=weights,
-        members_ptr=members_ptr,
-        members=members,
+        members_ptr=members_ptr.astype(index),
+        members=members.astype(index),
     )
     unit = coarse_null / np.linalg.norm(coarse_null)
     return level, coarse, unit
+
+
+def _index_dtype(n: int) -> type[np.signedinteger]:
+    """32-bit row indices where they fit (half the memory of the transfer maps)."""
+    return np.int32 if n < np.iinfo(np.int32).max else np.int64
 
 
 def _smoother(matrix: sp.csr_array) -> np.ndarray:
     diagonal = matrix.diagonal()
     damped = np.where(diagonal > 0, JACOBI_DAMPING / np.where(diagonal > 0, diagonal, 1.0), 0.0)
     return damped.astype(CYCLE_DTYPE)
+
+
+def _single(matrix: sp.csr_array) -> sp.csr_array:
+    """``matrix`` in :data:`CYCLE_DTYPE`, sharing its index arrays (only the values are copied)."""
+    data = matrix.data.astype(CYCLE_DTYPE)
+    return sp.csr_array((data, matrix.indices, matrix.indptr), shape=matrix.shape, copy=False)
 
 
 def build_hierarchy(matrix: sp.csr_array, null: np.ndarray, *, width: int = 0) -> Hierarchy:
@@ -268,5 +316,5 @@ def build_hierarchy(matrix: sp.csr_array, null: np.ndarray, *, width: int = 0) -
     values, vectors = la.eigh((dense + dense.T) / 2.0)
     keep = values > NULL_RELATIVE * max(values[-1], 0.0)
     pinv = (vectors[:, keep] / values[keep]) @ vectors[:, keep].T
-    singles = tuple(sp.csr_array(lv.matrix, dtype=CYCLE_DTYPE) for lv in levels)
+    singles = tuple(_single(lv.matrix) for lv in levels)
     return Hierarchy(tuple(levels), values, vectors, pinv, singles)

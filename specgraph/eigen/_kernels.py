@@ -24,10 +24,12 @@ __all__ = [
     "column_dots",
     "combine",
     "csr_matmat",
+    "csr_projections",
     "fcg_update",
     "jacobi_sweep",
     "prolong_add",
     "residual_block",
+    "residual_projections",
     "restrict_sum",
     "scale_rows",
     "subtract_scaled",
@@ -204,3 +206,81 @@ def column_dots(a, b_, chunks):  # pragma: no cover - compiled
         for c in range(b):
             out[c] += partial[k, c]
     return out
+
+
+@njit(inline="always")
+def _accumulate_outer(basis, i, acc, into):  # pragma: no cover - compiled
+    """``into += outer(basis[i], acc)``: one row's share of ``basis^T Y``."""
+    for a in range(basis.shape[1]):
+        s = basis[i, a]
+        for c in range(acc.shape[0]):
+            into[a, c] += s * acc[c]
+
+
+@njit(cache=True)
+def _sum_chunks(partial):  # pragma: no cover - compiled
+    """Sum of ``partial[k]`` over ``k`` in order (a fixed summation order)."""
+    out = np.zeros(partial.shape[1:])
+    for k in range(partial.shape[0]):
+        out += partial[k]
+    return out
+
+
+@njit(parallel=True, cache=True)
+def csr_projections(indptr, indices, data, v, x, w, p, chunks):  # pragma: no cover
+    """``x^T (A v)``, ``w^T (A v)`` and ``p^T (A v)`` without storing ``A v``.
+
+    Each row of ``A v`` is formed, projected on the matching rows of the
+    three bases and dropped, so a Rayleigh-Ritz step needs no block for the
+    product. Rows are summed in ``chunks`` fixed ranges, added in order.
+    """
+    n, b = v.shape
+    px = np.zeros((chunks, x.shape[1], b))
+    pw = np.zeros((chunks, w.shape[1], b))
+    pp = np.zeros((chunks, p.shape[1], b))
+    step = (n + chunks - 1) // chunks
+    for k in prange(chunks):
+        acc = np.empty(b)
+        lx = np.zeros((x.shape[1], b))
+        lw = np.zeros((w.shape[1], b))
+        lp = np.zeros((p.shape[1], b))
+        for i in range(k * step, min(n, (k + 1) * step)):
+            _row_product(indptr, indices, data, v, i, acc)
+            _accumulate_outer(x, i, acc, lx)
+            _accumulate_outer(w, i, acc, lw)
+            _accumulate_outer(p, i, acc, lp)
+        px[k] = lx
+        pw[k] = lw
+        pp[k] = lp
+    return _sum_chunks(px), _sum_chunks(pw), _sum_chunks(pp)
+
+
+@njit(parallel=True, cache=True)
+def residual_projections(indptr, indices, data, x, values, p, out, chunks):  # pragma: no cover
+    """``out = A x - x diag(values)``; return ``x^T A x``, ``p^T A x``, squared norms of ``out``.
+
+    One pass over the rows: ``A x`` is never stored. Summed in fixed chunks
+    as :func:`csr_projections`.
+    """
+    n, b = x.shape
+    px = np.zeros((chunks, b, b))
+    pp = np.zeros((chunks, p.shape[1], b))
+    pn = np.zeros((chunks, 1, b))
+    step = (n + chunks - 1) // chunks
+    for k in prange(chunks):
+        acc = np.empty(b)
+        lx = np.zeros((b, b))
+        lp = np.zeros((p.shape[1], b))
+        ln = np.zeros((1, b))
+        for i in range(k * step, min(n, (k + 1) * step)):
+            _row_product(indptr, indices, data, x, i, acc)
+            _accumulate_outer(x, i, acc, lx)
+            _accumulate_outer(p, i, acc, lp)
+            for c in range(b):
+                r = acc[c] - x[i, c] * values[c]
+                out[i, c] = r
+                ln[0, c] += r * r
+        px[k] = lx
+        pp[k] = lp
+        pn[k] = ln
+    return _sum_chunks(px), _sum_chunks(pp), _sum_chunks(pn)[0]

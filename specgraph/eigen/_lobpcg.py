@@ -9,10 +9,24 @@ and Wu, SIAM J. Sci. Comput. 23(6), 2002, doi:10.1137/S1064827500370883) on
 its Gram matrix, which drops directions that have become dependent instead of
 failing as a Cholesky factorization would.
 
-Large blocks are allocated once and reused: on this workload a fresh array of
-a few hundred megabytes costs more in page faults than the arithmetic done on
-it. The new block and search directions are formed by one fused pass over the
-rows (:func:`._kernels.combine`) instead of a chain of temporaries.
+Memory. Only the three blocks ``X``, ``W`` and ``P`` are stored; the
+products ``AX``, ``AW`` and ``AP`` of the textbook method are not:
+
+* ``A X`` is formed row by row, turned into the residual block (written over
+  ``W``) and projected on ``X`` and ``P`` in the same pass
+  (:func:`._kernels.residual_projections`);
+* ``A W`` is formed row by row and projected on ``X``, ``W`` and ``P``
+  (:func:`._kernels.csr_projections`);
+* ``P^T A P`` is carried as a small matrix: the new ``P`` is ``W k_w + P k_p``,
+  so its projection is ``c_p^T H c_p`` with ``H`` the projected matrix of the
+  Rayleigh-Ritz step and ``c_p = (0, k_w, k_p)`` (the same algebra as the
+  implicit update of ``AP`` in Knyazev's method, on ``b x b`` matrices instead
+  of ``n x b`` blocks).
+
+That is two products with a block per iteration instead of three, and three
+stored blocks instead of six. Blocks are updated in place by one fused pass
+over the rows (:func:`._kernels.combine`: row ``i`` of the output depends on
+row ``i`` of the inputs only).
 
 The known null vector is projected out of every new direction, so the
 iteration sees only the nontrivial part of the spectrum.
@@ -22,13 +36,15 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass
+from typing import Protocol
 
 import numpy as np
 import scipy.linalg as la
+import scipy.sparse as sp
 
 from . import _kernels as kern
 
-__all__ = ["LobpcgOutcome", "lobpcg"]
+__all__ = ["BlockOperator", "CsrBlocks", "LobpcgOutcome", "ProductBlocks", "lobpcg"]
 
 #: Basis directions whose normalized Gram eigenvalue falls below this are
 #: dropped as linearly dependent (SVQB's rule; near eps of float64 the
@@ -40,6 +56,76 @@ DOT_CHUNKS = 64
 
 Apply = Callable[[np.ndarray, np.ndarray], object]  # f(x, out) writes into out
 
+Projections = tuple[np.ndarray, np.ndarray, np.ndarray]
+
+
+class BlockOperator(Protocol):
+    """What LOBPCG needs of the operator ``A``: two fused products with a block."""
+
+    def residuals(
+        self, x: np.ndarray, values: np.ndarray, p: np.ndarray, out: np.ndarray
+    ) -> Projections:
+        """``out = A x - x diag(values)``; return ``x^T A x``, ``p^T A x`` and ``||out_c||^2``."""
+        ...
+
+    def projections(
+        self, v: np.ndarray, x: np.ndarray, w: np.ndarray, p: np.ndarray
+    ) -> Projections:
+        """``x^T A v``, ``w^T A v`` and ``p^T A v``."""
+        ...
+
+
+class CsrBlocks:
+    """A sparse matrix (CSR, float64) as a :class:`BlockOperator`; ``A v`` is never stored."""
+
+    def __init__(self, matrix: sp.csr_array) -> None:
+        self.matrix = matrix
+
+    def residuals(
+        self, x: np.ndarray, values: np.ndarray, p: np.ndarray, out: np.ndarray
+    ) -> Projections:
+        m = self.matrix
+        kern.threads_for(m.shape[0])
+        result: Projections = kern.residual_projections(
+            m.indptr, m.indices, m.data, x, values, p, out, DOT_CHUNKS
+        )
+        return result
+
+    def projections(
+        self, v: np.ndarray, x: np.ndarray, w: np.ndarray, p: np.ndarray
+    ) -> Projections:
+        m = self.matrix
+        kern.threads_for(m.shape[0])
+        result: Projections = kern.csr_projections(
+            m.indptr, m.indices, m.data, v, x, w, p, DOT_CHUNKS
+        )
+        return result
+
+
+class ProductBlocks:
+    """Any operator given by ``apply(x, out)`` as a :class:`BlockOperator` (stores ``A v``)."""
+
+    def __init__(self, apply: Apply) -> None:
+        self.apply = apply
+
+    def _product(self, v: np.ndarray) -> np.ndarray:
+        out = np.empty_like(v)
+        self.apply(v, out)
+        return out
+
+    def residuals(
+        self, x: np.ndarray, values: np.ndarray, p: np.ndarray, out: np.ndarray
+    ) -> Projections:
+        ax = self._product(x)
+        np.subtract(ax, x * values, out=out)
+        return x.T @ ax, p.T @ ax, np.einsum("ij,ij->j", out, out)
+
+    def projections(
+        self, v: np.ndarray, x: np.ndarray, w: np.ndarray, p: np.ndarray
+    ) -> Projections:
+        av = self._product(v)
+        return x.T @ av, w.T @ av, p.T @ av
+
 
 @dataclass(frozen=True, eq=False)
 class LobpcgOutcome:
@@ -50,33 +136,6 @@ class LobpcgOutcome:
     residuals: np.ndarray
     iterations: int
     matvecs: int
-
-
-class _Blocks:
-    """The iteration's blocks, each ``(n, width)`` in row-major order.
-
-    ``ax`` and ``ap`` are recomputed by a product with the operator rather
-    than updated by linear combination: a sparse product with a block costs
-    less than combining three dense blocks, and it keeps them exact.
-    """
-
-    def __init__(self, n: int, width: int) -> None:
-        shape = (n, width)
-        self.x, self.ax, self.w, self.aw = (np.empty(shape) for _ in range(4))
-        self.p, self.ap = np.zeros(shape), np.zeros(shape)
-        self.empty = np.empty((n, 0))  # a block with no columns, for unused terms
-
-    def update(self, kx: np.ndarray, kw: np.ndarray, kp: np.ndarray, have_p: bool) -> None:
-        """``P <- W kw + P kp`` and ``X <- X kx + P``, written over blocks no longer needed.
-
-        After the Rayleigh-Ritz step ``AW`` is spent, so the new directions go
-        there; the old ``P`` is then spent, so the new block goes there; the
-        roles of the buffers rotate instead of two more blocks being kept.
-        """
-        none, no_rows = self.empty, kp[:0]
-        kern.combine(self.w, kw, self.p if have_p else none, kp, none, no_rows, self.aw)
-        kern.combine(self.x, kx, self.aw, np.eye(kx.shape[1]), none, no_rows, self.p)
-        self.x, self.p, self.aw = self.p, self.aw, self.x
 
 
 def _orthogonalize(
@@ -96,11 +155,13 @@ def _orthogonalize(
         kern.combine(block, identity, first, c1, second, c2, block)
 
 
-def _gram(blocks: list[np.ndarray], applied: list[np.ndarray]) -> tuple[np.ndarray, np.ndarray]:
-    """``B^T B`` and ``B^T A B`` for the basis ``B = [blocks]`` without forming ``B``."""
-    gram = np.block([[u.T @ v for v in blocks] for u in blocks])
-    projected = np.block([[u.T @ v for v in applied] for u in blocks])
-    return (gram + gram.T) / 2.0, (projected + projected.T) / 2.0
+def _symmetric(matrix: np.ndarray) -> np.ndarray:
+    return (matrix + matrix.T) / 2.0
+
+
+def _gram(blocks: list[np.ndarray]) -> np.ndarray:
+    """``B^T B`` for the basis ``B = [blocks]`` without forming ``B``."""
+    return _symmetric(np.block([[u.T @ v for v in blocks] for u in blocks]))
 
 
 def _ritz(gram: np.ndarray, projected: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
@@ -114,24 +175,18 @@ def _ritz(gram: np.ndarray, projected: np.ndarray, width: int) -> tuple[np.ndarr
     return ritz[:width], transform @ coefficients[:, :width]
 
 
-def _start(apply: Apply, start: np.ndarray, null: np.ndarray, st: _Blocks) -> np.ndarray:
-    """Rayleigh-Ritz on the start block: the first ``X``, ``AX`` and Ritz values."""
-    width = start.shape[1]
-    st.w[...] = start
-    _orthogonalize(st.w, null, st.empty)
-    apply(st.w, st.aw)
-    values, coefficients = _ritz(*_gram([st.w], [st.aw]), width)
-    kern.combine(
-        st.w, coefficients, st.p[:, :0], coefficients[:0], st.p[:, :0], coefficients[:0], st.x
-    )
-    kern.combine(
-        st.aw, coefficients, st.p[:, :0], coefficients[:0], st.p[:, :0], coefficients[:0], st.ax
-    )
+def _start(operator: BlockOperator, x: np.ndarray, null: np.ndarray) -> np.ndarray:
+    """Rayleigh-Ritz on the start block, in place: the first ``X`` and its Ritz values."""
+    empty = x[:, :0]
+    _orthogonalize(x, null, empty)
+    xax, _, _ = operator.projections(x, x, empty, empty)
+    values, coefficients = _ritz(_gram([x]), _symmetric(xax), x.shape[1])
+    kern.combine(x, coefficients, empty, coefficients[:0], empty, coefficients[:0], x)
     return values
 
 
 def lobpcg(
-    apply: Apply,
+    operator: BlockOperator,
     precondition: Apply,
     start: np.ndarray,
     null: np.ndarray,
@@ -140,15 +195,19 @@ def lobpcg(
     tol: float,
     maxiter: int,
 ) -> LobpcgOutcome:
-    """Smallest eigenpairs of ``apply`` in the complement of ``null``.
+    """Smallest eigenpairs of ``operator`` in the complement of ``null``.
 
     Parameters
     ----------
-    apply, precondition : callable
-        ``f(x, out)`` writes the operator's (preconditioner's) product with the
-        row-major block ``x`` into ``out``.
+    operator : BlockOperator
+        The symmetric operator (:class:`CsrBlocks` or :class:`ProductBlocks`).
+    precondition : callable
+        ``f(r, out)`` writes the preconditioner's product with the row-major
+        block ``r`` into ``out`` (called with ``out is r``).
     start : ndarray of shape (n, b)
         Initial block; ``b >= count`` (the extra columns are guard vectors).
+        A C-ordered float64 array is used as the iteration's ``X`` block and
+        overwritten (it becomes ``vectors`` of the outcome); pass a copy to keep it.
     null : ndarray of shape (n, 1)
         Orthonormal basis of the known null space.
     count : int
@@ -157,31 +216,50 @@ def lobpcg(
         Absolute residual norm each of the first ``count`` columns must reach.
     maxiter : int
         Iteration cap.
+
+    References
+    ----------
+    A. V. Knyazev, "Toward the optimal preconditioned eigensolver: locally
+    optimal block preconditioned conjugate gradient method", SIAM J. Sci.
+    Comput. 23(2), 2001.
     """
-    n, width = start.shape
+    x = np.require(start, dtype=np.float64, requirements=["C", "W"])
+    n, width = x.shape
     kern.threads_for(n)
-    st = _Blocks(n, width)
-    values = _start(apply, start, null, st)
+    w = np.empty((n, width))
+    p = np.zeros((n, width))
+    no_p, empty = p[:, :0], x[:, :0]
+    values = _start(operator, x, null)
     matvecs, iterations, have_p = width, 0, False
+    pap = np.zeros((0, 0))
+    identity = np.eye(width)
     while True:
-        np.multiply(st.x, values, out=st.w)
-        np.subtract(st.ax, st.w, out=st.w)  # residuals
-        norms = np.sqrt(kern.column_dots(st.w, st.w, DOT_CHUNKS))
-        if np.all(norms[:count] <= tol) or iterations >= maxiter:
-            return LobpcgOutcome(values, st.x.copy(), norms, iterations, matvecs)
-        precondition(st.w, st.w)
-        kern.threads_for(n)
-        _orthogonalize(st.w, null, st.x)
-        apply(st.w, st.aw)
+        current_p = p if have_p else no_p
+        xax, pax, squares = operator.residuals(x, values, current_p, w)
         matvecs += width
-        blocks = [st.x, st.w] + ([st.p] if have_p else [])
-        applied = [st.ax, st.aw] + ([st.ap] if have_p else [])
-        values, coefficients = _ritz(*_gram(blocks, applied), width)
+        norms = np.sqrt(squares)
+        if np.all(norms[:count] <= tol) or iterations >= maxiter:
+            return LobpcgOutcome(values, x, norms, iterations, matvecs)
+        precondition(w, w)
+        kern.threads_for(n)
+        _orthogonalize(w, null, x)
+        xaw, waw, paw = operator.projections(w, x, w, current_p)
+        matvecs += width
+        blocks = [x, w, current_p] if have_p else [x, w]
+        projected = np.block(
+            [[xax, xaw, pax.T], [xaw.T, waw, paw.T], [pax, paw, pap]]
+            if have_p
+            else [[xax, xaw], [xaw.T, waw]]
+        )
+        projected = _symmetric(projected)
+        values, coefficients = _ritz(_gram(blocks), projected, width)
         kx, kw = coefficients[:width], coefficients[width : 2 * width]
-        kp = coefficients[2 * width :] if have_p else coefficients[:0]
-        st.update(kx, kw, kp, have_p)
-        apply(st.x, st.ax)
-        apply(st.p, st.ap)
-        matvecs += 2 * width
+        kp = coefficients[2 * width :]
+        # P <- W kw + P kp and X <- X kx + P, both in place, row by row.
+        kern.combine(w, kw, current_p, kp, empty, kp[:0], p)
+        kern.combine(x, kx, p, identity, empty, kx[:0], x)
+        cp = coefficients.copy()
+        cp[:width] = 0.0
+        pap = _symmetric(cp.T @ projected @ cp)
         have_p = True
         iterations += 1
