@@ -266,10 +266,26 @@ def _solve_components(
             values.append(found.values - shift)
             columns.append((rows, found.vectors[: rows.size]))
     all_values = np.concatenate(values)
-    blocks = [basis] + [_embed(rows, vecs, n) for rows, vecs in columns]
-    all_vectors = np.hstack(blocks) if blocks else np.zeros((n, 0))
     order = np.argsort(all_values, kind="stable")[:k]
-    return all_values[order], all_vectors[:, order], used, matvecs, iterations
+    # Assembled straight into the output, in the final order: at a million nodes every
+    # intermediate n-by-k copy would cost as much as the sparse matrix itself.
+    position = np.full(all_values.size, -1, dtype=np.int64)
+    position[order] = np.arange(order.size)
+    out = np.zeros((n, order.size))
+    taken = position[:c]
+    out[:, taken[taken >= 0]] = basis[:, taken >= 0]
+    start = c
+    for rows, vecs in columns:
+        width = vecs.shape[1]
+        where = position[start : start + width]
+        keep = where >= 0
+        if rows.size == n:
+            out[:, where[keep]] = vecs[:, keep]
+        else:
+            out[np.ix_(rows, where[keep])] = vecs[:, keep]
+        start += width
+    columns.clear()
+    return all_values[order], out, used, matvecs, iterations
 
 
 def _component_problem(
@@ -294,7 +310,9 @@ def _component_problem(
       solver's tolerance shrinks in proportion and its pairs meet ``tol``
       against the operator's own bound.
     """
-    block = operator.matrix[rows][:, rows]
+    # A connected network is one component: its block is the matrix itself (no copy).
+    whole = rows.size == operator.shape[0]
+    block = operator.matrix if whole else operator.matrix[rows][:, rows]
     if operator.null_basis.shape[1] == 0:
         shift = max(0.0, -operator.lower_bound)
         bound = operator.norm_bound + shift
@@ -329,20 +347,16 @@ class _SparsePlusRankOne:
         return self.sparse.toarray() - np.outer(self.u, self.u)
 
 
-def _embed(rows: np.ndarray, vectors: np.ndarray, n: int) -> np.ndarray:
-    full = np.zeros((n, vectors.shape[1]))
-    full[rows] = vectors
-    return full
-
-
 def _fix_signs(vectors: np.ndarray) -> np.ndarray:
     """Make each column's largest-magnitude entry (first on a tie) positive."""
     if vectors.size == 0:
         return vectors
-    pivots = np.argmax(np.abs(vectors), axis=0)
-    signs = np.sign(vectors[pivots, np.arange(vectors.shape[1])])
+    columns = np.arange(vectors.shape[1])
+    pivots = np.array([np.argmax(np.abs(vectors[:, j])) for j in columns], dtype=np.int64)
+    signs = np.sign(vectors[pivots, columns])
     signs[signs == 0] = 1.0
-    return vectors * signs
+    vectors *= signs  # in place: the caller's array is a fresh one
+    return vectors
 
 
 def _scaled_residuals(
@@ -350,6 +364,12 @@ def _scaled_residuals(
 ) -> np.ndarray:
     if values.size == 0:
         return np.zeros(0)
-    raw = np.linalg.norm(operator.apply(vectors) - vectors * values, axis=0)
+    # One column at a time, so that only vectors of length n are made.
+    raw = np.empty(values.size)
+    for j, value in enumerate(values):
+        column = vectors[:, j]
+        residual = operator.apply(column)
+        residual -= value * column
+        raw[j] = np.linalg.norm(residual)
     scale = operator.norm_bound if operator.norm_bound > 0 else 1.0
     return raw / scale
