@@ -634,10 +634,17 @@ def find_zones(
             rng=generator,
         )
         labels_w = refined.labels
+        merged_note = (
+            ", measured on the network with its dangling branches and kept links merged "
+            "(the final figures count the whole network)"
+            if work.n_nodes < network.n_nodes
+            else ""
+        )
         decisions["refinement"] = {
             "reason": (
                 f"boundary moves lowered the normalized cut from {refined.ncut_before:.4g} "
-                f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} passes)"
+                f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} "
+                f"passes){merged_note}"
             ),
             "ncut_before": refined.ncut_before,
             "ncut_after": refined.ncut_after,
