@@ -86,3 +86,27 @@ def test_local_zone_is_the_bell_of_the_asset(tmp_path: Path) -> None:
     record = json.loads((out / "run.json").read_text(encoding="utf-8"))
     # Conductance of one bell: 1 crossing link over its volume 8*7 + 1 = 57 (by hand).
     assert record["local_zone"]["conductance"] == pytest.approx(1 / 57)
+
+
+def test_stability_of_a_directed_network(cycles: Path, tmp_path: Path) -> None:
+    # The perturbed runs keep the arcs (each arc gets its own noise factor), so every run
+    # uses the directed Laplacian; the two cycles are a stable answer (hand-known).
+    out = tmp_path / "out"
+    args = ["stability", str(cycles), "--weight", "weight", "--directed", "--zones", "2"]
+    assert main([*args, "--repeats", "2", "--out", str(out), "--quiet"]) == 0
+    record = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    assert record["overall"]["perturbed_ari_mean"] == 1.0
+    assert record["overall"]["seed_ari_mean"] == 1.0
+
+
+def test_perturbed_directed_network_keeps_its_arcs() -> None:
+    from specgraph import Network
+    from specgraph.diagnostics import perturb_weights
+
+    net = Network.from_links(["a", "b", "c"], ["b", "c", "a"], [1.0, 2.0, 4.0], directed=True)
+    noisy = perturb_weights(net, spread=0.2, rng=0)
+    assert noisy.directed
+    assert (noisy.arcs != 0).nnz == 3
+    # Same arcs, weights changed by factors with median 1 (all positive).
+    assert ((noisy.arcs != 0) != (net.arcs != 0)).nnz == 0
+    assert (noisy.adjacency != (noisy.arcs + noisy.arcs.T)).nnz == 0

@@ -194,7 +194,8 @@ def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Netw
 
     Each undirected link gets one factor :math:`\\exp(s Z)`, :math:`Z \\sim
     N(0, 1)`, applied to both of its stored entries, so the adjacency stays
-    exactly symmetric. Node ids, sizes and coordinates are kept.
+    exactly symmetric. In a directed network each arc gets its own factor and
+    the arcs are kept. Node ids, sizes and coordinates are kept.
 
     Multiplicative noise because affinities are positive and scale-free: a
     factor keeps every weight positive (additive noise could make one zero or
@@ -225,6 +226,20 @@ def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Netw
     """
     spread = check_positive_float(spread, "spread", allow_zero=True)
     generator = check_rng(rng)
+    notes = {**network.notes, "weight_noise_spread": spread}
+    if network.arcs is not None:
+        # A directed network: every arc (each direction of a two-way link is an arc of
+        # its own) gets its factor; the adjacency is again the arcs' symmetrized sum.
+        arcs = network.arcs.copy()
+        arcs.data = arcs.data * np.exp(spread * generator.standard_normal(arcs.data.size))
+        return Network(
+            sp.csr_array(arcs + arcs.T),
+            network.node_ids,
+            coordinates=network.coordinates,
+            sizes=network.sizes,
+            notes=notes,
+            arcs=arcs,
+        )
     upper = sp.triu(network.adjacency, k=1, format="coo")
     data = upper.data * np.exp(spread * generator.standard_normal(upper.data.size))
     n = network.n_nodes
@@ -240,7 +255,7 @@ def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Netw
         network.node_ids,
         coordinates=network.coordinates,
         sizes=network.sizes,
-        notes={**network.notes, "weight_noise_spread": spread},
+        notes=notes,
     )
 
 
