@@ -66,12 +66,14 @@ ZONE_ROWS = 1_000
 #: hold every digit).
 SIGNIFICANT_DIGITS = 6
 
-#: The cautions every report states, at its top and again at its end.
+#: What the report adds, at its top and again at its end, to the one-line caution of every run.
 CAUTIONS = (
-    "These zones are decision support only, not an instruction to act.",
-    "Before a valve is closed, a breaker opened or a control perimeter set, validate the "
-    "zones in a hydraulic, power-flow or traffic model of the network.",
-    "Defer to local codes and to licensed engineers, who answer for the operation of the network.",
+    "specgraph knows the network only as given: nothing of pressures, fire flows, water "
+    "quality, voltages, protection settings or traffic demand.",
+    "Check every boundary link on site: the valve, breaker or signal a map shows may be "
+    "missing, seized or set otherwise.",
+    "Licensed engineers answer for the operation of the network; the zones, counts and "
+    "confidences here are evidence for their decision, not the decision.",
 )
 
 ImageFormat = Literal["png", "svg"]
