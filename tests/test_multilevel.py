@@ -55,6 +55,28 @@ def test_dense_kernels_match_numpy() -> None:
     np.testing.assert_allclose(kern.column_dots(a, b, 64), np.einsum("ij,ij->j", a, b))
 
 
+def test_shortcut_combinations_match_numpy_and_the_general_kernel() -> None:
+    # Reference: numpy matmul; and the general ``combine`` with an identity
+    # block in the same place, which sums in the same order (so to the bit).
+    rng = np.random.default_rng(6)
+    base, x, w = (rng.standard_normal((300, k)) for k in (4, 1, 4))
+    kx, kw = rng.standard_normal((1, 4)), rng.standard_normal((4, 4))
+    identity, none = np.eye(4), np.zeros((0, 4))
+    out = np.empty((300, 4))
+    kern.add_combine(base, x, kx, w, kw, out)
+    np.testing.assert_allclose(out, base + x @ kx + w @ kw, rtol=1e-12, atol=1e-12)
+    general = np.empty_like(out)
+    kern.combine(base, identity, x, kx, w, kw, general)
+    np.testing.assert_array_equal(out, general)
+    kern.combine_add(w, kw, base, out)
+    np.testing.assert_allclose(out, w @ kw + base, rtol=1e-12, atol=1e-12)
+    kern.combine(w, kw, base, identity, base[:, :0], none, general)
+    np.testing.assert_array_equal(out, general)
+    expected = base + x @ kx + w @ kw
+    kern.add_combine(base, x, kx, w, kw, base)  # in place
+    np.testing.assert_allclose(base, expected, rtol=1e-12, atol=1e-12)
+
+
 def test_fused_projection_kernels_match_numpy(road) -> None:
     # Reference: scipy's CSR product followed by numpy matmul; the fused
     # kernels never store A v, so they must agree with the stored product.
@@ -104,6 +126,8 @@ def test_coarse_operator_is_galerkin_and_keeps_the_null_vector(road) -> None:
     op = laplacian(road)
     hierarchy = build_hierarchy(op.matrix, op.null_basis[:, 0])
     lv, coarse = hierarchy.levels[0], hierarchy.levels[1]
+    assert lv.weights is not None  # a fine level has transfers
+    assert lv.aggregate is not None
     n, m = lv.size, coarse.size
     p = sp.csr_array((lv.weights, (np.arange(n), lv.aggregate)), shape=(n, m))
     np.testing.assert_allclose((p.T @ p).toarray(), np.eye(m), atol=1e-12)

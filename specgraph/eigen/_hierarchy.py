@@ -46,8 +46,11 @@ STALL_RATIO = 0.7
 #: upper half of the spectrum of ``D^{-1} M`` by at least 1/3 per sweep.
 JACOBI_DAMPING = 2.0 / 3.0
 
-#: Jacobi sweeps before and after each coarse correction.
-SMOOTHING_SWEEPS = 2
+#: Jacobi sweeps before and after each coarse correction. One each way:
+#: measured on the road-like networks of 100,000 and 1,000,000 nodes (k = 8),
+#: a second sweep each way saved at most one outer iteration but cost a third
+#: of every cycle's sparse passes, so one sweep was 5-17% faster overall.
+SMOOTHING_SWEEPS = 1
 
 #: Flexible CG steps on each coarse level of the K-cycle.
 KCYCLE_STEPS = 2

@@ -21,8 +21,10 @@ from numba import njit, prange
 
 __all__ = [
     "PARALLEL_MIN_ROWS",
+    "add_combine",
     "column_dots",
     "combine",
+    "combine_add",
     "csr_matmat",
     "csr_projections",
     "fcg_update",
@@ -156,6 +158,47 @@ def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
                 acc[c] += v * kp[a, c]
         for c in range(b):
             out[i, c] = acc[c]
+
+
+@njit(parallel=True, cache=True)
+def add_combine(base, x, kx, w, kw, out):  # pragma: no cover - compiled
+    """``out = base + x @ kx + w @ kw`` in one pass over the rows (``out`` may be ``base``).
+
+    The sums run in the order of :func:`combine` with ``base`` times the
+    identity first, so the result is the same to the bit, for fewer operations.
+    """
+    n, b = out.shape
+    for i in prange(n):
+        acc = np.empty(b)
+        for c in range(b):
+            acc[c] = base[i, c]
+        for a in range(x.shape[1]):
+            v = x[i, a]
+            for c in range(b):
+                acc[c] += v * kx[a, c]
+        for a in range(w.shape[1]):
+            v = w[i, a]
+            for c in range(b):
+                acc[c] += v * kw[a, c]
+        for c in range(b):
+            out[i, c] = acc[c]
+
+
+@njit(parallel=True, cache=True)
+def combine_add(x, kx, tail, out):  # pragma: no cover - compiled
+    """``out = x @ kx + tail`` in one pass over the rows (``out`` may be ``x`` or ``tail``).
+
+    The same to the bit as :func:`combine` with ``tail`` times the identity last.
+    """
+    n, b = out.shape
+    for i in prange(n):
+        acc = np.zeros(b)
+        for a in range(x.shape[1]):
+            v = x[i, a]
+            for c in range(b):
+                acc[c] += v * kx[a, c]
+        for c in range(b):
+            out[i, c] = acc[c] + tail[i, c]
 
 
 @njit(parallel=True, cache=True)

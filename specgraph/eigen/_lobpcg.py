@@ -149,10 +149,9 @@ def _orthogonalize(
     fused sweep over the rows (row ``i`` of the output depends on row ``i`` of
     the input only, so the update can overwrite its input).
     """
-    identity = np.eye(block.shape[1])
     for _ in range(passes):
         c1, c2 = -(first.T @ block), -(second.T @ block)
-        kern.combine(block, identity, first, c1, second, c2, block)
+        kern.add_combine(block, first, c1, second, c2, block)
 
 
 def _symmetric(matrix: np.ndarray) -> np.ndarray:
@@ -160,8 +159,19 @@ def _symmetric(matrix: np.ndarray) -> np.ndarray:
 
 
 def _gram(blocks: list[np.ndarray]) -> np.ndarray:
-    """``B^T B`` for the basis ``B = [blocks]`` without forming ``B``."""
-    return _symmetric(np.block([[u.T @ v for v in blocks] for u in blocks]))
+    """``B^T B`` for the basis ``B = [blocks]`` without forming ``B``.
+
+    Only the blocks on and above the diagonal are computed (each is a pass
+    over the rows); those below are their transposes.
+    """
+    products = {
+        (i, j): blocks[i].T @ blocks[j] for i in range(len(blocks)) for j in range(i, len(blocks))
+    }
+    rows = [
+        [products[(i, j)] if i <= j else products[(j, i)].T for j in range(len(blocks))]
+        for i in range(len(blocks))
+    ]
+    return _symmetric(np.block(rows))
 
 
 def _ritz(gram: np.ndarray, projected: np.ndarray, width: int) -> tuple[np.ndarray, np.ndarray]:
@@ -232,7 +242,6 @@ def lobpcg(
     values = _start(operator, x, null)
     matvecs, iterations, have_p = width, 0, False
     pap = np.zeros((0, 0))
-    identity = np.eye(width)
     while True:
         current_p = p if have_p else no_p
         xax, pax, squares = operator.residuals(x, values, current_p, w)
@@ -257,7 +266,7 @@ def lobpcg(
         kp = coefficients[2 * width :]
         # P <- W kw + P kp and X <- X kx + P, both in place, row by row.
         kern.combine(w, kw, current_p, kp, empty, kp[:0], p)
-        kern.combine(x, kx, p, identity, empty, kx[:0], x)
+        kern.combine_add(x, kx, p, x)
         cp = coefficients.copy()
         cp[:width] = 0.0
         pap = _symmetric(cp.T @ projected @ cp)
