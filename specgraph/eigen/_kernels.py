@@ -138,24 +138,24 @@ def prolong_add(aggregate, weights, coarse, x):  # pragma: no cover - compiled
             x[i, c] += w * coarse[g, c]
 
 
+@njit(inline="always")
+def _add_row_product(block, coefficients, i, acc):  # pragma: no cover - compiled
+    """``acc += block[i] @ coefficients``, summed in column order of ``block``."""
+    for a in range(block.shape[1]):
+        v = block[i, a]
+        for c in range(acc.shape[0]):
+            acc[c] += v * coefficients[a, c]
+
+
 @njit(parallel=True, cache=True)
 def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
     """``out = x @ kx + w @ kw + p @ kp`` in one pass over the rows (any block may be empty)."""
     n, b = out.shape
     for i in prange(n):
         acc = np.zeros(b)
-        for a in range(x.shape[1]):
-            v = x[i, a]
-            for c in range(b):
-                acc[c] += v * kx[a, c]
-        for a in range(w.shape[1]):
-            v = w[i, a]
-            for c in range(b):
-                acc[c] += v * kw[a, c]
-        for a in range(p.shape[1]):
-            v = p[i, a]
-            for c in range(b):
-                acc[c] += v * kp[a, c]
+        _add_row_product(x, kx, i, acc)
+        _add_row_product(w, kw, i, acc)
+        _add_row_product(p, kp, i, acc)
         for c in range(b):
             out[i, c] = acc[c]
 
@@ -172,14 +172,8 @@ def add_combine(base, x, kx, w, kw, out):  # pragma: no cover - compiled
         acc = np.empty(b)
         for c in range(b):
             acc[c] = base[i, c]
-        for a in range(x.shape[1]):
-            v = x[i, a]
-            for c in range(b):
-                acc[c] += v * kx[a, c]
-        for a in range(w.shape[1]):
-            v = w[i, a]
-            for c in range(b):
-                acc[c] += v * kw[a, c]
+        _add_row_product(x, kx, i, acc)
+        _add_row_product(w, kw, i, acc)
         for c in range(b):
             out[i, c] = acc[c]
 
@@ -193,10 +187,7 @@ def combine_add(x, kx, tail, out):  # pragma: no cover - compiled
     n, b = out.shape
     for i in prange(n):
         acc = np.zeros(b)
-        for a in range(x.shape[1]):
-            v = x[i, a]
-            for c in range(b):
-                acc[c] += v * kx[a, c]
+        _add_row_product(x, kx, i, acc)
         for c in range(b):
             out[i, c] = acc[c] + tail[i, c]
 
