@@ -20,13 +20,21 @@ def road():
     return gallery.road_like(2500, rng=3)
 
 
+@pytest.fixture(params=["serial", "parallel"])
+def compilation(request):
+    """Run the kernels of a test in their serial, then their parallel compilation."""
+    kern.threads_for(0 if request.param == "serial" else kern.PARALLEL_MIN_ROWS)
+    yield request.param
+    kern.threads_for(0)
+
+
 def _block(n: int, b: int, seed: int, dtype=np.float64) -> np.ndarray:
     return np.random.default_rng(seed).standard_normal((n, b)).astype(dtype)
 
 
 # ------------------------------------------------------------------ kernels
 @pytest.mark.parametrize("dtype", [np.float64, np.float32], ids=["f64", "f32"])
-def test_csr_kernels_match_scipy(road, dtype) -> None:
+def test_csr_kernels_match_scipy(road, dtype, compilation) -> None:
     # Reference: scipy's CSR product (csr_matvecs).
     m = sp.csr_array(laplacian(road).matrix, dtype=dtype)
     x, rhs = _block(m.shape[0], 5, 0, dtype), _block(m.shape[0], 5, 1, dtype)
@@ -41,7 +49,7 @@ def test_csr_kernels_match_scipy(road, dtype) -> None:
     np.testing.assert_allclose(out, x + scale[:, None] * (rhs - m @ x), rtol=rtol, atol=rtol)
 
 
-def test_dense_kernels_match_numpy() -> None:
+def test_dense_kernels_match_numpy(compilation) -> None:
     # Reference: numpy's own matmul and elementwise arithmetic.
     rng = np.random.default_rng(5)
     x, w, p = (rng.standard_normal((300, k)) for k in (4, 3, 2))
@@ -55,7 +63,7 @@ def test_dense_kernels_match_numpy() -> None:
     np.testing.assert_allclose(kern.column_dots(a, b, 64), np.einsum("ij,ij->j", a, b))
 
 
-def test_shortcut_combinations_match_numpy_and_the_general_kernel() -> None:
+def test_shortcut_combinations_match_numpy_and_the_general_kernel(compilation) -> None:
     # Reference: numpy matmul; and the general ``combine`` with an identity
     # block in the same place, which sums in the same order (so to the bit).
     rng = np.random.default_rng(6)
@@ -77,7 +85,7 @@ def test_shortcut_combinations_match_numpy_and_the_general_kernel() -> None:
     np.testing.assert_allclose(base, expected, rtol=1e-12, atol=1e-12)
 
 
-def test_fused_projection_kernels_match_numpy(road) -> None:
+def test_fused_projection_kernels_match_numpy(road, compilation) -> None:
     # Reference: scipy's CSR product followed by numpy matmul; the fused
     # kernels never store A v, so they must agree with the stored product.
     m = laplacian(road).matrix
@@ -107,7 +115,23 @@ def test_fused_projection_kernels_match_numpy(road) -> None:
     )
 
 
-def test_transfers_are_adjoint(road) -> None:
+def test_serial_and_parallel_compilations_agree_to_the_bit(road) -> None:
+    # Both compilations sum each output row, and each fixed chunk, in the same order.
+    m = sp.csr_array(laplacian(road).matrix)
+    x, v, w = _block(m.shape[0], 9, 0), _block(m.shape[0], 9, 1), _block(m.shape[0], 4, 2)
+    results = []
+    for rows in (0, kern.PARALLEL_MIN_ROWS):
+        kern.threads_for(rows)
+        out = np.empty_like(x)
+        kern.csr_matmat(m.indptr, m.indices, m.data, x, out)
+        projections = kern.csr_projections(m.indptr, m.indices, m.data, v, x, w, w, 64)
+        results.append((out, *projections, kern.column_dots(x, v, 64)))
+    kern.threads_for(0)
+    for serial, parallel in zip(*results, strict=True):
+        assert np.array_equal(serial, parallel)
+
+
+def test_transfers_are_adjoint(road, compilation) -> None:
     # <P y, x> = <y, P^T x>: restriction is the transpose of prolongation.
     op = laplacian(road)
     hierarchy = build_hierarchy(op.matrix, op.null_basis[:, 0])
@@ -275,24 +299,15 @@ def test_multilevel_memory_stays_within_its_budget() -> None:
     # double blocks of 11 columns and eight single-precision ones, took 20.
     import tracemalloc
 
-    small = laplacian(gallery.road_like(3000, rng=6))  # load the compiled kernels untraced
-    solve_multilevel(
-        Problem(
-            small.matrix,
-            small.null_basis[:, 0],
-            small.norm_bound,
-            7,
-            1e-6,
-            None,
-            np.random.default_rng(0),
-        )
-    )
     op = laplacian(gallery.road_like(20_000, rng=5))
     m = op.matrix
     csr = m.data.nbytes + m.indices.nbytes + m.indptr.nbytes
     problem = Problem(
         m, op.null_basis[:, 0], op.norm_bound, 7, 1e-6, None, np.random.default_rng(0)
     )
+    # Load (or compile) both the serial and the parallel kernels untraced:
+    # the finest level has more rows than PARALLEL_MIN_ROWS, the coarse ones fewer.
+    solve_multilevel(problem)
     tracemalloc.start()
     try:
         solution = solve_multilevel(problem)

@@ -15,6 +15,11 @@ Tests compare every kernel with its scipy/numpy equivalent.
 
 from __future__ import annotations
 
+import functools
+import types
+from collections.abc import Callable
+from typing import Any
+
 import numba
 import numpy as np
 from numba import njit, prange
@@ -39,7 +44,7 @@ __all__ = [
 ]
 
 
-#: Blocks with fewer rows than this run on one thread. Below it, starting a
+#: Blocks with fewer rows than this run serially. Below it, starting a
 #: parallel region and waiting at its closing barrier costs more than the
 #: pass itself (a 20,000 x 12 block of doubles is about 2 MB, a fraction of a
 #: millisecond of work), and on a shared machine a parallel region waits for
@@ -54,10 +59,41 @@ _MAX_THREADS = numba.config.NUMBA_NUM_THREADS  # type: ignore[attr-defined]
 # small dense eigen-solve fiftyfold.
 numba.config.THREADING_LAYER = "workqueue"  # type: ignore[attr-defined]
 
+# Whether the next kernels run serially: set by :func:`threads_for`.
+_SERIAL = [False]
+
 
 def threads_for(rows: int) -> None:
-    """Use every core for blocks of at least :data:`PARALLEL_MIN_ROWS` rows, one below."""
-    numba.set_num_threads(_MAX_THREADS if rows >= PARALLEL_MIN_ROWS else 1)
+    """Run the next kernels on every core for blocks of at least :data:`PARALLEL_MIN_ROWS` rows.
+
+    Smaller blocks run the serial compilation of each kernel: a parallel
+    kernel costs a few hundred microseconds to launch even on one thread
+    (measured on the coarse levels of the multilevel solver, 3,000 rows),
+    more than its work there.
+    """
+    serial = rows < PARALLEL_MIN_ROWS
+    _SERIAL[0] = serial
+    if not serial:
+        numba.set_num_threads(_MAX_THREADS)
+
+
+class _RowKernel:
+    """A kernel compiled twice: parallel over rows, and serial (``prange`` as ``range``).
+
+    Both compilations run the same loops in the same order per output row and
+    per fixed chunk, so they give the same results to the bit; calls go to the
+    one chosen by the last :func:`threads_for`.
+    """
+
+    def __init__(self, func: Callable[..., Any]) -> None:
+        self.parallel = njit(parallel=True, cache=True)(func)
+        twin = types.FunctionType(func.__code__, func.__globals__, func.__name__)
+        twin.__qualname__ = f"{func.__qualname__}_serial"  # its own cache entry
+        self.serial = njit(cache=True)(twin)
+        functools.update_wrapper(self, func)
+
+    def __call__(self, *args: Any) -> Any:
+        return (self.serial if _SERIAL[0] else self.parallel)(*args)
 
 
 @njit(inline="always")
@@ -75,7 +111,7 @@ def _row_product(indptr, indices, data, x, i, acc):  # pragma: no cover - compil
             acc[c] += a * x[j, c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def csr_matmat(indptr, indices, data, x, out):  # pragma: no cover - compiled
     """``out = A @ x`` for CSR ``A`` and a row-major block ``x``."""
     n, b = out.shape
@@ -86,7 +122,7 @@ def csr_matmat(indptr, indices, data, x, out):  # pragma: no cover - compiled
             out[i, c] = acc[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def residual_block(indptr, indices, data, rhs, x, out):  # pragma: no cover - compiled
     """``out = rhs - A @ x``."""
     n, b = out.shape
@@ -97,7 +133,7 @@ def residual_block(indptr, indices, data, rhs, x, out):  # pragma: no cover - co
             out[i, c] = rhs[i, c] - acc[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def jacobi_sweep(indptr, indices, data, scaled_inv_diag, rhs, x, out):  # pragma: no cover
     """One damped Jacobi sweep: ``out = x + w D^{-1} (rhs - A @ x)``.
 
@@ -112,7 +148,7 @@ def jacobi_sweep(indptr, indices, data, scaled_inv_diag, rhs, x, out):  # pragma
             out[i, c] = x[i, c] + s * (rhs[i, c] - acc[c])
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def restrict_sum(members_ptr, members, weights, x, out):  # pragma: no cover - compiled
     """``out[g] = sum over fine rows i of aggregate g of weights[i] * x[i]`` (``P^T x``)."""
     m, b = out.shape
@@ -127,7 +163,7 @@ def restrict_sum(members_ptr, members, weights, x, out):  # pragma: no cover - c
             out[g, c] = acc[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def prolong_add(aggregate, weights, coarse, x):  # pragma: no cover - compiled
     """``x += P @ coarse`` where row ``i`` of ``P`` is ``weights[i]`` at ``aggregate[i]``."""
     n, b = x.shape
@@ -147,7 +183,7 @@ def _add_row_product(block, coefficients, i, acc):  # pragma: no cover - compile
             acc[c] += v * coefficients[a, c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
     """``out = x @ kx + w @ kw + p @ kp`` in one pass over the rows (any block may be empty)."""
     n, b = out.shape
@@ -160,7 +196,7 @@ def combine(x, kx, w, kw, p, kp, out):  # pragma: no cover - compiled
             out[i, c] = acc[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def add_combine(base, x, kx, w, kw, out):  # pragma: no cover - compiled
     """``out = base + x @ kx + w @ kw`` in one pass over the rows (``out`` may be ``base``).
 
@@ -178,7 +214,7 @@ def add_combine(base, x, kx, w, kw, out):  # pragma: no cover - compiled
             out[i, c] = acc[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def combine_add(x, kx, tail, out):  # pragma: no cover - compiled
     """``out = x @ kx + tail`` in one pass over the rows (``out`` may be ``x`` or ``tail``).
 
@@ -192,7 +228,7 @@ def combine_add(x, kx, tail, out):  # pragma: no cover - compiled
             out[i, c] = acc[c] + tail[i, c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def fcg_update(x, r, d, md, alpha):  # pragma: no cover - compiled
     """Flexible CG step per column: ``x += d * alpha``; ``r -= md * alpha``."""
     n, b = x.shape
@@ -202,7 +238,7 @@ def fcg_update(x, r, d, md, alpha):  # pragma: no cover - compiled
             r[i, c] -= md[i, c] * alpha[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def subtract_scaled(d, d_prev, beta):  # pragma: no cover - compiled
     """``d -= d_prev * beta`` per column."""
     n, b = d.shape
@@ -211,7 +247,7 @@ def subtract_scaled(d, d_prev, beta):  # pragma: no cover - compiled
             d[i, c] -= d_prev[i, c] * beta[c]
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def scale_rows(x, scale, out):  # pragma: no cover - compiled
     """``out = x * scale[:, None]`` (also casts to ``out``'s dtype)."""
     n, b = x.shape
@@ -221,7 +257,7 @@ def scale_rows(x, scale, out):  # pragma: no cover - compiled
             out[i, c] = x[i, c] * s
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def column_dots(a, b_, chunks):  # pragma: no cover - compiled
     """Per-column inner products ``sum_i a[i, c] * b_[i, c]``, summed in fixed chunks.
 
@@ -260,7 +296,7 @@ def _sum_chunks(partial):  # pragma: no cover - compiled
     return out
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def csr_projections(indptr, indices, data, v, x, w, p, chunks):  # pragma: no cover
     """``x^T (A v)``, ``w^T (A v)`` and ``p^T (A v)`` without storing ``A v``.
 
@@ -289,7 +325,7 @@ def csr_projections(indptr, indices, data, v, x, w, p, chunks):  # pragma: no co
     return _sum_chunks(px), _sum_chunks(pw), _sum_chunks(pp)
 
 
-@njit(parallel=True, cache=True)
+@_RowKernel
 def residual_projections(indptr, indices, data, x, values, p, out, chunks):  # pragma: no cover
     """``out = A x - x diag(values)``; return ``x^T A x``, ``p^T A x``, squared norms of ``out``.
 
