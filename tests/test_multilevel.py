@@ -49,6 +49,42 @@ def test_csr_kernels_match_scipy(road, dtype, compilation) -> None:
     np.testing.assert_allclose(out, x + scale[:, None] * (rhs - m @ x), rtol=rtol, atol=rtol)
 
 
+def test_chebyshev_step_matches_scipy(road, compilation) -> None:
+    # Reference: scipy's CSR product and numpy arithmetic.
+    m = sp.csr_array(laplacian(road).matrix)
+    y, x = _block(m.shape[0], 5, 3), _block(m.shape[0], 5, 4)
+    expected = 0.7 * (m @ y) - 0.2 * y + 0.3 * x
+    kern.chebyshev_step(m.indptr, m.indices, m.data, y, x, 0.7, -0.2, 0.3, x)  # in place
+    np.testing.assert_allclose(x, expected, rtol=1e-12, atol=1e-12)
+
+
+def test_start_filter_is_the_scaled_chebyshev_polynomial() -> None:
+    # Reference: the filter is p(A) with p(t) = T_d((t - c)/e) / T_d((0 - c)/e)
+    # (Zhou and Saad 2006, eq. 3.4), evaluated by numpy's chebval on the
+    # eigenvalues from scipy's dense eigh: each eigenvector is scaled by p(mu).
+    from numpy.polynomial import chebyshev
+
+    from specgraph.eigen._multilevel import START_FILTER_CUT, _filtered
+
+    op = laplacian(gallery.road_like(400, rng=2))
+    values, vectors = la.eigh(op.matrix.toarray())
+    upper, degree = op.norm_bound, 7
+    low = START_FILTER_CUT * upper
+    half, centre = (upper - low) / 2, (upper + low) / 2
+    coefficients = np.zeros(degree + 1)
+    coefficients[degree] = 1.0
+    p = chebyshev.chebval((values - centre) / half, coefficients) / chebyshev.chebval(
+        -centre / half, coefficients
+    )
+    block = np.ascontiguousarray(vectors[:, [0, 5, 60, 399]])
+    out = _filtered(sp.csr_array(op.matrix), block.copy(), upper, degree)
+    np.testing.assert_allclose(out, block * p[[0, 5, 60, 399]], atol=1e-12)
+    # The docstring's guarantee: damped by 1 / T_d((upper + cut) / (upper - cut)) above the cut.
+    bound = 1.0 / chebyshev.chebval((upper + low) / (upper - low), coefficients)
+    assert np.all(np.abs(p[values >= low]) <= bound * (1 + 1e-12))
+    assert p[5] > 0.5 > 5 * bound  # the low end is kept
+
+
 def test_dense_kernels_match_numpy(compilation) -> None:
     # Reference: numpy's own matmul and elementwise arithmetic.
     rng = np.random.default_rng(5)

@@ -27,6 +27,7 @@ from numba import njit, prange
 __all__ = [
     "PARALLEL_MIN_ROWS",
     "add_combine",
+    "chebyshev_step",
     "column_dots",
     "combine",
     "combine_add",
@@ -131,6 +132,17 @@ def residual_block(indptr, indices, data, rhs, x, out):  # pragma: no cover - co
         _row_product(indptr, indices, data, x, i, acc)
         for c in range(b):
             out[i, c] = rhs[i, c] - acc[c]
+
+
+@_RowKernel
+def chebyshev_step(indptr, indices, data, y, x, alpha, beta, gamma, out):  # pragma: no cover
+    """``out = alpha * (A @ y) + beta * y + gamma * x`` (``out`` may be ``x``, not ``y``)."""
+    n, b = out.shape
+    for i in prange(n):
+        acc = np.empty(b)
+        _row_product(indptr, indices, data, y, i, acc)
+        for c in range(b):
+            out[i, c] = alpha * acc[c] + beta * y[i, c] + gamma * x[i, c]
 
 
 @_RowKernel

@@ -9,7 +9,8 @@ Steps:
    cascade.
 4. On each finer level, interpolate the block and improve it by a few
    iterations of LOBPCG preconditioned by flexible CG with the K-cycle from
-   that level down; on the finest level iterate until the tolerance is met.
+   that level down; on the finest level smooth the interpolated block with
+   a Chebyshev filter first, then iterate until the tolerance is met.
 
 This follows the multilevel lines of Barnard and Simon (Concurrency Pract.
 Exper. 6(2), 1994, doi:10.1002/cpe.4330060203), Koren, Carmel and Harel
@@ -26,6 +27,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
+from . import _kernels as kern
 from ._hierarchy import Hierarchy, build_hierarchy
 from ._lobpcg import CsrBlocks, LobpcgOutcome, lobpcg
 from ._problem import Problem, Solution
@@ -59,6 +61,22 @@ PRECONDITIONER_STEPS = 3
 #: Default cap on LOBPCG iterations on the finest level.
 DEFAULT_MAXITER = 200
 
+#: Degree of the Chebyshev filter that smooths the interpolated start block
+#: on the finest level before its first iteration (0: no filter).
+#: Interpolation from aggregates leaves a jagged error that the multigrid
+#: preconditioner removes slowly; the filter removes it for one block product
+#: per degree. Measured (k = 8, three alternating runs each): road-like
+#: 1,000,000 nodes, finest iterations 6 -> 5 at degrees 8 and 16, median
+#: 10.8 s -> 9.3 s (8) and 9.0 s (16); road-like 100,000 nodes, 6 -> 6 at
+#: degree 8 but 5 at 16 (1.22 s -> 1.16 s); stochastic block model 100,000
+#: nodes, no iteration saved (1.47 s -> 1.63 s at 16, within the noise).
+START_FILTER_DEGREE = 16
+
+#: The start filter damps the spectrum above this share of the operator's norm
+#: bound and keeps the part below it (the wanted pairs lie far below it on
+#: large networks; where they do not, the filter only costs its products).
+START_FILTER_CUT = 0.05
+
 
 def _reordered(problem: Problem) -> tuple[sp.csr_array, np.ndarray, np.ndarray]:
     order = reverse_cuthill_mckee(sp.csr_matrix(problem.matrix), symmetric_mode=True)
@@ -90,6 +108,33 @@ def _cascade(hierarchy: Hierarchy, problem: Problem, width: int) -> tuple[np.nda
     return block, iterations, matvecs
 
 
+def _filtered(matrix: sp.csr_array, block: np.ndarray, upper: float, degree: int) -> np.ndarray:
+    """Chebyshev-filtered ``block``: components above ``START_FILTER_CUT * upper`` damped.
+
+    The scaled three-term recurrence of Zhou and Saad (J. Comput. Phys. 219,
+    2006, doi:10.1016/j.jcp.2006.03.017, Algorithm 3.2) with the lower end of
+    the spectrum at 0 (a PSD operator): components at 0 keep their size, those
+    in ``[cut, upper]`` shrink by at least ``1 / T_degree((upper + cut) /
+    (upper - cut))``. ``block`` is overwritten; two blocks are live at a time.
+    """
+    low = START_FILTER_CUT * upper
+    half, centre = (upper - low) / 2.0, (upper + low) / 2.0
+    sigma1 = sigma = half / (0.0 - centre)
+    x = block
+    y = np.empty_like(block)
+    ptr, idx, data = matrix.indptr, matrix.indices, matrix.data
+    kern.threads_for(matrix.shape[0])
+    scale = sigma1 / half
+    kern.chebyshev_step(ptr, idx, data, x, x, scale, -centre * scale, 0.0, y)
+    for _ in range(2, degree + 1):
+        sigma2 = 1.0 / (2.0 / sigma1 - sigma)
+        scale = 2.0 * sigma2 / half
+        kern.chebyshev_step(ptr, idx, data, y, x, scale, -centre * scale, -sigma * sigma2, x)
+        x, y = y, x
+        sigma = sigma2
+    return y
+
+
 def _iterate(
     hierarchy: Hierarchy,
     index: int,
@@ -118,6 +163,9 @@ def solve_multilevel(problem: Problem) -> Solution:
     hierarchy = build_hierarchy(matrix, null, width=width)
     logger.debug("multilevel: levels %s", hierarchy.sizes)
     start, iterations, matvecs = _cascade(hierarchy, problem, width)
+    if len(hierarchy.levels) > 1 and START_FILTER_DEGREE > 0:  # interpolated vectors
+        start = _filtered(matrix, start, problem.norm_bound, START_FILTER_DEGREE)
+        matvecs += START_FILTER_DEGREE * width
     outcome = _iterate(
         hierarchy, 0, start, hierarchy.levels[0].null, problem, problem.maxiter or DEFAULT_MAXITER
     )
