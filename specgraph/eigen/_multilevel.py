@@ -49,11 +49,14 @@ GUARD_SHARE = 0.25
 
 #: LOBPCG iterations on each intermediate level of the cascade: enough to
 #: remove the interpolation error the finer level cannot see, no more.
-#: Measured on road-like networks (100,000 and 1,000,000 nodes) and a
-#: stochastic block model (100,000 nodes), k = 8: a third iteration per level
-#: left the finest level's iteration count unchanged (or lowered it by one on
-#: the block model) and cost up to a tenth of the run.
-CASCADE_ITERATIONS = 2
+#: Measured with the finest level's start filter (k = 8, three alternating
+#: runs each, 1 vs 2 iterations): road-like 1,000,000 nodes, the finest level
+#: needed 5 iterations either way, median 5.9 s vs 7.1 s; road-like 100,000
+#: nodes 0.72 s vs 0.73 s; stochastic block model 100,000 nodes 1.05 s vs
+#: 1.11 s. With none, the finest level needed 6 (1,000,000 nodes, 6.8 s).
+#: An accurate intermediate level does not help the finest one: with 8
+#: iterations on the 178,000-node level the finest still needed the same count.
+CASCADE_ITERATIONS = 1
 
 #: Flexible CG steps of the preconditioner on the level being iterated.
 PRECONDITIONER_STEPS = 3
