@@ -352,3 +352,54 @@ def test_multilevel_memory_stays_within_its_budget() -> None:
         tracemalloc.stop()
     assert solution.vectors.shape == (op.shape[0], 7)
     assert peak <= 12 * csr, f"peak {peak / csr:.1f} CSR sizes"
+
+
+# ------------------------------------------------------- auto: structure decides
+@pytest.fixture(scope="module")
+def communities():
+    """A planted partition (networkx's generator): 8 groups of 300, far apart in the spectrum."""
+    import networkx as nx
+
+    from specgraph import Network
+
+    graph = nx.planted_partition_graph(8, 300, 0.05, 0.0004, seed=4)
+    largest = graph.subgraph(max(nx.connected_components(graph), key=len)).copy()
+    return Network.from_networkx(largest)
+
+
+def test_auto_hands_a_wide_gap_to_flipped_lanczos(communities) -> None:
+    # Reference: scipy's dense eigh. Seven community eigenvalues lie far below
+    # the bulk, so the start block's gap ratio passes FLIP_GAP_RATIO.
+    op = laplacian(communities)
+    assert op.shape[0] > 2000  # above the dense limit: auto runs the multilevel solver
+    result = smallest_eigenpairs(op, 8, rng=0)
+    assert result.method == "lanczos_flip"
+    assert result.converged and result.max_residual <= 1e-6
+    reference = la.eigh(op.matrix.toarray(), eigvals_only=True, subset_by_index=[0, 7])
+    np.testing.assert_allclose(result.values, reference, atol=2e-6)
+
+
+def test_named_multilevel_never_switches(communities) -> None:
+    result = smallest_eigenpairs(laplacian(communities), 8, method="multilevel", rng=0)
+    assert result.method == "multilevel" and result.converged
+
+
+def test_auto_keeps_multilevel_on_a_road_network() -> None:
+    result = smallest_eigenpairs(laplacian(gallery.road_like(3000, rng=2)), 8, rng=0)
+    assert result.method == "multilevel" and result.converged
+
+
+def test_a_failed_flip_trial_falls_back_and_is_counted(monkeypatch) -> None:
+    # Force the trial on a road network and starve it: one restart cycle cannot
+    # converge there, so the multilevel iteration must finish, with the trial's
+    # products added to the count.
+    import specgraph.eigen._multilevel as multilevel
+
+    op = laplacian(gallery.road_like(3000, rng=2))
+    plain = smallest_eigenpairs(op, 8, rng=0)
+    monkeypatch.setattr(multilevel, "FLIP_GAP_RATIO", 0.0)
+    monkeypatch.setattr(multilevel, "FLIP_TRIAL_CYCLES", 1)
+    fallback = smallest_eigenpairs(op, 8, rng=0)
+    assert fallback.method == "multilevel" and fallback.converged
+    assert fallback.matvecs > plain.matvecs
+    np.testing.assert_allclose(fallback.values, plain.values, atol=2e-6)

@@ -104,7 +104,12 @@ def choose_method(n: int, k: int = 1) -> str:
       almost completely on networks with community structure (measured: 450 s
       and 1.5 GiB at 16,000 nodes of a block model), and ``'lanczos_flip'`` is
       faster on networks with a large spectral gap but hopeless on near-planar
-      ones; ``auto`` takes the method that never collapses.
+      ones; ``auto`` takes the method that never collapses. Structure decides
+      within it: when the multilevel start block shows the wanted eigenvalues
+      far below the rest (gap ratio at least
+      :data:`~specgraph.eigen._multilevel.FLIP_GAP_RATIO`), the component is
+      handed to ``'lanczos_flip'`` for a capped trial, kept if it meets the
+      tolerance (the result's ``method`` then says ``lanczos_flip``).
 
     Name a method to choose otherwise.
 
@@ -259,8 +264,11 @@ def _solve_components(
                 # (ARPACK needs k < n); the full spectrum is a dense job.
                 chosen = "dense"
             logger.debug("component %d: %d nodes, %d pairs by %s", comp, rows.size, wanted, chosen)
-            found = _SOLVERS[chosen](problem)
-            used.add(chosen)
+            if method == "auto" and chosen == "multilevel":
+                found = solve_multilevel(problem, switch=True)  # may hand over to lanczos_flip
+            else:
+                found = _SOLVERS[chosen](problem)
+            used.add(found.method or chosen)
             matvecs += found.matvecs
             iterations += found.iterations
             values.append(found.values - shift)

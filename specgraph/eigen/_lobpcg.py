@@ -44,7 +44,14 @@ import scipy.sparse as sp
 
 from . import _kernels as kern
 
-__all__ = ["BlockOperator", "CsrBlocks", "LobpcgOutcome", "ProductBlocks", "lobpcg"]
+__all__ = [
+    "BlockOperator",
+    "CsrBlocks",
+    "LobpcgOutcome",
+    "ProductBlocks",
+    "lobpcg",
+    "rayleigh_ritz_start",
+]
 
 #: Basis directions whose normalized Gram eigenvalue falls below this are
 #: dropped as linearly dependent (SVQB's rule; near eps of float64 the
@@ -195,7 +202,7 @@ def _ritz(gram: np.ndarray, projected: np.ndarray, width: int) -> tuple[np.ndarr
     return ritz[:width], transform @ coefficients[:, :width]
 
 
-def _start(operator: BlockOperator, x: np.ndarray, null: np.ndarray) -> np.ndarray:
+def rayleigh_ritz_start(operator: BlockOperator, x: np.ndarray, null: np.ndarray) -> np.ndarray:
     """Rayleigh-Ritz on the start block, in place: the first ``X`` and its Ritz values."""
     empty = x[:, :0]
     _orthogonalize(x, null, empty)
@@ -249,7 +256,7 @@ def lobpcg(
     w = np.empty((n, width))
     p = np.zeros((n, width))
     no_p, empty = p[:, :0], x[:, :0]
-    values = _start(operator, x, null)
+    values = rayleigh_ritz_start(operator, x, null)
     matvecs, iterations, have_p = width, 0, False
     pap = np.zeros((0, 0))
     while True:

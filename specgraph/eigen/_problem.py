@@ -49,9 +49,15 @@ class Problem:
 
 @dataclass(frozen=True, eq=False)
 class Solution:
-    """Pairs found by a solver (possibly fewer accurate than asked)."""
+    """Pairs found by a solver (possibly fewer accurate than asked).
+
+    ``method`` names the solver that found them when it is not the one asked
+    (the multilevel solver, called by ``auto``, hands a component whose wanted
+    eigenvalues stand far below the rest to Lanczos on the flipped operator).
+    """
 
     values: np.ndarray
     vectors: np.ndarray
     matvecs: int
     iterations: int
+    method: str | None = None
