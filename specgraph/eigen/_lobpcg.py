@@ -221,6 +221,7 @@ def lobpcg(
     count: int,
     tol: float,
     maxiter: int,
+    start_values: np.ndarray | None = None,
 ) -> LobpcgOutcome:
     """Smallest eigenpairs of ``operator`` in the complement of ``null``.
 
@@ -243,6 +244,10 @@ def lobpcg(
         Absolute residual norm each of the first ``count`` columns must reach.
     maxiter : int
         Iteration cap.
+    start_values : ndarray of shape (b,), optional
+        The Ritz values of ``start`` when it is already the output of
+        :func:`rayleigh_ritz_start` (orthonormal Ritz vectors orthogonal to
+        ``null``): the first Rayleigh-Ritz step is then not repeated.
 
     References
     ----------
@@ -256,8 +261,11 @@ def lobpcg(
     w = np.empty((n, width))
     p = np.zeros((n, width))
     no_p, empty = p[:, :0], x[:, :0]
-    values = rayleigh_ritz_start(operator, x, null)
-    matvecs, iterations, have_p = width, 0, False
+    if start_values is None:
+        values, matvecs = rayleigh_ritz_start(operator, x, null), width
+    else:
+        values, matvecs = np.array(start_values, dtype=np.float64), 0
+    iterations, have_p = 0, False
     pap = np.zeros((0, 0))
     while True:
         current_p = p if have_p else no_p

@@ -166,6 +166,7 @@ def _iterate(
     null: np.ndarray,
     problem: Problem,
     maxiter: int,
+    start_values: np.ndarray | None = None,
 ) -> LobpcgOutcome:
     """LOBPCG on level ``index``, preconditioned by flexible CG with the K-cycle."""
     return lobpcg(
@@ -176,6 +177,7 @@ def _iterate(
         count=problem.count,
         tol=problem.tol * problem.norm_bound,
         maxiter=maxiter,
+        start_values=start_values,
     )
 
 
@@ -207,6 +209,7 @@ def solve_multilevel(problem: Problem, *, switch: bool = False) -> Solution:
     if len(hierarchy.levels) > 1 and START_FILTER_DEGREE > 0:  # interpolated vectors
         start = _filtered(matrix, start, problem.norm_bound, START_FILTER_DEGREE)
         matvecs += START_FILTER_DEGREE * width
+    ritz = None  # the start block's Ritz values, once computed (LOBPCG then skips its own)
     if switch and width > problem.count:
         ritz = rayleigh_ritz_start(CsrBlocks(matrix), start, hierarchy.levels[0].null)
         matvecs += width
@@ -220,9 +223,8 @@ def solve_multilevel(problem: Problem, *, switch: bool = False) -> Solution:
             if met:
                 return replace(trial, matvecs=matvecs, iterations=iterations, method="lanczos_flip")
             logger.info("flipped Lanczos missed the tolerance; the multilevel iteration goes on")
-    outcome = _iterate(
-        hierarchy, 0, start, hierarchy.levels[0].null, problem, problem.maxiter or DEFAULT_MAXITER
-    )
+    maxiter = problem.maxiter or DEFAULT_MAXITER
+    outcome = _iterate(hierarchy, 0, start, hierarchy.levels[0].null, problem, maxiter, ritz)
     logger.debug("finest level: %d iterations", outcome.iterations)
     vectors = np.empty_like(outcome.vectors[:, : problem.count])
     vectors[order] = outcome.vectors[:, : problem.count]
