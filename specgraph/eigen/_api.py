@@ -40,6 +40,7 @@ from ._result import EigenResult
 __all__ = [
     "DEFAULT_TOL",
     "DENSE_LIMIT",
+    "SIGN_TIE_ULPS",
     "choose_method",
     "smallest_eigenpairs",
 ]
@@ -57,6 +58,14 @@ DEFAULT_TOL = 1e-6
 #: it a dense solve takes well under a second on one core and is exact to
 #: rounding; above it memory (8 n^2 bytes) and time (n^3) grow too fast.
 DENSE_LIMIT = 2000
+
+#: Entries of an eigenvector whose magnitudes differ from the largest by less
+#: than this many units in the last place of the vector's norm (or by less than
+#: its scaled residual, whichever is larger) count as tied when its sign is
+#: fixed. Entries equal in exact arithmetic came out 3 ulps apart from LAPACK on
+#: a barbell (0.44514123264148625 against 0.4451412326414861), and the order of
+#: the two flipped between builds; 16 leaves room for longer sums.
+SIGN_TIE_ULPS = 16
 
 #: Components up to this size are always solved densely (milliseconds).
 DENSE_SMALL = 200
@@ -215,7 +224,7 @@ def smallest_eigenpairs(
     residuals = _scaled_residuals(operator, values, vectors)
     result = EigenResult(
         values=values,
-        vectors=_fix_signs(operator.to_user_vectors(vectors)),
+        vectors=_fix_signs(operator.to_user_vectors(vectors), residuals),
         residuals=residuals,
         tol=tol,
         method="+".join(sorted(used)) or "trivial",
@@ -355,15 +364,28 @@ class _SparsePlusRankOne:
         return self.sparse.toarray() - np.outer(self.u, self.u)
 
 
-def _fix_signs(vectors: np.ndarray) -> np.ndarray:
-    """Make each column's largest-magnitude entry (first on a tie) positive."""
+def _fix_signs(vectors: np.ndarray, residuals: np.ndarray) -> np.ndarray:
+    """Make each column's largest-magnitude entry positive, ties to the first node.
+
+    Entries whose magnitude lies within ``max(SIGN_TIE_ULPS * eps, r_j) * ||v_j||``
+    of the column's largest magnitude count as tied (``r_j`` is the column's
+    scaled residual), and the first of them in node order decides the sign.
+    The exact arg-max of ``|v|`` would let the last bits of rounding choose
+    between entries that are equal in exact arithmetic (the two ends of a
+    symmetric network), and so the sign and the zone numbers would change
+    between builds of the same libraries. scikit-learn's
+    ``_deterministic_vector_sign_flip`` uses the exact arg-max.
+    """
     if vectors.size == 0:
         return vectors
-    columns = np.arange(vectors.shape[1])
-    pivots = np.array([np.argmax(np.abs(vectors[:, j])) for j in columns], dtype=np.int64)
-    signs = np.sign(vectors[pivots, columns])
-    signs[signs == 0] = 1.0
-    vectors *= signs  # in place: the caller's array is a fresh one
+    eps = np.finfo(vectors.dtype).eps
+    for j in range(vectors.shape[1]):
+        column = vectors[:, j]
+        magnitude = np.abs(column)
+        band = max(SIGN_TIE_ULPS * eps, float(residuals[j])) * float(np.linalg.norm(column))
+        pivot = int(np.argmax(magnitude >= magnitude.max() - band))
+        if column[pivot] < 0:
+            column *= -1.0  # in place: the caller's array is a fresh one
     return vectors
 
 

@@ -19,8 +19,9 @@ class EigenResult:
         Eigenvalues in ascending order.
     vectors : ndarray of shape (n, k)
         Orthonormal eigenvectors, column ``i`` for ``values[i]``; each column's
-        sign is fixed so that its entry of largest magnitude (first one on a
-        tie) is positive.
+        sign is fixed so that its entry of largest magnitude is positive;
+        entries within a few ulps of the norm (or within the residual) of the
+        largest count as tied, and the first in node order decides.
     residuals : ndarray of shape (k,)
         Scaled residual norms :math:`\\|M v_i - \\lambda_i v_i\\| / \\|M\\|_{bound}`
         (the bound is the operator's Gershgorin bound; scaling by
