@@ -30,7 +30,33 @@ class SpecgraphError(Exception):
 
 
 class ParameterError(SpecgraphError, ValueError):
-    """A function or command-line parameter has a value outside its domain."""
+    """A function or command-line parameter has a value outside its domain.
+
+    Parameters
+    ----------
+    message : str
+        The whole sentence: ``<parameter> must be <expected>; got <received>.``
+    parameter : str, optional
+        The library's name of the parameter (the command line maps it to its
+        option name).
+    expected : str, optional
+        What the parameter accepts, in words.
+    received : object, optional
+        The value that was refused.
+    """
+
+    def __init__(
+        self,
+        message: str,
+        *,
+        parameter: str | None = None,
+        expected: str | None = None,
+        received: Any = None,
+    ) -> None:
+        super().__init__(message)
+        self.parameter = parameter
+        self.expected = expected
+        self.received = received
 
 
 class ConstraintError(SpecgraphError, ValueError):
