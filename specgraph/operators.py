@@ -76,8 +76,7 @@ from typing import TYPE_CHECKING, Any, Literal
 import numpy as np
 import scipy.sparse as sp
 
-from ._validation import check_choice, check_positive_float
-from .exceptions import ParameterError
+from ._validation import check_choice, check_positive_float, parameter_error
 from .network import Network
 
 if TYPE_CHECKING:
@@ -318,9 +317,11 @@ def directed_flow(
     from .walks import DEFAULT_DAMPING, stationary_distribution
 
     if network.arcs is None:
-        raise ParameterError(
-            "kind='directed' needs a directed network (one read with directed=True, "
-            "which keeps its arcs); got an undirected network."
+        raise parameter_error(
+            "network",
+            "a directed network for kind='directed' (one read with directed=True, "
+            "which keeps its arcs)",
+            "an undirected network",
         )
     walk = stationary_distribution(network, damping=DEFAULT_DAMPING if damping is None else damping)
     _, inv, _ = _walk_parts(network)
@@ -532,9 +533,8 @@ def laplacian(
     check_choice(kind, "kind", (*_BUILDERS, *_PARAMETRIZED))
     for name, value in (("tau", tau), ("r", r), ("damping", damping)):
         if value is not None and _PARAMETRIZED.get(kind) != name:
-            raise ParameterError(
-                f"{name} applies to kind={_kind_of(name)!r} only; got {name}={value!r} "
-                f"with kind={kind!r}."
+            raise parameter_error(
+                name, f"None unless kind={_kind_of(name)!r}", f"{value!r} with kind={kind!r}"
             )
     if kind == "regularized":
         return _regularized(network, tau)

@@ -52,8 +52,8 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from ._validation import check_int
-from .exceptions import ConvergenceError, InputError, ParameterError
+from ._validation import Interval, check_int, check_param, parameter_error
+from .exceptions import ConvergenceError, InputError
 from .network import Network
 
 __all__ = [
@@ -121,6 +121,14 @@ class StationaryResult:
     error_bound: float
 
 
+#: A damping factor (teleportation keeps the walk ergodic only below 1).
+_OPEN_UNIT = Interval(float, 0.0, 1.0, closed="neither")
+
+#: The walk's stopping bound on the change in 1-norm (a distribution moves by
+#: at most 2 in that norm, so 2 or more would stop before the first step).
+_WALK_TOL = Interval(float, 0.0, 2.0, closed="neither")
+
+
 def default_maxiter(damping: float, tol: float) -> int:
     """Iterations after which the power method is sure to meet ``tol``.
 
@@ -139,12 +147,7 @@ def default_maxiter(damping: float, tol: float) -> int:
 
 def check_damping(damping: Any) -> float:
     """Return ``damping`` as a float in (0, 1), else raise naming ``damping``."""
-    if isinstance(damping, bool) or not isinstance(damping, (int, float, np.floating)):
-        raise ParameterError(f"damping must be a number in (0, 1); got {damping!r}.")
-    value = float(damping)
-    if not (0.0 < value < 1.0):
-        raise ParameterError(f"damping must be a number in (0, 1) (exclusive); got {damping!r}.")
-    return value
+    return float(check_param(damping, "damping", [_OPEN_UNIT]))
 
 
 def transition_parts(network: Network) -> tuple[sp.csr_array, np.ndarray, np.ndarray]:
@@ -178,13 +181,15 @@ def _personalization(network: Network, personalization: Any) -> np.ndarray:
     else:
         v = np.array(personalization, dtype=np.float64).ravel()
         if v.shape != (n,):
-            raise ParameterError(
-                f"personalization must hold one weight per node ({n}); got {v.size} values."
+            raise parameter_error(
+                "personalization", f"one weight per node ({n})", f"{v.size} values"
             )
     if not np.all(np.isfinite(v)) or np.any(v < 0) or v.sum() <= 0:
-        raise ParameterError(
-            "personalization must hold finite weights >= 0 with a positive sum; "
-            f"got sum {float(np.sum(v))!r}, minimum {float(np.min(v)) if v.size else 0.0!r}."
+        minimum = float(np.min(v)) if v.size else 0.0
+        raise parameter_error(
+            "personalization",
+            "finite weights >= 0 with a positive sum",
+            f"sum {float(np.sum(v))!r}, minimum {minimum!r}",
         )
     return v / v.sum()
 
@@ -254,14 +259,13 @@ def stationary_distribution(
     ([0.333333, 0.333333, 0.333333], True)
     """
     alpha = check_damping(damping)
-    if isinstance(tol, bool) or not isinstance(tol, (int, float)) or not (0 < tol < 2):
-        raise ParameterError(f"tol must be a number in (0, 2); got {tol!r}.")
+    tol = float(check_param(tol, "tol", [_WALK_TOL]))
     limit = (
         default_maxiter(alpha, tol) if maxiter is None else check_int(maxiter, "maxiter", minimum=1)
     )
     n = network.n_nodes
     if n == 0:
-        raise ParameterError("network must have at least one node; got an empty network.")
+        raise parameter_error("network", "a network with at least one node", "an empty network")
     v = _personalization(network, personalization)
     weights_t, inv, dangling = transition_parts(network)
     x = v.copy()

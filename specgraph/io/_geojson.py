@@ -52,8 +52,15 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.spatial import cKDTree
 
-from .._validation import check_choice, check_positive_float
-from ..exceptions import InputError, ParameterError
+from .._validation import (
+    Boolean,
+    InstanceOf,
+    NoneOk,
+    check_choice,
+    check_param,
+    check_positive_float,
+)
+from ..exceptions import InputError
 from ..network import Network, affinity_from_distance
 
 __all__ = [
@@ -564,10 +571,8 @@ def read_geojson_lines(
     """
     tolerance = check_positive_float(snap_tolerance, "snap_tolerance", allow_zero=True)
     check_choice(on_invalid, "on_invalid", ("raise", "skip"))
-    if not isinstance(distance, bool):
-        raise ParameterError(f"distance must be True or False; got {distance!r}.")
-    if weight is not None and not isinstance(weight, str):
-        raise ParameterError(f"weight must be a property name (str) or None; got {weight!r}.")
+    check_param(distance, "distance", [Boolean()])
+    check_param(weight, "weight", [NoneOk(), InstanceOf((str,), "a property name (str)")])
     path = Path(path)
     document = _load(path)
     features = _features(document, path)
