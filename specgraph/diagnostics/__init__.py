@@ -5,7 +5,9 @@
 - :mod:`._score`: the scorecard of any (even partial) zoning, with modularity and outliers;
 - :mod:`._compare`: agreement of two zonings (ARI, NMI, variation of information, overlaps);
 - :mod:`._stability`: how much a zoning moves under other seeds and perturbed weights;
-- :mod:`._robustness`: algebraic connectivity, bridges, articulation nodes, bottleneck links.
+- :mod:`._cuts`: bridges and articulation nodes, and what each failure cuts off;
+- :mod:`._resistance`: effective resistance and leverage of every link;
+- :mod:`._robustness`: algebraic connectivity and the ranked bottleneck links, over both.
 """
 
 from ._compare import (
@@ -16,18 +18,10 @@ from ._compare import (
     compare_frames,
     variation_of_information,
 )
+from ._cuts import CutStructure, cut_structure
 from ._quality import boundary_links, check_labels, overall_scores, zone_table
-from ._robustness import (
-    DEFAULT_TOP,
-    EXACT_RESISTANCE_LIMIT,
-    SKETCH_ROWS,
-    CutStructure,
-    LinkResistances,
-    Robustness,
-    cut_structure,
-    effective_resistances,
-    robustness,
-)
+from ._resistance import EXACT_RESISTANCE_LIMIT, SKETCH_ROWS, LinkResistances, effective_resistances
+from ._robustness import DEFAULT_TOP, Robustness, robustness
 from ._score import (
     EXAMPLES_SHOWN,
     OUTLIER_MIN_RATIO,
