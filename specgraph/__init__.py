@@ -8,6 +8,8 @@ The pipeline, one module or subpackage per stage::
     specgraph.io -> Network -> specgraph.operators -> specgraph.eigen
         -> specgraph.zones -> specgraph.diagnostics -> specgraph.export
 
+and :mod:`specgraph.studies` (stability) above zones: a study re-runs zoning.
+
 Zones are decision support only: validate them in a hydraulic, power-flow or
 traffic model and defer to local codes and licensed engineers before acting.
 """
@@ -15,7 +17,7 @@ traffic model and defer to local codes and licensed engineers before acting.
 from importlib.metadata import PackageNotFoundError, version
 
 from . import gallery, interop
-from .diagnostics import boundary_links, compare, score, stability, zone_table
+from .diagnostics import boundary_links, compare, score, zone_table
 from .eigen import EigenResult, smallest_eigenpairs
 from .estimator import ZoneSplitter
 from .exceptions import (
@@ -28,6 +30,7 @@ from .exceptions import (
 from .io import read_edges
 from .network import Network
 from .operators import GraphOperator, laplacian
+from .studies import stability
 from .walks import StationaryResult, stationary_distribution
 from .zones import LocalZone, Zoning, find_zones, local_zone
 

@@ -27,15 +27,12 @@ from . import __version__
 from ._guard import check_memory
 from ._progress import stage_progress, wants_progress
 from .diagnostics import (
-    DEFAULT_REPEATS,
-    DEFAULT_SPREAD,
     DEFAULT_TOP,
     boundary_links,
     compare_frames,
     labels_from_mapping,
     robustness,
     score,
-    stability,
     suggest_zone_counts,
 )
 from .eigen import DEFAULT_TOL, smallest_eigenpairs
@@ -64,6 +61,7 @@ from .io import (
 from .network import Network
 from .operators import laplacian
 from .report import build_report
+from .studies import DEFAULT_REPEATS, DEFAULT_SPREAD, stability
 from .walks import DEFAULT_DAMPING
 from .zones import (
     ASSIGNMENTS,

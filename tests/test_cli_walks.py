@@ -101,7 +101,7 @@ def test_stability_of_a_directed_network(cycles: Path, tmp_path: Path) -> None:
 
 def test_perturbed_directed_network_keeps_its_arcs() -> None:
     from specgraph import Network
-    from specgraph.diagnostics import perturb_weights
+    from specgraph.studies import perturb_weights
 
     net = Network.from_links(["a", "b", "c"], ["b", "c", "a"], [1.0, 2.0, 4.0], directed=True)
     noisy = perturb_weights(net, spread=0.2, rng=0)

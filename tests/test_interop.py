@@ -147,3 +147,99 @@ def test_zones_frame_carries_coordinates_and_sizes():
         frame[["x", "y"]].to_numpy(), [graph.nodes[v]["cell"] for v in graph]
     )
     np.testing.assert_array_equal(frame["size"], [10.0 * v for v in graph])
+
+
+# ------------------------------------------------ one reader behind both constructors
+def _same_network(a: Network, b: Network) -> None:
+    assert (a.adjacency != b.adjacency).nnz == 0
+    assert a.node_ids.tolist() == b.node_ids.tolist()
+    for name in ("sizes", "coordinates"):
+        first, second = getattr(a, name), getattr(b, name)
+        assert (first is None) == (second is None)
+        if first is not None:
+            np.testing.assert_array_equal(first, second)
+    pd.testing.assert_frame_equal(a.link_table, b.link_table)
+    assert dict(a.notes) == dict(b.notes)
+
+
+def _valid_graphs() -> dict[str, tuple[nx.Graph, dict]]:
+    geometric = nx.random_geometric_graph(25, 0.4, seed=2)
+    for u, v in geometric.edges:
+        geometric[u][v]["length"] = 1.0 + (u + v) % 4
+        geometric[u][v]["pipe"] = f"P{u}-{v}"
+    for v in geometric:
+        geometric.nodes[v]["demand"] = float(v % 5)
+    multi = nx.MultiGraph([("a", "b", {"weight": 1.0}), ("a", "b", {"weight": 2.5})])
+    multi.add_edge("b", "c", weight=0.5)
+    unit = nx.barbell_graph(4, 1)
+    nx.set_edge_attributes(unit, 3.0, "weight")  # ignored with weight=None
+    return {
+        "distance-pos-size": (
+            geometric,
+            {"weight": "length", "distance": True, "pos": "pos", "size": "demand"},
+        ),
+        "multigraph": (multi, {}),
+        "weight-none": (unit, {"weight": None}),
+    }
+
+
+@pytest.mark.parametrize("name", ["distance-pos-size", "multigraph", "weight-none"])
+def test_both_constructors_give_the_same_network(name: str) -> None:
+    graph, options = _valid_graphs()[name]
+    _same_network(network_from_graph(graph, **options), Network.from_networkx(graph, **options))
+    if name == "weight-none":
+        # weight=None gives every link weight 1 (reference: networkx with weight=None).
+        expected = nx.to_numpy_array(graph, nodelist=list(graph), weight=None)
+        np.testing.assert_array_equal(
+            dense(network_from_graph(graph, weight=None), [str(v) for v in graph]), expected
+        )
+
+
+def _bad_graphs() -> dict[str, tuple[object, dict]]:
+    def graph(**edge: object) -> nx.Graph:
+        g = nx.Graph()
+        g.add_edge("a", "b", weight=1.0)
+        g.add_edge("b", "c", **edge)
+        return g
+
+    no_size = nx.path_graph(3)
+    nx.set_edge_attributes(no_size, 1.0, "weight")
+    bad_pos = no_size.copy()
+    nx.set_node_attributes(bad_pos, {0: (0, 0), 1: (1, 1), 2: "x"}, "pos")
+    return {
+        "negative": (graph(weight=-2.0), {}),
+        "nan": (graph(weight=float("nan")), {}),
+        "text": (graph(weight="heavy"), {}),
+        "zero-length": (graph(weight=0.0), {"distance": True}),
+        "reserved": (graph(weight=1.0, __source__="x"), {}),
+        "no-size": (no_size, {"size": "people"}),
+        "bad-pos": (bad_pos, {"pos": "pos"}),
+        "not-a-graph": (sp.eye_array(3), {}),
+    }
+
+
+@pytest.mark.parametrize("name", list(_bad_graphs()))
+def test_both_constructors_refuse_the_same_bad_graphs_alike(name: str) -> None:
+    graph, options = _bad_graphs()[name]
+    with pytest.raises((InputError, ParameterError)) as strict:
+        network_from_graph(graph, **options)  # type: ignore[arg-type]
+    with pytest.raises((InputError, ParameterError)) as lenient:
+        Network.from_networkx(graph, **options)  # type: ignore[arg-type]
+    assert type(strict.value) is type(lenient.value)
+    assert str(strict.value) == str(lenient.value)
+
+
+def test_the_two_documented_leniencies_of_from_networkx() -> None:
+    # 1. An edge without the weight attribute counts as 1 (networkx's own default
+    #    edge weight in to_numpy_array); network_from_graph refuses it.
+    graph = nx.Graph([("a", "b", {"weight": 2.0}), ("b", "c", {})])
+    expected = nx.to_numpy_array(graph, nodelist=["a", "b", "c"], weight="weight")
+    np.testing.assert_array_equal(dense(Network.from_networkx(graph), ["a", "b", "c"]), expected)
+    with pytest.raises(InputError, match="has no attribute 'weight'"):
+        network_from_graph(graph)
+    # 2. A graph without edges gives isolated nodes; network_from_graph refuses it.
+    empty = nx.empty_graph(4)
+    net = Network.from_networkx(empty)
+    assert (net.n_nodes, net.n_links, net.n_components) == (4, 0, 4)
+    with pytest.raises(InputError, match="the graph has no edges"):
+        network_from_graph(empty)

@@ -12,7 +12,7 @@ import pytest
 from specgraph import gallery
 from specgraph._progress import count_progress, progress_bar, stage_progress, wants_progress
 from specgraph.cli import main
-from specgraph.diagnostics import stability
+from specgraph.studies import stability
 
 
 class _Terminal(io.StringIO):

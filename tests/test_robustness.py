@@ -28,7 +28,7 @@ import scipy.linalg as la
 from closed_forms import cycle_l, path_l, path_n
 
 from specgraph import Network, ParameterError, gallery
-from specgraph.diagnostics._robustness import (
+from specgraph.diagnostics import (
     SKETCH_ROWS,
     cut_structure,
     effective_resistances,

@@ -10,10 +10,15 @@ tiny label vectors; exact fractions by hand.
 
 from __future__ import annotations
 
+import ast
+import inspect
 import re
-from dataclasses import replace
+import subprocess
+import sys
+from dataclasses import FrozenInstanceError, replace
 from fractions import Fraction
 from itertools import permutations
+from pathlib import Path
 from typing import Any
 
 import networkx as nx
@@ -24,18 +29,22 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import laplacian as csgraph_laplacian
 from sklearn.metrics import adjusted_rand_score
 
+import specgraph.diagnostics
+import specgraph.studies
 from specgraph import Network, find_zones, gallery
-from specgraph.diagnostics._stability import (
+from specgraph.exceptions import ParameterError
+from specgraph.studies import (
     CORE_CONFIDENCE,
+    RESERVED_OPTIONS,
     ROTATION_WARNING,
     UNSTABLE_CORE_SHARE,
-    _zone_figures,
+    ZoningOptions,
     match_zones,
     perturb_weights,
     perturbation_norm,
     stability,
 )
-from specgraph.exceptions import ParameterError
+from specgraph.studies._stability import _zone_figures
 
 REPEATS = 3
 #: Options for tests about the eigengap only (k-means restarts cost more than the rest).
@@ -321,3 +330,101 @@ def test_reference_is_find_zones_with_the_same_seed() -> None:
 def test_bad_parameters_are_named(options: dict, message: str) -> None:
     with pytest.raises(ParameterError, match=re.escape(message)):
         stability(gallery.ring(8), 2, **options)
+
+
+# ------------------------------------------------------------------ options object
+def test_zoning_options_defaults_are_find_zones_defaults() -> None:
+    # Source: find_zones' own signature; every option but the network, count and rng.
+    signature = inspect.signature(find_zones).parameters
+    expected = {name: p.default for name, p in signature.items() if name not in RESERVED_OPTIONS}
+    assert ZoningOptions().keywords() == expected
+
+
+@pytest.mark.parametrize(
+    ("name", "value"),
+    [
+        ("operator", "laplace"),
+        ("assign", "spectral"),
+        ("trees", "drop"),
+        ("eigen_method", "arpack"),
+        ("refine", "yes"),
+        ("damping", 1.5),
+        ("tol", -1.0),
+        ("maxiter", 0),
+    ],
+)
+def test_zoning_options_refuse_what_find_zones_refuses(name: str, value: object) -> None:
+    # Oracle: find_zones' own message for the same value.
+    with pytest.raises(ParameterError) as direct:
+        find_zones(gallery.ring(8), 2, rng=0, **{name: value})
+    with pytest.raises(ParameterError) as held:
+        ZoningOptions(**{name: value})
+    assert str(held.value) == str(direct.value)
+
+
+def test_zoning_options_are_frozen_and_typed_checks_name_the_field() -> None:
+    options = ZoningOptions(assign="qr")
+    with pytest.raises(FrozenInstanceError):
+        options.assign = "kmeans"  # type: ignore[misc]
+    with pytest.raises(ParameterError, match="constraints must be a ZoneConstraints"):
+        ZoningOptions(constraints={"min_size": 3})  # type: ignore[arg-type]
+    with pytest.raises(ParameterError, match="progress must be callable"):
+        ZoningOptions(progress="bar")  # type: ignore[arg-type]
+
+
+def test_options_object_and_dict_give_the_same_study() -> None:
+    net = gallery.grid(5, 6)
+    as_dict = stability(net, 3, repeats=1, zone_options={"assign": "qr"}, rng=4)
+    as_object = stability(net, 3, repeats=1, zone_options=ZoningOptions(assign="qr"), rng=4)
+    for name in ("nodes", "zones", "runs", "bounds"):
+        pd.testing.assert_frame_equal(getattr(as_dict, name), getattr(as_object, name))
+    assert as_dict.reference.decisions["assign"]["choice"] == "qr"
+
+
+# ------------------------------------------------------------------ layering
+def _imported_modules(path: Path, package: str) -> set[str]:
+    """Absolute names of every module imported anywhere in a file (functions included)."""
+    names = set()
+    for node in ast.walk(ast.parse(path.read_text(encoding="utf-8"))):
+        if isinstance(node, ast.Import):
+            names.update(alias.name for alias in node.names)
+        elif isinstance(node, ast.ImportFrom):
+            base = package.split(".")
+            base = base[: len(base) - node.level + 1] if node.level else []
+            module = ".".join([*base, *([node.module] if node.module else [])])
+            names.add(module)
+            names.update(f"{module}.{alias.name}" for alias in node.names)
+    return names
+
+
+def test_diagnostics_never_imports_zones_or_studies() -> None:
+    folder = Path(specgraph.diagnostics.__file__).parent
+    for path in sorted(folder.glob("*.py")):
+        above = {
+            name
+            for name in _imported_modules(path, "specgraph.diagnostics")
+            if name.startswith(("specgraph.zones", "specgraph.studies"))
+        }
+        assert not above, f"{path.name} imports {sorted(above)}"
+    # At run time too: load specgraph.diagnostics without the top package's
+    # __init__ (which imports every stage) and look at sys.modules.
+    code = (
+        "import sys, types; "
+        f"pkg = types.ModuleType('specgraph'); pkg.__path__ = [{str(folder.parent)!r}]; "
+        "sys.modules['specgraph'] = pkg; "
+        "import specgraph.diagnostics; "
+        "print(sorted(m for m in sys.modules if m.startswith(('specgraph.zones', "
+        "'specgraph.studies'))))"
+    )
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert done.stdout.strip() == "[]", done.stdout + done.stderr
+
+
+def test_studies_import_zoning_from_its_public_package() -> None:
+    folder = Path(specgraph.studies.__file__).parent
+    imported = set().union(
+        *(_imported_modules(p, "specgraph.studies") for p in folder.glob("*.py"))
+    )
+    private = {n for n in imported if re.match(r"specgraph\.(zones|diagnostics|eigen)\._", n)}
+    assert not private
+    assert "specgraph.zones.find_zones" in imported

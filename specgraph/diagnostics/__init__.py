@@ -1,11 +1,16 @@
-"""Diagnostics of any zoning, whoever made it: quality, comparison, stability, robustness.
+"""Diagnostics of any zoning, whoever made it: quality, comparison, robustness.
 
 - :mod:`._quality`: the zone table, boundary links and overall scores of a zoning;
 - :mod:`._spectral`: eigengaps, the Cheeger interval, suggested zone counts;
 - :mod:`._score`: the scorecard of any (even partial) zoning, with modularity and outliers;
 - :mod:`._compare`: agreement of two zonings (ARI, NMI, variation of information, overlaps);
-- :mod:`._stability`: how much a zoning moves under other seeds and perturbed weights;
-- :mod:`._robustness`: algebraic connectivity, bridges, articulation nodes, bottleneck links.
+- :mod:`._cuts`: bridges and articulation nodes, and what each failure cuts off;
+- :mod:`._resistance`: effective resistance and leverage of every link;
+- :mod:`._robustness`: algebraic connectivity and the ranked bottleneck links, over both.
+
+Studies that re-run zoning (stability across seeds and weights) live above
+:mod:`specgraph.zones`, in :mod:`specgraph.studies`: diagnostics never call
+:func:`~specgraph.find_zones`.
 """
 
 from ._compare import (
@@ -16,18 +21,10 @@ from ._compare import (
     compare_frames,
     variation_of_information,
 )
+from ._cuts import CutStructure, cut_structure
 from ._quality import boundary_links, check_labels, overall_scores, zone_table
-from ._robustness import (
-    DEFAULT_TOP,
-    EXACT_RESISTANCE_LIMIT,
-    SKETCH_ROWS,
-    CutStructure,
-    LinkResistances,
-    Robustness,
-    cut_structure,
-    effective_resistances,
-    robustness,
-)
+from ._resistance import EXACT_RESISTANCE_LIMIT, SKETCH_ROWS, LinkResistances, effective_resistances
+from ._robustness import DEFAULT_TOP, Robustness, robustness
 from ._score import (
     EXAMPLES_SHOWN,
     OUTLIER_MIN_RATIO,
@@ -41,24 +38,8 @@ from ._score import (
     score,
 )
 from ._spectral import cheeger_bounds, eigengaps, suggest_zone_counts
-from ._stability import (
-    CORE_CONFIDENCE,
-    DEFAULT_REPEATS,
-    DEFAULT_SPREAD,
-    ROTATION_WARNING,
-    UNSTABLE_CORE_SHARE,
-    Stability,
-    ZoneMatch,
-    match_zones,
-    perturb_weights,
-    perturbation_norm,
-    stability,
-)
 
 __all__ = [
-    "CORE_CONFIDENCE",
-    "DEFAULT_REPEATS",
-    "DEFAULT_SPREAD",
     "DEFAULT_TOP",
     "EXACT_RESISTANCE_LIMIT",
     "EXAMPLES_SHOWN",
@@ -66,19 +47,15 @@ __all__ = [
     "OUTLIER_MIN_RATIO",
     "OUTLIER_MIN_ZONES",
     "OUTLIER_Z",
-    "ROTATION_WARNING",
     "SKETCH_ROWS",
     "SPLIT_SHARE",
     "UNASSIGNED",
-    "UNSTABLE_CORE_SHARE",
     "Comparison",
     "CutStructure",
     "LabelCoverage",
     "LinkResistances",
     "Robustness",
     "Scorecard",
-    "Stability",
-    "ZoneMatch",
     "boundary_links",
     "check_labels",
     "cheeger_bounds",
@@ -88,14 +65,10 @@ __all__ = [
     "effective_resistances",
     "eigengaps",
     "labels_from_mapping",
-    "match_zones",
     "outlier_flags",
     "overall_scores",
-    "perturb_weights",
-    "perturbation_norm",
     "robustness",
     "score",
-    "stability",
     "suggest_zone_counts",
     "variation_of_information",
     "zone_table",

@@ -12,6 +12,7 @@ from ._api import (
     choose_method,
     smallest_eigenpairs,
 )
+from ._hierarchy import build_hierarchy
 from ._result import EigenResult
 
 __all__ = [
@@ -19,6 +20,7 @@ __all__ = [
     "DENSE_LIMIT",
     "METHODS",
     "EigenResult",
+    "build_hierarchy",
     "choose_method",
     "smallest_eigenpairs",
 ]

@@ -31,40 +31,32 @@ negligible next to the zonings.
 from __future__ import annotations
 
 import copy
-import inspect
 import logging
 import time
-from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 import pandas as pd
-import scipy.sparse as sp
-from scipy.optimize import linear_sum_assignment
-from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 from sklearn.metrics import adjusted_rand_score
 
 from .._progress import count_progress
 from .._validation import check_int, check_positive_float, check_rng
-from ..exceptions import ConvergenceError, ParameterError
+from ..exceptions import ParameterError
 from ..network import Network
-from ..operators import laplacian
-
-if TYPE_CHECKING:
-    from ..zones import Zoning
+from ..zones import Zoning, find_zones
+from ._matching import match_zones
+from ._options import ZoningOptions
+from ._perturb import perturb_weights, perturbation_norm
 
 __all__ = [
     "CORE_CONFIDENCE",
     "DEFAULT_REPEATS",
     "DEFAULT_SPREAD",
-    "NORM_RTOL",
     "ROTATION_WARNING",
     "UNSTABLE_CORE_SHARE",
     "Stability",
-    "ZoneMatch",
-    "match_zones",
-    "perturb_weights",
-    "perturbation_norm",
     "stability",
 ]
 
@@ -96,43 +88,6 @@ UNSTABLE_CORE_SHARE = 0.5
 #: (``r / (1 - r)`` with Weyl's inequality, ``2 r`` of Yu, Wang and Samworth)
 #: reach 1, that is, they no longer constrain the subspace at all.
 ROTATION_WARNING = 0.5
-
-#: Relative accuracy asked of the Lanczos estimate of ``||E||``: the warning
-#: compares it with a threshold, so three digits are plenty.
-NORM_RTOL = 1e-3
-
-#: Below this many rows the norm is taken from a dense matrix: ARPACK needs a
-#: few more rows than its Krylov basis, and a dense norm is cheaper anyway.
-DENSE_NORM_ROWS = 10
-
-#: ``find_zones`` options a caller may not pass through ``zone_options``:
-#: this module sets them itself.
-_RESERVED = ("network", "zones", "rng")
-
-
-# ----------------------------------------------------------------- results
-@dataclass(frozen=True, eq=False)
-class ZoneMatch:
-    """One run's zones matched to the reference zones.
-
-    Attributes
-    ----------
-    mapping : ndarray of int, shape (k_ref,)
-        Run zone matched to each reference zone, ``-1`` when the run has fewer
-        zones and this one was left unmatched.
-    stayed : ndarray of bool, shape (n_nodes,)
-        Whether each node's run zone is the one matched to its reference zone.
-    overlap : ndarray of int, shape (k_ref,)
-        Nodes each reference zone shares with its matched run zone.
-    jaccard : ndarray of float, shape (k_ref,)
-        ``|S ∩ T| / |S ∪ T|`` of each reference zone ``S`` and its matched
-        zone ``T`` (0 when unmatched).
-    """
-
-    mapping: np.ndarray
-    stayed: np.ndarray
-    overlap: np.ndarray
-    jaccard: np.ndarray
 
 
 @dataclass(frozen=True, eq=False)
@@ -188,247 +143,8 @@ class Stability:
     reference: Zoning
 
 
-# --------------------------------------------------------------- building blocks
-def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Network:
-    """The network with every link's affinity multiplied by log-normal noise.
-
-    Each undirected link gets one factor :math:`\\exp(s Z)`, :math:`Z \\sim
-    N(0, 1)`, applied to both of its stored entries, so the adjacency stays
-    exactly symmetric. In a directed network each arc gets its own factor and
-    the arcs are kept. Node ids, sizes and coordinates are kept.
-
-    Multiplicative noise because affinities are positive and scale-free: a
-    factor keeps every weight positive (additive noise could make one zero or
-    negative, which is not a link), perturbs a 0.01 and a 100 by the same
-    relative amount, and does not depend on the unit the weights came in. The
-    factor has median 1; its mean :math:`e^{s^2/2}` is a global scale, which
-    leaves the normalized Laplacian unchanged.
-
-    Parameters
-    ----------
-    network : Network
-    spread : float
-        Standard deviation :math:`s \\ge 0` of the log of the factor.
-    rng : None, int or numpy.random.Generator
-
-    Returns
-    -------
-    Network
-
-    Examples
-    --------
-    >>> from specgraph import gallery
-    >>> noisy = perturb_weights(gallery.ring(5), spread=0.1, rng=0)
-    >>> bool((noisy.adjacency != noisy.adjacency.T).nnz == 0)
-    True
-    >>> noisy.adjacency.nnz == gallery.ring(5).adjacency.nnz
-    True
-    """
-    spread = check_positive_float(spread, "spread", allow_zero=True)
-    generator = check_rng(rng)
-    notes = {**network.notes, "weight_noise_spread": spread}
-    if network.arcs is not None:
-        # A directed network: every arc (each direction of a two-way link is an arc of
-        # its own) gets its factor; the adjacency is again the arcs' symmetrized sum.
-        arcs = network.arcs.copy()
-        arcs.data = arcs.data * np.exp(spread * generator.standard_normal(arcs.data.size))
-        return Network(
-            sp.csr_array(arcs + arcs.T),
-            network.node_ids,
-            coordinates=network.coordinates,
-            sizes=network.sizes,
-            notes=notes,
-            arcs=arcs,
-        )
-    upper = sp.triu(network.adjacency, k=1, format="coo")
-    data = upper.data * np.exp(spread * generator.standard_normal(upper.data.size))
-    n = network.n_nodes
-    adjacency = sp.coo_array(
-        (
-            np.concatenate([data, data]),
-            (np.concatenate([upper.row, upper.col]), np.concatenate([upper.col, upper.row])),
-        ),
-        shape=(n, n),
-    ).tocsr()
-    return Network(
-        adjacency,
-        network.node_ids,
-        coordinates=network.coordinates,
-        sizes=network.sizes,
-        notes=notes,
-    )
-
-
-def perturbation_norm(
-    network: Network,
-    perturbed: Network,
-    *,
-    kind: str = "normalized",
-    nodes: np.ndarray | None = None,
-    rng: Any = None,
-) -> float:
-    """Spectral norm of the change of a graph operator between two weightings.
-
-    Computes :math:`\\|M(\\tilde A) - M(A)\\|_2` for the operator ``kind`` of
-    :func:`specgraph.laplacian` (for ``'random_walk'``, its symmetric similar
-    matrix, the one the eigen-solvers work on), restricted to the rows and
-    columns ``nodes`` (a connected component: the operators are block
-    diagonal in components). The difference is symmetric, so its 2-norm is
-    its eigenvalue of largest magnitude, found by Lanczos (ARPACK through
-    :func:`scipy.sparse.linalg.eigsh`) to :data:`NORM_RTOL`.
-
-    Parameters
-    ----------
-    network, perturbed : Network
-        The same nodes and links, different affinities.
-    kind : str, default='normalized'
-        Operator kind.
-    nodes : ndarray of int, optional
-        Rows to restrict to; all rows when None.
-    rng : None, int or numpy.random.Generator
-        Seeds the Lanczos start vector.
-
-    Returns
-    -------
-    float
-
-    Raises
-    ------
-    ParameterError
-        When the two networks differ in size.
-    ConvergenceError
-        When Lanczos finds no eigenvalue at all (``partial`` is None).
-
-    Examples
-    --------
-    >>> from specgraph import gallery
-    >>> net = gallery.grid(4, 4)
-    >>> perturbation_norm(net, net)
-    0.0
-    """
-    if perturbed.n_nodes != network.n_nodes:
-        raise ParameterError(
-            f"perturbed must have the {network.n_nodes} nodes of network; "
-            f"got {perturbed.n_nodes} nodes."
-        )
-    before = laplacian(network, kind=kind)  # type: ignore[arg-type]
-    after = laplacian(perturbed, kind=kind)  # type: ignore[arg-type]
-    n = network.n_nodes
-    rows = np.arange(n) if nodes is None else np.asarray(nodes, dtype=np.int64)
-    m = rows.size
-    if before.low_rank is None and after.low_rank is None:
-        diff = sp.csr_array(after.matrix - before.matrix)
-        if m < n:
-            diff = diff[rows][:, rows]
-        if diff.nnz == 0:
-            return 0.0
-        operator: Any = diff
-    else:
-
-        def product(x: np.ndarray) -> np.ndarray:
-            full = np.zeros((n, *x.shape[1:]))
-            full[rows] = x
-            return (after.apply(full) - before.apply(full))[rows]
-
-        operator = LinearOperator((m, m), matvec=product, matmat=product, dtype=np.float64)
-    if m < DENSE_NORM_ROWS:
-        dense = operator.toarray() if sp.issparse(operator) else operator.matmat(np.eye(m))
-        return float(np.linalg.norm(dense, 2))
-    start = check_rng(rng).standard_normal(m)
-    try:
-        values = eigsh(
-            operator, k=1, which="LM", tol=NORM_RTOL, v0=start, return_eigenvectors=False
-        )
-    except ArpackNoConvergence as exc:
-        if not len(exc.eigenvalues):
-            raise ConvergenceError(
-                "perturbation_norm: Lanczos found no eigenvalue of the operator change.",
-                partial=None,
-            ) from exc
-        values = exc.eigenvalues  # a lower bound on the norm; logged
-        logger.warning("perturbation norm from a partial Lanczos run: %s", values)
-    return float(np.max(np.abs(values)))
-
-
-def match_zones(reference: np.ndarray, labels: np.ndarray) -> ZoneMatch:
-    """Match a run's zones to reference zones by maximum total overlap.
-
-    The contingency table :math:`C_{st} = |S_s \\cap T_t|` is built in one
-    ``np.bincount``; the one-to-one matching that maximizes the total overlap
-    is the linear assignment problem on it (Kuhn's Hungarian method, here
-    :func:`scipy.optimize.linear_sum_assignment`). The two zonings may have
-    different zone counts: the extra zones of the larger one stay unmatched.
-
-    Parameters
-    ----------
-    reference, labels : ndarray of int, shape (n_nodes,)
-        Zones numbered from 0.
-
-    Returns
-    -------
-    ZoneMatch
-
-    Examples
-    --------
-    >>> m = match_zones(np.array([0, 0, 0, 1, 1, 2]), np.array([1, 1, 0, 0, 0, 0]))
-    >>> m.mapping.tolist(), m.stayed.tolist()
-    ([1, 0, -1], [True, True, False, True, True, False])
-    """
-    reference = np.asarray(reference, dtype=np.int64)
-    labels = np.asarray(labels, dtype=np.int64)
-    if reference.shape != labels.shape or reference.ndim != 1:
-        raise ParameterError(
-            f"labels must have the shape of reference {reference.shape}; got {labels.shape}."
-        )
-    for name, values in (("reference", reference), ("labels", labels)):
-        if values.size and values.min() < 0:
-            raise ParameterError(f"{name} must hold zones >= 0; got {values.min()}.")
-    k_ref = int(reference.max()) + 1 if reference.size else 0
-    k_run = int(labels.max()) + 1 if labels.size else 0
-    table = np.bincount(reference * k_run + labels, minlength=k_ref * k_run)
-    table = table.reshape(k_ref, k_run)
-    rows, cols = linear_sum_assignment(table, maximize=True)
-    mapping = np.full(k_ref, -1, dtype=np.int64)
-    mapping[rows] = cols
-    overlap = np.zeros(k_ref, dtype=np.int64)
-    overlap[rows] = table[rows, cols]
-    ref_size = table.sum(axis=1)
-    run_size = table.sum(axis=0)
-    union = ref_size.astype(np.float64)
-    union[rows] += run_size[cols] - overlap[rows]
-    jaccard = np.divide(overlap, union, out=np.zeros(k_ref), where=union > 0)
-    stayed = labels == mapping[reference]
-    return ZoneMatch(mapping=mapping, stayed=stayed, overlap=overlap, jaccard=jaccard)
-
-
 # ------------------------------------------------------------------ steps
-def _check_options(zone_options: dict[str, Any] | None) -> dict[str, Any]:
-    """``zone_options`` as a dict of :func:`find_zones` keyword options."""
-    from ..zones import find_zones
-
-    if zone_options is None:
-        return {}
-    if not isinstance(zone_options, dict):
-        raise ParameterError(
-            f"zone_options must be a dict of find_zones options; got {zone_options!r}."
-        )
-    allowed = sorted(set(inspect.signature(find_zones).parameters) - set(_RESERVED))
-    for key in zone_options:
-        if key in _RESERVED:
-            raise ParameterError(
-                f"zone_options must not hold {key!r} (stability sets it itself); "
-                f"got zone_options with keys {sorted(zone_options)}."
-            )
-        if key not in allowed:
-            raise ParameterError(
-                f"zone_options keys must be find_zones options ({', '.join(allowed)}); got {key!r}."
-            )
-    return dict(zone_options)
-
-
 def _check_reference(reference: Any, network: Network) -> Zoning:
-    from ..zones import Zoning
-
     if not isinstance(reference, Zoning):
         raise ParameterError(f"reference must be a Zoning or None; got {type(reference)!r}.")
     same = reference.network.n_nodes == network.n_nodes and np.array_equal(
@@ -591,6 +307,116 @@ def _summary(
     }
 
 
+# ------------------------------------------------------------------ runs
+@dataclass(frozen=True, eq=False)
+class _Streams:
+    """The random streams of one study, all from the caller's ``rng``.
+
+    ``zoning`` is the reference's own stream, copied before anything draws
+    from it: the perturbed runs replay it so that only the weights differ.
+    The seed runs, the noise draws and the norm estimate get children
+    spawned from ``rng`` (:meth:`numpy.random.Generator.spawn`), in that order.
+    """
+
+    zoning: np.random.Generator
+    seeds: list[np.random.Generator]
+    noise: list[np.random.Generator]
+    norm: np.random.Generator
+
+    @classmethod
+    def spawn(cls, generator: np.random.Generator, repeats: int) -> _Streams:
+        zoning = copy.deepcopy(generator)
+        children = generator.spawn(2 * repeats + 1)
+        return cls(zoning, children[:repeats], children[repeats : 2 * repeats], children[-1])
+
+    def replay(self) -> np.random.Generator:
+        """A fresh copy of the reference's stream."""
+        return copy.deepcopy(self.zoning)
+
+
+def _zoner(
+    zones: int | str | range, options: ZoningOptions, advance: Callable[[], None]
+) -> Callable[[Network, np.random.Generator], Zoning]:
+    """One run: :func:`~specgraph.find_zones` with the study's options, counted and logged."""
+    keywords = options.keywords()
+
+    def zone(net: Network, stream: np.random.Generator) -> Zoning:
+        start = time.perf_counter()
+        result = find_zones(net, zones, rng=stream, **keywords)
+        advance()
+        logger.info(
+            "stability run: %d zones in %.2f s", result.n_zones, time.perf_counter() - start
+        )
+        return result
+
+    return zone
+
+
+@dataclass(eq=False)
+class _Tally:
+    """What the runs so far say against the reference: stays per node, Jaccard sums, rows."""
+
+    reference: np.ndarray
+    stays: dict[str, np.ndarray]
+    jaccard: np.ndarray
+    records: list[dict[str, Any]] = field(default_factory=list)
+
+    @classmethod
+    def of(cls, reference: np.ndarray, n_nodes: int) -> _Tally:
+        stays = {"seed": np.zeros(n_nodes), "perturbed": np.zeros(n_nodes)}
+        return cls(reference, stays, np.zeros(int(reference.max()) + 1))
+
+    def add(self, kind: str, run: Zoning) -> None:
+        match = match_zones(self.reference, run.labels)
+        self.stays[kind] += match.stayed
+        self.jaccard += match.jaccard
+        self.records.append(
+            {
+                "run": len(self.records),
+                "kind": kind,
+                "zones": run.n_zones,
+                "ari": float(adjusted_rand_score(self.reference, run.labels)),
+                "stayed": float(match.stayed.mean()),
+            }
+        )
+
+
+def _result(
+    network: Network,
+    reference: Zoning,
+    tally: _Tally,
+    bounds: pd.DataFrame,
+    dk_notes: list[str],
+    repeats: int,
+    spread: float,
+) -> Stability:
+    """The per-node, per-zone and per-run tables, the summary and the warnings."""
+    stays = tally.stays
+    confidence = (stays["seed"] + stays["perturbed"]) / (2 * repeats)
+    nodes = pd.DataFrame(
+        {
+            "node": network.node_ids,
+            "zone": tally.reference,
+            "confidence": confidence,
+            "seed_confidence": stays["seed"] / repeats,
+            "perturbed_confidence": stays["perturbed"] / repeats,
+            "core": confidence >= CORE_CONFIDENCE,
+        }
+    )
+    zone_frame = _zone_figures(tally.reference, confidence, tally.jaccard / (2 * repeats))
+    runs = pd.DataFrame(tally.records, columns=["run", "kind", "zones", "ari", "stayed"])
+    warnings = ([_unstable_message(zone_frame)] if zone_frame["unstable"].any() else []) + dk_notes
+    return Stability(
+        nodes=nodes,
+        zones=zone_frame,
+        runs=runs,
+        bounds=bounds,
+        overall=_summary(runs, nodes, zone_frame, bounds, repeats, spread),
+        warnings=tuple(warnings),
+        reference=reference,
+    )
+
+
 # --------------------------------------------------------------------- entry
 def stability(
     network: Network,
@@ -598,7 +424,7 @@ def stability(
     *,
     repeats: int = DEFAULT_REPEATS,
     spread: float = DEFAULT_SPREAD,
-    zone_options: dict[str, Any] | None = None,
+    zone_options: ZoningOptions | Mapping[str, Any] | None = None,
     reference: Zoning | None = None,
     rng: Any = None,
     progress: bool = False,
@@ -619,13 +445,15 @@ def stability(
         Log-normal spread of the weight noise (:func:`perturb_weights`,
         :data:`DEFAULT_SPREAD`); 0 makes the perturbed runs repeat the
         reference.
-    zone_options : dict, optional
-        Keyword options of :func:`specgraph.find_zones` (``constraints``,
-        ``operator``, ``assign``...) used by every run; not ``rng``.
+    zone_options : ZoningOptions or dict, optional
+        Options of :func:`specgraph.find_zones` (``constraints``,
+        ``operator``, ``assign``...) used by every run: a
+        :class:`~specgraph.studies.ZoningOptions`, or a dict of its field
+        names (not ``rng``), checked by :meth:`ZoningOptions.from_mapping`.
     reference : Zoning, optional
         The zoning to judge; when None, :func:`~specgraph.find_zones` with
         ``rng`` on the network as given (the same zoning the caller gets from
-        ``find_zones(network, zones, rng=rng, **zone_options)``).
+        ``find_zones(network, zones, rng=rng, **options.keywords())``).
     rng : None, int or numpy.random.Generator
         Seeds everything: the reference, the seeds of the seed runs (spawned
         with :meth:`numpy.random.Generator.spawn`), the noise, and the
@@ -701,90 +529,26 @@ def stability(
     >>> result.overall["seed_ari_mean"], result.warnings
     (1.0, ())
     """
-    from ..zones import find_zones
-
     repeats = check_int(repeats, "repeats", minimum=1)
     spread = check_positive_float(spread, "spread", allow_zero=True)
-    options = _check_options(zone_options)
+    options = ZoningOptions.from_mapping(zone_options, argument="zone_options", caller="stability")
     if reference is not None:
         reference = _check_reference(reference, network)
-    generator = check_rng(rng)
-    # The reference's own stream, copied before anything draws from it: the
-    # perturbed runs replay it so that only the weights differ.
-    zoning_stream = copy.deepcopy(generator)
-    children = generator.spawn(2 * repeats + 1)
-    seed_streams, noise_streams, norm_stream = (
-        children[:repeats],
-        children[repeats : 2 * repeats],
-        children[-1],
-    )
-
+    streams = _Streams.spawn(check_rng(rng), repeats)
     runs_due = 2 * repeats + (1 if reference is None else 0)
+    bounds: pd.DataFrame | None = None
+    dk_notes: list[str] = []
     with count_progress(runs_due, what="stability runs", enabled=progress) as advance:
-
-        def zone(net: Network, stream: np.random.Generator) -> Zoning:
-            start = time.perf_counter()
-            result = find_zones(net, zones, rng=stream, **options)
-            advance()
-            logger.info(
-                "stability run: %d zones in %.2f s", result.n_zones, time.perf_counter() - start
-            )
-            return result
-
+        zone = _zoner(zones, options, advance)
         if reference is None:
-            reference = zone(network, copy.deepcopy(zoning_stream))
-        ref_labels = reference.labels
-        k_ref = int(ref_labels.max()) + 1
-        stays = {"seed": np.zeros(network.n_nodes), "perturbed": np.zeros(network.n_nodes)}
-        jaccard = np.zeros(k_ref)
-        records: list[dict[str, Any]] = []
-        bounds: pd.DataFrame | None = None
-        dk_notes: list[str] = []
-
-        def record(kind: str, run: Zoning) -> None:
-            match = match_zones(ref_labels, run.labels)
-            stays[kind] += match.stayed
-            jaccard[:] += match.jaccard
-            records.append(
-                {
-                    "run": len(records),
-                    "kind": kind,
-                    "zones": run.n_zones,
-                    "ari": float(adjusted_rand_score(ref_labels, run.labels)),
-                    "stayed": float(match.stayed.mean()),
-                }
-            )
-
-        for stream in seed_streams:
-            record("seed", zone(network, stream))
-        for stream in noise_streams:
+            reference = zone(network, streams.replay())
+        tally = _Tally.of(reference.labels, network.n_nodes)
+        for stream in streams.seeds:
+            tally.add("seed", zone(network, stream))
+        for stream in streams.noise:
             noisy = perturb_weights(network, spread=spread, rng=stream)
-            if bounds is None:
-                bounds, dk_notes = _davis_kahan(reference, noisy, spread, norm_stream)
-            record("perturbed", zone(noisy, copy.deepcopy(zoning_stream)))
-
+            if bounds is None:  # one draw is enough for the operator change
+                bounds, dk_notes = _davis_kahan(reference, noisy, spread, streams.norm)
+            tally.add("perturbed", zone(noisy, streams.replay()))
     assert bounds is not None  # repeats >= 1
-
-    confidence = (stays["seed"] + stays["perturbed"]) / (2 * repeats)
-    nodes = pd.DataFrame(
-        {
-            "node": network.node_ids,
-            "zone": ref_labels,
-            "confidence": confidence,
-            "seed_confidence": stays["seed"] / repeats,
-            "perturbed_confidence": stays["perturbed"] / repeats,
-            "core": confidence >= CORE_CONFIDENCE,
-        }
-    )
-    zone_frame = _zone_figures(ref_labels, confidence, jaccard / (2 * repeats))
-    runs = pd.DataFrame(records, columns=["run", "kind", "zones", "ari", "stayed"])
-    warnings = ([_unstable_message(zone_frame)] if zone_frame["unstable"].any() else []) + dk_notes
-    return Stability(
-        nodes=nodes,
-        zones=zone_frame,
-        runs=runs,
-        bounds=bounds,
-        overall=_summary(runs, nodes, zone_frame, bounds, repeats, spread),
-        warnings=tuple(warnings),
-        reference=reference,
-    )
+    return _result(network, reference, tally, bounds, dk_notes, repeats, spread)
