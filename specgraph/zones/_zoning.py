@@ -98,6 +98,11 @@ class ComponentSolve:
         }
         object.__setattr__(self, "eigen", replace(eig, **frozen))
 
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
+        self.__dict__.update(state)
+        self.__post_init__()
+
 
 @dataclass(frozen=True, eq=False)
 class Zoning:
@@ -156,6 +161,11 @@ class Zoning:
             object.__setattr__(self, name, read_only(dict(getattr(self, name))))
         object.__setattr__(self, "solves", tuple(self.solves))
         object.__setattr__(self, "warnings", tuple(self.warnings))
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
+        self.__dict__.update(state)
+        self.__post_init__()
 
     @property
     def n_zones(self) -> int:
