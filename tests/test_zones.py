@@ -9,6 +9,8 @@ with networkx's ``conductance``, ``cut_size`` and ``normalized_cut_size``.
 from __future__ import annotations
 
 import itertools
+import json
+import pickle
 
 import networkx as nx
 import numpy as np
@@ -331,3 +333,61 @@ def test_allocate_zones_invariants(components, data) -> None:
     assert counts.sum() == k
     assert np.all(counts >= 1)
     assert np.all(counts <= nodes)
+
+
+# --------------------------------------------------------- read-only zoning
+@pytest.fixture(scope="module")
+def barbell_zoning():
+    # Two 5-cliques joined by one link: two zones, cut at the bridge (the eigengap after
+    # the second eigenvalue of a barbell is large; Chung 1997, ch. 1, from memory).
+    return find_zones(gallery.barbell(5), "auto", rng=0)
+
+
+def test_zoning_labels_are_read_only(barbell_zoning) -> None:
+    zoning = barbell_zoning
+    before = zoning.labels.copy()
+    with pytest.raises(ValueError, match="read-only"):
+        zoning.labels[0] = 7
+    np.testing.assert_array_equal(zoning.labels, before)
+    for solve in zoning.solves:
+        with pytest.raises(ValueError, match="read-only"):
+            solve.nodes[0] = 1
+        with pytest.raises(ValueError, match="read-only"):
+            solve.eigen.vectors[0, 0] = 1.0
+
+
+@pytest.mark.parametrize(
+    "change",
+    [
+        pytest.param(lambda z: z.parameters.__setitem__("tol", 1.0), id="set-parameter"),
+        pytest.param(lambda z: z.parameters.pop("tol"), id="pop-parameter"),
+        pytest.param(lambda z: z.scores.update(zones=3), id="update-scores"),
+        pytest.param(lambda z: z.decisions["operator"].clear(), id="clear-nested-decision"),
+        pytest.param(
+            lambda z: z.decisions["zone_count"]["evidence"].append({}), id="append-nested-list"
+        ),
+    ],
+)
+def test_zoning_records_refuse_changes(barbell_zoning, change) -> None:
+    zoning = barbell_zoning
+    before = json.dumps(zoning.decisions, sort_keys=True), dict(zoning.parameters)
+    with pytest.raises(TypeError, match="read-only"):
+        change(zoning)
+    assert (json.dumps(zoning.decisions, sort_keys=True), dict(zoning.parameters)) == before
+
+
+def test_zoning_records_read_and_serialize_like_dicts(barbell_zoning) -> None:
+    zoning = barbell_zoning
+    assert isinstance(zoning.parameters, dict)
+    assert zoning.parameters["zones"] == "auto"
+    assert zoning.decisions["zone_count"]["choice"] == 2
+    # json.dumps and pickle see plain dicts; a copy is an ordinary, writable dict.
+    assert json.loads(json.dumps(zoning.parameters)) == dict(zoning.parameters)
+    again = pickle.loads(pickle.dumps(zoning))
+    np.testing.assert_array_equal(again.labels, zoning.labels)
+    # (compared as JSON text: the count evidence holds NaN, which is unequal to itself)
+    assert json.dumps(again.decisions) == json.dumps(zoning.decisions)
+    assert not again.labels.flags.writeable
+    copied = dict(zoning.parameters)
+    copied["tol"] = 1.0
+    assert zoning.parameters["tol"] != 1.0

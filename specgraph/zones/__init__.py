@@ -40,6 +40,7 @@ from ._local import (
     local_zone,
     personalized_push,
 )
+from ._operator import OperatorChoice, choose_operator
 from ._refine import Refinement, normalized_cut, refine_boundary
 from ._sweep import SweepCut, sweep_cut
 from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
@@ -71,6 +72,7 @@ __all__ = [
     "Contraction",
     "Enforcement",
     "LocalZone",
+    "OperatorChoice",
     "PushResult",
     "Refinement",
     "ResolvedConstraints",
@@ -85,6 +87,7 @@ __all__ = [
     "balance_sizes",
     "bisection_labels",
     "choose_assignment",
+    "choose_operator",
     "choose_zone_count",
     "constraint_violations",
     "contract_links",

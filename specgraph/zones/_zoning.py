@@ -49,6 +49,8 @@ from ._constraints import (
 )
 from ._count import choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
+from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
+from ._readonly import read_only
 from ._refine import normalized_cut, refine_boundary
 from ._trees import MIN_TREE_SHARE, core_and_trees, trees_worth_stripping
 
@@ -65,19 +67,6 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-#: Operators ``find_zones`` can embed with (besides ``"auto"``).
-OPERATOR_KINDS = (
-    "normalized",
-    "random_walk",
-    "combinatorial",
-    "regularized",
-    "bethe_hessian",
-    "directed",
-)
-#: Operators whose eigenvectors embed like the normalized Laplacian's (the
-#: directed Laplacian is the normalized Laplacian of the symmetrized
-#: stationary flow, :func:`specgraph.laplacian`).
-NORMALIZED_LIKE = ("normalized", "random_walk", "directed")
 #: Assignment methods (besides ``"auto"``).
 ASSIGNMENTS = ("kmeans", "qr", "bisection")
 #: Treatments of dangling trees (besides ``"auto"``).
@@ -91,12 +80,28 @@ QR_SAMPLE_ROWS = 200_000
 
 @dataclass(frozen=True, eq=False)
 class ComponentSolve:
-    """The eigen-solve of one connected component (of the merged network)."""
+    """The eigen-solve of one connected component (of the merged network).
+
+    ``nodes`` and the eigen-solve's arrays are read-only views.
+    """
 
     component: int
     nodes: np.ndarray
     zones: int
     eigen: EigenResult
+
+    def __post_init__(self) -> None:
+        eig = self.eigen
+        object.__setattr__(self, "nodes", read_only(np.asarray(self.nodes)))
+        frozen = {
+            name: read_only(getattr(eig, name)) for name in ("values", "vectors", "residuals")
+        }
+        object.__setattr__(self, "eigen", replace(eig, **frozen))
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
+        self.__dict__.update(state)
+        self.__post_init__()
 
 
 @dataclass(frozen=True, eq=False)
@@ -125,6 +130,19 @@ class Zoning:
         with a ``"reason"`` sentence and its figures.
     warnings : tuple of str
         What the user should know (components, raised zone counts...).
+
+    Notes
+    -----
+    A zoning is read-only, not only its attributes: ``labels`` (and the
+    arrays of :attr:`solves`) are read-only views, so ``zoning.labels[0] = 7``
+    raises ``ValueError``; ``scores``, ``parameters`` and ``decisions`` (and
+    the dicts and lists inside them) refuse changes with ``TypeError``. The
+    records are ``dict`` and ``list`` subclasses, so they read, compare and
+    serialize (``json.dumps``, :func:`specgraph.export.run_record`) like
+    plain ones; to change one, copy it first (``dict(zoning.parameters)``,
+    ``zoning.labels.copy()``). The tables ``zones`` and ``boundary`` are
+    pandas DataFrames, which cannot be made read-only: treat them as such
+    and work on ``.copy()``.
     """
 
     network: Network
@@ -136,6 +154,18 @@ class Zoning:
     parameters: dict[str, Any]
     decisions: dict[str, dict[str, Any]] = field(default_factory=dict)
     warnings: tuple[str, ...] = field(default=())
+
+    def __post_init__(self) -> None:
+        object.__setattr__(self, "labels", read_only(np.asarray(self.labels)))
+        for name in ("scores", "parameters", "decisions"):
+            object.__setattr__(self, name, read_only(dict(getattr(self, name))))
+        object.__setattr__(self, "solves", tuple(self.solves))
+        object.__setattr__(self, "warnings", tuple(self.warnings))
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
+        self.__dict__.update(state)
+        self.__post_init__()
 
     @property
     def n_zones(self) -> int:
@@ -421,29 +451,6 @@ def _assign_component(
     return np.asarray(labels, dtype=np.int64), eig, {"choice": method, "reason": reason}
 
 
-def _operator_choice(
-    operator: str, merged_trees: bool, directed: bool
-) -> tuple[str, dict[str, Any]]:
-    if operator != "auto":
-        return operator, {"choice": operator, "reason": "asked"}
-    if directed:
-        reason = (
-            "the directed Laplacian (Chung 2005): the network was read with link directions, "
-            "so zones are judged by the stationary flow of a random walk that follows them"
-        )
-        return "directed", {"choice": "directed", "reason": reason}
-    reason = (
-        "the normalized Laplacian: its small eigenvalues bound the conductance of the best "
-        "zones (Cheeger); "
-        + (
-            "with dangling trees attached it no longer localizes on branches"
-            if merged_trees
-            else "the network has few dangling trees, so it does not localize on branches"
-        )
-    )
-    return "normalized", {"choice": "normalized", "reason": reason}
-
-
 def _check_spec(zones: Any, n: int) -> int | str | range:
     if isinstance(zones, str):
         spec = parse_zone_spec(zones)
@@ -562,6 +569,81 @@ def find_zones(
     >>> zoning.boundary[["source", "target"]].to_numpy().tolist()
     [['4', '5']]
     """
+    spec, damping, generator = _checked_options(
+        network, zones, operator, assign, trees, eigen_method, refine, damping, rng
+    )
+    stage = progress if progress is not None else _no_progress
+    rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
+    decisions: dict[str, dict[str, Any]] = {}
+    stage("solving")
+
+    # Steps 2-3: merge what must stay together, choose the operator and the count.
+    k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
+    tree_pairs, decisions["trees"] = _tree_pairs(network, rules, trees, k_hint)
+    merged = _merge(network, rules, np.concatenate([rules.keep_pairs, tree_pairs]))
+    work = merged.network
+    choice = choose_operator(
+        operator, directed=network.directed, trees_attached=tree_pairs.size > 0
+    )
+    decisions["operator"] = choice.as_decision()
+    solver = _SolveOptions(choice.kind, eigen_method, tol, maxiter, generator, damping)
+    k, decisions["zone_count"], known = _choose_count(work, spec, merged.rules, solver)
+    per_component, notes = _zones_per_component(work, min(k, work.n_nodes))
+
+    # Step 4: solve, embed and assign each component.
+    raw, solves, methods = _zone_components(work, per_component, assign, solver, known)
+    if methods:
+        decisions["assign"] = _summarize_methods(methods)
+    if choice.kind == "directed":
+        decisions["directed"] = _directed_record(damping, solver.records)
+
+    # Step 5: the user's rules, then boundary refinement.
+    stage("constraints")
+    labels_w, decisions["constraints"] = _enforce(work, raw, merged, generator)
+    if refine:
+        stage("refining")
+        labels_w, decisions["refinement"] = _refine(network, merged, labels_w, generator)
+
+    # Step 6: back to nodes, numbered by size, with the zone table and boundary.
+    labels = number_by_size(labels_w[merged.groups], network.node_weights)
+    table = zone_table(network, labels)
+    parameters = {
+        "zones": spec if not isinstance(spec, range) else f"{spec.start}:{spec.stop - 1}",
+        "operator": operator,
+        "assign": assign,
+        "trees": trees,
+        "refine": refine,
+        "constraints": _constraint_record(rules),
+        "eigen_method": eigen_method,
+        "tol": tol,
+        "maxiter": maxiter,
+        **({"damping": damping} if choice.kind == "directed" else {}),
+    }
+    return Zoning(
+        network=network,
+        labels=labels,
+        zones=table,
+        boundary=boundary_links(network, labels),
+        solves=tuple(solves),
+        scores=overall_scores(table),
+        parameters=parameters,
+        decisions=decisions,
+        warnings=tuple(notes),
+    )
+
+
+def _checked_options(
+    network: Network,
+    zones: Any,
+    operator: str,
+    assign: str,
+    trees: str,
+    eigen_method: str,
+    refine: Any,
+    damping: float,
+    rng: Any,
+) -> tuple[int | str | range, float, np.random.Generator]:
+    """Step 1 of :func:`find_zones`: every option checked; the zone spec, damping and rng."""
     if network.n_nodes == 0:
         raise ParameterError("network must have at least one node; got an empty network.")
     spec = _check_spec(zones, network.n_nodes)
@@ -577,21 +659,17 @@ def find_zones(
             "operator='directed' needs a directed network (read with directed=True, which "
             "keeps the arcs); got an undirected network."
         )
-    generator = check_rng(rng)
-    stage = progress if progress is not None else _no_progress
-    rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
-    decisions: dict[str, dict[str, Any]] = {}
-    stage("solving")
+    return spec, damping, check_rng(rng)
 
-    k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
-    tree_pairs, decisions["trees"] = _tree_pairs(network, rules, trees, k_hint)
-    merged = _merge(network, rules, np.concatenate([rules.keep_pairs, tree_pairs]))
-    work = merged.network
-    kind, decisions["operator"] = _operator_choice(operator, tree_pairs.size > 0, network.directed)
-    solver = _SolveOptions(kind, eigen_method, tol, maxiter, generator, damping)
-    k, decisions["zone_count"], known = _choose_count(work, spec, merged.rules, solver)
-    per_component, notes = _zones_per_component(work, min(k, work.n_nodes))
 
+def _zone_components(
+    work: Network,
+    per_component: np.ndarray,
+    assign: str,
+    solver: _SolveOptions,
+    known: EigenResult | None,
+) -> tuple[np.ndarray, list[ComponentSolve], list[dict[str, Any]]]:
+    """Step 4: zones of every component, numbered consecutively, with their solves."""
     raw = np.zeros(work.n_nodes, dtype=np.int64)
     solves, methods = [], []
     offset = 0
@@ -606,74 +684,56 @@ def find_zones(
         else:
             raw[rows] = offset
         offset += k_c
-    if methods:
-        decisions["assign"] = _summarize_methods(methods)
-    if kind == "directed":
-        decisions["directed"] = _directed_record(damping, solver.records)
+    return raw, solves, methods
 
-    stage("constraints")
+
+def _enforce(
+    work: Network, raw: np.ndarray, merged: _Merged, generator: np.random.Generator
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Step 5a: the constraints enforced on the merged network, and what that changed."""
     enforced = enforce_constraints(work.adjacency, raw, merged.rules, rng=generator)
-    labels_w = enforced.labels
-    decisions["constraints"] = {
+    decision = {
         "reason": "; ".join(enforced.notes) if enforced.notes else "no change was needed",
         "notes": list(enforced.notes),
         "moved": enforced.moved,
     }
-    if refine:
-        stage("refining")
-        assert merged.rules.pinned is not None
-        movable = np.asarray(merged.rules.pinned < 0, dtype=bool)
-        movable[merged.rules.sources] = False
-        refined = refine_boundary(
-            work.adjacency,
-            labels_w,
-            sizes=merged.sizes,
-            min_size=merged.rules.min_size,
-            max_size=merged.rules.max_size,
-            movable=movable,
-            rng=generator,
-        )
-        labels_w = refined.labels
-        merged_note = (
-            ", measured on the network with its dangling branches and kept links merged "
-            "(the final figures count the whole network)"
-            if work.n_nodes < network.n_nodes
-            else ""
-        )
-        decisions["refinement"] = {
-            "reason": (
-                f"boundary moves lowered the normalized cut from {refined.ncut_before:.4g} "
-                f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} "
-                f"passes){merged_note}"
-            ),
-            "ncut_before": refined.ncut_before,
-            "ncut_after": refined.ncut_after,
-            "moves": refined.moves,
-        }
-    labels = number_by_size(labels_w[merged.groups], network.node_weights)
-    table = zone_table(network, labels)
-    return Zoning(
-        network=network,
-        labels=labels,
-        zones=table,
-        boundary=boundary_links(network, labels),
-        solves=tuple(solves),
-        scores=overall_scores(table),
-        parameters={
-            "zones": spec if not isinstance(spec, range) else f"{spec.start}:{spec.stop - 1}",
-            "operator": operator,
-            "assign": assign,
-            "trees": trees,
-            "refine": refine,
-            "constraints": _constraint_record(rules),
-            "eigen_method": eigen_method,
-            "tol": tol,
-            "maxiter": maxiter,
-            **({"damping": damping} if kind == "directed" else {}),
-        },
-        decisions=decisions,
-        warnings=tuple(notes),
+    return enforced.labels, decision
+
+
+def _refine(
+    network: Network, merged: _Merged, labels: np.ndarray, generator: np.random.Generator
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Step 5b: boundary moves that lower the normalized cut, keeping every constraint."""
+    work = merged.network
+    assert merged.rules.pinned is not None
+    movable = np.asarray(merged.rules.pinned < 0, dtype=bool)
+    movable[merged.rules.sources] = False
+    refined = refine_boundary(
+        work.adjacency,
+        labels,
+        sizes=merged.sizes,
+        min_size=merged.rules.min_size,
+        max_size=merged.rules.max_size,
+        movable=movable,
+        rng=generator,
     )
+    merged_note = (
+        ", measured on the network with its dangling branches and kept links merged "
+        "(the final figures count the whole network)"
+        if work.n_nodes < network.n_nodes
+        else ""
+    )
+    decision = {
+        "reason": (
+            f"boundary moves lowered the normalized cut from {refined.ncut_before:.4g} "
+            f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} "
+            f"passes){merged_note}"
+        ),
+        "ncut_before": refined.ncut_before,
+        "ncut_after": refined.ncut_after,
+        "moves": refined.moves,
+    }
+    return refined.labels, decision
 
 
 def _no_progress(stage: str) -> None:
