@@ -79,7 +79,7 @@ from scipy.sparse.csgraph import connected_components
 
 from .._validation import check_int
 from ..exceptions import ParameterError
-from ._refine import CONNECTIVITY_SEARCH_LIMIT
+from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, edge_rows, mark_zone_neighbours, reach
 
 __all__ = [
     "BALANCE_ROUNDS",
@@ -174,43 +174,6 @@ def _affinity(v, y, z, indptr, indices, data, labels):  # pragma: no cover - com
 
 
 @njit(cache=True)
-def _reach(
-    start, v, wanted, limit, indptr, indices, labels, marks, stamp, queue
-):  # pragma: no cover
-    """Breadth-first search in ``v``'s zone from ``start``, never through ``v``.
-
-    Targets carry ``marks[0] == stamp[0]``; ``start`` is one. Returns
-    ``(status, visited)``: status 1 when all ``wanted`` targets are reached,
-    0 when the search runs out of nodes first (the piece it closed is
-    ``queue[:visited]``), -1 when it reaches ``limit`` visits first.
-    """
-    a = labels[v]
-    stamp[1] += 1
-    seen, target = stamp[1], stamp[0]
-    marks[1, v] = seen
-    marks[1, start] = seen
-    queue[0] = start
-    head, tail, found = 0, 1, 1
-    while head < tail:
-        x = queue[head]
-        head += 1
-        for p in range(indptr[x], indptr[x + 1]):
-            u = indices[p]
-            if labels[u] != a or marks[1, u] == seen:
-                continue
-            marks[1, u] = seen
-            if marks[0, u] == target:
-                found += 1
-                if found == wanted:
-                    return 1, tail
-            if tail >= limit:
-                return -1, tail
-            queue[tail] = u
-            tail += 1
-    return 0, tail
-
-
-@njit(cache=True)
 def _departure(v, limit, graph, labels, movable, marks, stamp, queue, group):  # pragma: no cover
     """Nodes that must leave ``v``'s zone with ``v`` so that the zone stays connected.
 
@@ -226,13 +189,7 @@ def _departure(v, limit, graph, labels, movable, marks, stamp, queue, group):  #
     """
     indptr, indices = graph[0], graph[1]
     a = labels[v]
-    stamp[0] += 1
-    wanted = 0
-    for p in range(indptr[v], indptr[v + 1]):
-        u = indices[p]
-        if labels[u] == a and marks[0, u] != stamp[0]:
-            marks[0, u] = stamp[0]
-            wanted += 1
+    wanted, _ = mark_zone_neighbours(v, indptr, indices, labels, marks, stamp)
     if wanted <= 1:
         return 0
     call = stamp[1]  # nodes seen by this call's searches carry a later stamp
@@ -241,7 +198,7 @@ def _departure(v, limit, graph, labels, movable, marks, stamp, queue, group):  #
         u = indices[p]
         if labels[u] != a or marks[1, u] > call:
             continue
-        status, seen = _reach(u, v, wanted, limit, indptr, indices, labels, marks, stamp, queue)
+        status, seen = reach(u, v, wanted, limit, indptr, indices, labels, marks, stamp, queue)
         if status == 1:
             return 0
         if status < 0:
@@ -685,7 +642,7 @@ def balance_sizes(
     label = name if name is not None else (lambda z: f"zone {z}")
     n = current.size
     k = int(current.max()) + 1 if n else 0
-    rows = np.repeat(np.arange(n), np.diff(a.indptr))
+    rows = edge_rows(a)
     count = np.bincount(current, minlength=k).astype(np.int64)
     zsize = np.bincount(current, weights=node_sizes, minlength=k)
     tol = 0.5 if exact else SIZE_RTOL * max(float(node_sizes.sum()), 1.0)

@@ -69,6 +69,7 @@ from numba import njit
 
 from .._validation import check_int, check_rng
 from ..exceptions import ParameterError
+from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, stays_connected
 
 __all__ = [
     "CONNECTIVITY_SEARCH_LIMIT",
@@ -95,17 +96,6 @@ REFINE_PASSES = 8
 #: non-improving moves is common practice in FM implementations). ``0`` makes
 #: the refinement a greedy descent that takes improving moves only.
 UPHILL_MOVES = 64
-
-#: Most nodes the local connectivity test may visit. Moving ``v`` out of zone
-#: ``a`` is allowed only when its neighbours in ``a`` are still mutually
-#: reachable inside ``a`` without ``v``; the test searches outward from one of
-#: them and refuses the move (conservatively) when it visits this many nodes
-#: before reaching the others. On near-planar networks the neighbours of a
-#: boundary node are almost always joined by a short cycle around it: on
-#: ``gallery.road_like(100_000, rng=0)`` in 16 zones, bounds of 256, 4096 and
-#: no bound at all gave the same refined zones, while 64 and 16 refused
-#: enough moves to end at a normalized cut 1.5 % and 8 % higher (measured).
-CONNECTIVITY_SEARCH_LIMIT = 256
 
 #: Smallest drop of the normalized cut that counts as progress. NCut is a sum
 #: of ratios of weights, so it does not depend on the weight scale and an
@@ -286,52 +276,6 @@ def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, f
 
 
 @njit(cache=True)
-def _stays_connected(v, indptr, indices, labels, marks, queue):  # pragma: no cover - compiled
-    """Whether ``v``'s neighbours in its zone stay mutually reachable in the zone without ``v``.
-
-    Breadth-first search inside the zone from one such neighbour, blocked at
-    ``v``, until all the others are reached; ``False`` when the search visits
-    ``queue.size`` nodes first (the bound) or runs out of nodes (a real split).
-    ``marks`` holds a stamp (``marks[0, 0]``) and per-node stamps for targets
-    (row 1) and visited nodes (row 2), so nothing is cleared between calls.
-    """
-    a = labels[v]
-    marks[0, 0] += 1
-    stamp = marks[0, 0]
-    first, wanted = -1, 0
-    for p in range(indptr[v], indptr[v + 1]):
-        u = indices[p]
-        if u != v and labels[u] == a and marks[1, u] != stamp:
-            marks[1, u] = stamp
-            wanted += 1
-            if first < 0:
-                first = u
-    if wanted <= 1:
-        return True
-    marks[2, v] = stamp
-    marks[2, first] = stamp
-    queue[0] = first
-    head, tail, found = 0, 1, 1
-    while head < tail:
-        x = queue[head]
-        head += 1
-        for p in range(indptr[x], indptr[x + 1]):
-            y = indices[p]
-            if labels[y] != a or marks[2, y] == stamp:
-                continue
-            marks[2, y] = stamp
-            if marks[1, y] == stamp:
-                found += 1
-                if found == wanted:
-                    return True
-            if tail == queue.size:
-                return False
-            queue[tail] = y
-            tail += 1
-    return False
-
-
-@njit(cache=True)
 def _apply_move(v, b, indptr, indices, data, labels, degree, sizes, state):  # pragma: no cover
     """Move ``v`` to zone ``b`` and update the zone totals in ``state``."""
     a = labels[v]
@@ -361,6 +305,14 @@ def _heap_before(keys, items, i, j):  # pragma: no cover - compiled
 
 
 @njit(cache=True)
+def _heap_swap(keys, items, i, j):  # pragma: no cover - compiled
+    """Exchange heap entries ``i`` and ``j`` (key and all five item fields)."""
+    keys[i], keys[j] = keys[j], keys[i]
+    for c in range(5):
+        items[i, c], items[j, c] = items[j, c], items[i, c]
+
+
+@njit(cache=True)
 def _heap_push(keys, items, size, gain, rank, node, version, stamp, target):  # pragma: no cover
     """Push an entry; returns the (possibly reallocated) arrays and the new size."""
     if size == keys.size:
@@ -380,9 +332,7 @@ def _heap_push(keys, items, size, gain, rank, node, version, stamp, target):  # 
         parent = (i - 1) // 2
         if not _heap_before(keys, items, i, parent):
             break
-        keys[i], keys[parent] = keys[parent], keys[i]
-        for c in range(5):
-            items[i, c], items[parent, c] = items[parent, c], items[i, c]
+        _heap_swap(keys, items, i, parent)
         i = parent
     return keys, items, size + 1
 
@@ -391,9 +341,7 @@ def _heap_push(keys, items, size, gain, rank, node, version, stamp, target):  # 
 def _heap_pop(keys, items, size):  # pragma: no cover - compiled
     """Remove the top entry into slot ``size - 1`` and return the new size."""
     last = size - 1
-    keys[0], keys[last] = keys[last], keys[0]
-    for c in range(5):
-        items[0, c], items[last, c] = items[last, c], items[0, c]
+    _heap_swap(keys, items, 0, last)
     i = 0
     while True:
         left = 2 * i + 1
@@ -404,9 +352,7 @@ def _heap_pop(keys, items, size):  # pragma: no cover - compiled
             child = left + 1
         if not _heap_before(keys, items, child, i):
             break
-        keys[i], keys[child] = keys[child], keys[i]
-        for c in range(5):
-            items[i, c], items[child, c] = items[child, c], items[i, c]
+        _heap_swap(keys, items, i, child)
         i = child
     return last
 
@@ -426,7 +372,8 @@ def _refine_pass(
     k = state.shape[1]
     lo, hi, floor, tol = bounds[0], bounds[1], bounds[2], bounds[3]
     scratch = (np.zeros(k), np.zeros(k, dtype=np.bool_), np.empty(k, dtype=np.int64))
-    marks = np.zeros((3, n), dtype=np.int64)
+    marks = np.zeros((2, n), dtype=np.int64)
+    search_stamp = np.zeros(2, dtype=np.int64)
     queue = np.empty(limits[1], dtype=np.int64)
     locked = np.zeros(n, dtype=np.bool_)
     version = np.zeros(n, dtype=np.int64)
@@ -466,7 +413,7 @@ def _refine_pass(
                     keys, items, size, gain, rank[v], v, version[v], moves, target
                 )
             continue
-        if not _stays_connected(v, indptr, indices, labels, marks, queue):
+        if not stays_connected(v, queue.size, indptr, indices, labels, marks, search_stamp, queue):
             continue  # dropped until a neighbour moves and queues it again
         log_node[moves] = v
         log_zone[moves] = labels[v]

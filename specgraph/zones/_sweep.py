@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 import scipy.sparse as sp
 
 from ..network import Network
 
-__all__ = ["SweepCut", "sweep_cut"]
+__all__ = ["SweepCut", "SweepOrder", "sweep_cut", "sweep_order"]
 
 
 @dataclass(frozen=True, eq=False)
@@ -39,7 +40,7 @@ def sweep_cut(network: Network, vector: np.ndarray, *, degree_scaled: bool = Tru
     cut found has conductance at most :math:`\\sqrt{2 \\lambda_2}` (Cheeger's
     inequality, F. Chung, *Spectral Graph Theory*, AMS 1997, Thm 2.2). All
     ``n - 1`` prefixes are scored in one vectorized pass: adding node ``v``
-    changes the cut by ``d_v - 2 w(v, earlier nodes)``.
+    changes the cut by ``d_v - 2 w(v, earlier nodes)`` (:func:`sweep_order`).
 
     Parameters
     ----------
@@ -64,20 +65,42 @@ def sweep_cut(network: Network, vector: np.ndarray, *, degree_scaled: bool = Tru
     key = np.asarray(vector, dtype=np.float64)
     if degree_scaled:
         key = key / np.sqrt(np.where(d > 0, d, 1.0))
-    order = np.argsort(key, kind="stable")
-    rank = np.empty_like(order)
-    rank[order] = np.arange(order.size)
-    coo = sp.triu(network.adjacency, k=1, format="coo")
-    later = np.where(rank[coo.row] > rank[coo.col], coo.row, coo.col)
-    earlier_weight = np.bincount(later, weights=coo.data, minlength=d.size)
-    cut = np.cumsum(d[order] - 2.0 * earlier_weight[order])[:-1]
-    vol = np.cumsum(d[order])[:-1]
-    smaller = np.minimum(vol, d.sum() - vol)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        profile = np.where(smaller > 0, cut / smaller, np.inf)
+    sweep = sweep_order(network.adjacency, d, key)
+    profile, vol = sweep.profile, sweep.volume
     best = int(np.argmin(profile))
     inside = np.zeros(d.size, dtype=bool)
-    inside[order[: best + 1]] = True
+    inside[sweep.order[: best + 1]] = True
     if vol[best] > d.sum() - vol[best]:
         inside = ~inside
     return SweepCut(inside=inside, conductance=float(profile[best]), profile=profile)
+
+
+class SweepOrder(NamedTuple):
+    """Nodes in sweep order and the conductance of every prefix (:func:`sweep_order`)."""
+
+    order: np.ndarray  # nodes by increasing key (stable)
+    rank: np.ndarray  # position of each node in ``order``
+    volume: np.ndarray  # volume of the prefixes 1..n-1
+    profile: np.ndarray  # conductance of the prefixes 1..n-1 (inf where a side has no volume)
+
+
+def sweep_order(adjacency: sp.sparray, degree: np.ndarray, key: np.ndarray) -> SweepOrder:
+    """Sort the nodes by ``key`` and score every prefix cut in one vectorized pass.
+
+    Adding node ``v`` to the prefix changes the cut by ``d_v - 2 w(v, earlier
+    nodes)``; each link is counted once, at its later end. The shared engine
+    of :func:`sweep_cut` and of the size-restricted bisection of the
+    constraint steps.
+    """
+    order = np.argsort(key, kind="stable")
+    rank = np.empty_like(order)
+    rank[order] = np.arange(order.size)
+    coo = sp.triu(adjacency, k=1, format="coo")
+    later = np.where(rank[coo.row] > rank[coo.col], coo.row, coo.col)
+    earlier_weight = np.bincount(later, weights=coo.data, minlength=degree.size)
+    cut = np.cumsum(degree[order] - 2.0 * earlier_weight[order])[:-1]
+    vol = np.cumsum(degree[order])[:-1]
+    smaller = np.minimum(vol, degree.sum() - vol)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        profile = np.where(smaller > 0, cut / smaller, np.inf)
+    return SweepOrder(order, rank, vol, profile)
