@@ -1,19 +1,20 @@
 """networkx and pandas in and out: graphs to networks, zonings to node sets, attributes and frames.
 
-Graphs in: :func:`network_from_graph` is the one networkx reader. It goes
-through :func:`specgraph.io.network_from_frames`, so that every value is
-checked there (an edge or node is named when a value is missing or out of
-range) and every other edge attribute (a pipe or line id, say) is carried
-into the link table and so into boundary tables.
-:meth:`specgraph.Network.from_networkx` is a thin call of the same reader
-that keeps its documented leniency: an edge without the weight attribute
-counts as 1, and a graph without edges gives a network of isolated nodes.
+What already exists and is not repeated here:
 
-Also here, the way back: :func:`zone_sets`, :func:`annotate_graph` and
-:func:`zones_frame`. What exists elsewhere is not repeated:
-:func:`specgraph.io.network_from_frames` builds a network from pandas edge
-and node frames; :meth:`specgraph.Zoning.to_frame`, ``Zoning.zones`` and
-``Zoning.boundary`` are the node, zone and boundary tables as frames.
+* :meth:`specgraph.Network.from_networkx` builds a network from a graph with
+  a chosen weight attribute (a missing attribute counts as 1), sizes and
+  positions;
+* :func:`specgraph.io.network_from_frames`
+  builds one from pandas edge and node frames;
+* :meth:`specgraph.Zoning.to_frame`, ``Zoning.zones`` and ``Zoning.boundary``
+  are the node, zone and boundary tables as frames.
+
+This module adds :func:`network_from_graph`, which goes through the frame
+reader so that every other edge attribute (a pipe or line id, say) is carried
+into the link table and so into boundary tables, and a missing or bad weight
+is refused naming its edge; and the way back: :func:`zone_sets`,
+:func:`annotate_graph` and :func:`zones_frame`.
 
 Node ids are compared as strings, as everywhere in specgraph: a graph node
 ``7`` is the network's node ``"7"``.
@@ -42,20 +43,11 @@ __all__ = ["annotate_graph", "network_from_graph", "zone_sets", "zones_frame"]
 #: takes them (an attribute named so is refused, naming it).
 _SOURCE, _TARGET = "__source__", "__target__"
 
-#: The link table's own columns: an edge attribute of one of these names
-#: (other than the weight attribute ``"weight"`` itself) is not carried into
-#: the link table, whose column of that name holds the ends or the affinity.
-_LINK_COLUMNS = ("source", "target", "weight")
-
-#: Weight of an edge without the weight attribute, under the lenient policy
-#: of :meth:`Network.from_networkx` (networkx's own default edge weight).
-_MISSING_WEIGHT = 1.0
-
 
 def _graph_frames(
-    graph: nx.Graph, weight: str | None, size: str | None, pos: str | None, *, lenient: bool
+    graph: nx.Graph, weight: str | None, size: str | None, pos: str | None
 ) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """An edge frame (ends, weight and every carried edge attribute) and a node frame."""
+    """An edge frame (ends and every edge attribute) and a node frame of ``graph``."""
     rows = []
     for number, (u, v, data) in enumerate(graph.edges(data=True)):
         for reserved in (_SOURCE, _TARGET):
@@ -63,17 +55,12 @@ def _graph_frames(
                 raise InputError(
                     f"edge {number} ({u!r}, {v!r}): attribute {reserved!r} is reserved"
                 )
-        row: dict[Hashable, Any] = {_SOURCE: u, _TARGET: v}
-        row.update((k, x) for k, x in data.items() if k == weight or k not in _LINK_COLUMNS)
         if weight is not None and weight not in data:
-            if lenient:
-                row[weight] = _MISSING_WEIGHT
-            else:
-                raise InputError(
-                    f"edge {number} ({u!r}, {v!r}) has no attribute {weight!r}; give every "
-                    "edge one, or pass weight=None to give every link weight 1"
-                )
-        rows.append(row)
+            raise InputError(
+                f"edge {number} ({u!r}, {v!r}) has no attribute {weight!r}; give every edge "
+                "one, or pass weight=None to give every link weight 1"
+            )
+        rows.append({_SOURCE: u, _TARGET: v, **data})
     edges = pd.DataFrame(rows, columns=_edge_columns(rows))
     node_rows: dict[str, list[Any]] = {"node": list(graph.nodes)}
     if pos is not None:
@@ -121,16 +108,12 @@ def network_from_graph(
 ) -> Network:
     """Build a :class:`~specgraph.Network` from a networkx graph, keeping its edge attributes.
 
-    The one networkx reader: it goes through
-    :func:`specgraph.io.network_from_frames`, so every value is checked
-    there, and every edge attribute other than the weight becomes a column
-    of :attr:`Network.link_table` (so boundary tables carry pipe or line
-    ids); attributes named ``source``, ``target`` or ``weight`` (unless that
-    is the weight) are left out, as the link table's own columns take those
-    names. An edge without the weight attribute, or with a weight that is not
-    a finite number in range, is refused naming the edge, and so is a graph
-    without edges. :meth:`Network.from_networkx` is the same reader with
-    missing weights counting as 1 and edgeless graphs allowed.
+    Like :meth:`Network.from_networkx`, but through
+    :func:`specgraph.io.network_from_frames`: every edge attribute other than
+    the weight becomes a column of :attr:`Network.link_table` (so boundary
+    tables carry pipe or line ids), and an edge without the weight attribute,
+    or with a weight that is not a finite number in range, is refused
+    naming the edge instead of counting as 1.
 
     Parameters
     ----------
@@ -172,31 +155,11 @@ def network_from_graph(
     >>> net.link_table[["source", "target", "weight", "pipe"]].to_numpy().tolist()
     [['a', 'b', 2.0, 'P-1'], ['b', 'c', 1.0, 'P-2']]
     """
-    return _graph_network(graph, weight=weight, distance=distance, size=size, pos=pos)
-
-
-def _graph_network(
-    graph: nx.Graph,
-    *,
-    weight: str | None,
-    distance: bool,
-    size: str | None,
-    pos: str | None,
-    lenient: bool = False,
-) -> Network:
-    """The one networkx reader, behind :func:`network_from_graph` and ``Network.from_networkx``.
-
-    ``lenient`` is the documented policy of :meth:`Network.from_networkx`: an
-    edge without ``weight`` counts as :data:`_MISSING_WEIGHT`, and a graph
-    without edges gives isolated nodes; every other check is the same.
-    """
     if not hasattr(graph, "edges") or not hasattr(graph, "nodes"):
         raise ParameterError(f"graph must be a networkx graph; got {type(graph).__name__}.")
     if graph.number_of_edges() == 0:
-        if not lenient:
-            raise InputError("the graph has no edges; a network needs at least one link")
-        return _isolated_nodes(graph, weight, size, pos)
-    edges, nodes = _graph_frames(graph, weight, size, pos, lenient=lenient)
+        raise InputError("the graph has no edges; a network needs at least one link")
+    edges, nodes = _graph_frames(graph, weight, size, pos)
     return network_from_frames(
         edges,
         source=_SOURCE,
@@ -208,34 +171,6 @@ def _graph_network(
         x="x" if pos is not None else None,
         y="y" if pos is not None else None,
         size="size" if size is not None else None,
-    )
-
-
-def _isolated_nodes(
-    graph: nx.Graph, weight: str | None, size: str | None, pos: str | None
-) -> Network:
-    """A network of the graph's nodes and no links (the frame reader needs a link).
-
-    Node values are read as in the frame reader where they are present;
-    :class:`Network` refuses sizes and coordinates that are not finite.
-    """
-    _, nodes = _graph_frames(graph, weight, size, pos, lenient=True)
-
-    def numbers(column: str) -> np.ndarray:
-        return pd.to_numeric(nodes[column], errors="coerce").to_numpy(dtype=np.float64)
-
-    notes = {
-        "weight_column": None if weight is None else str(weight),
-        "weight_read_as": None,
-        "isolated_nodes": graph.number_of_nodes(),
-    }
-    return Network.from_links(
-        [],
-        [],
-        node_ids=nodes["node"].tolist(),
-        sizes=numbers("size") if size is not None else None,
-        coordinates=np.column_stack([numbers("x"), numbers("y")]) if pos is not None else None,
-        notes=notes,
     )
 
 

@@ -482,13 +482,6 @@ class Network:
     ) -> Network:
         """Build a network from a networkx graph (directed graphs are made undirected).
 
-        A thin call of :func:`specgraph.interop.network_from_graph`, the one
-        networkx reader: the same checks (a bad value is refused naming its
-        edge or node) and the same network, edge attributes carried into
-        :attr:`link_table`, with two documented leniencies: an edge without
-        the ``weight`` attribute counts as 1, and a graph without edges gives
-        a network of isolated nodes.
-
         Parameters
         ----------
         graph : networkx.Graph
@@ -507,19 +500,22 @@ class Network:
         Returns
         -------
         Network
-
-        Raises
-        ------
-        InputError, ParameterError
-            As :func:`specgraph.interop.network_from_graph` raises them, but
-            for a missing weight attribute or a graph without edges.
         """
-        # The reader sits above the frame reader (io), which builds on this
-        # module; it is imported when called, once every stage is loaded.
-        from .interop import _graph_network
-
-        return _graph_network(
-            graph, weight=weight, distance=distance, size=size, pos=pos, lenient=True
+        nodes = list(graph.nodes)
+        edges = list(graph.edges(data=True))
+        w = np.array([1.0 if weight is None else d.get(weight, 1.0) for _, _, d in edges])
+        notes: dict[str, Any] = {}
+        if distance:
+            w, notes["weight_conversion"] = affinity_from_distance(w)
+        data = graph.nodes
+        return cls.from_links(
+            [u for u, _, _ in edges],
+            [v for _, v, _ in edges],
+            w,
+            node_ids=nodes,
+            sizes=None if size is None else np.array([data[v][size] for v in nodes], float),
+            coordinates=None if pos is None else np.array([data[v][pos] for v in nodes], float),
+            notes=notes,
         )
 
 
