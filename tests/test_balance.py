@@ -15,8 +15,9 @@ import pytest
 
 from specgraph import ConstraintError, Network, ParameterError, find_zones, gallery
 from specgraph.zones import ZoneConstraints
-from specgraph.zones._balance import Balance, _departure, balance_sizes
+from specgraph.zones._balance import Balance, balance_sizes
 from specgraph.zones._constraints import ResolvedConstraints, enforce_constraints
+from specgraph.zones._transfers import departure as _departure
 
 
 # ------------------------------------------------------------------ references

@@ -20,16 +20,10 @@ from ._assign import (
     qr_labels,
     recursive_bisection,
 )
+from ._audit import constraint_violations
 from ._balance import BALANCE_ROUNDS, Balance, balance_sizes
-from ._constraints import (
-    Contraction,
-    Enforcement,
-    ResolvedConstraints,
-    ZoneConstraints,
-    constraint_violations,
-    contract_links,
-    enforce_constraints,
-)
+from ._constraints import enforce_constraints
+from ._contract import Contraction, contract_links
 from ._count import ZoneCount, choose_zone_count, default_candidates, parse_zone_spec
 from ._embedding import normalized_rows
 from ._local import (
@@ -42,8 +36,10 @@ from ._local import (
 )
 from ._operator import OperatorChoice, choose_operator
 from ._refine import Refinement, normalized_cut, refine_boundary
+from ._rules import ResolvedConstraints, ZoneConstraints
 from ._sweep import SweepCut, sweep_cut
 from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
+from ._work import Enforcement
 from ._zoning import (
     ASSIGNMENTS,
     NORMALIZED_LIKE,

@@ -73,13 +73,13 @@ from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
-from numba import njit
 from scipy.optimize import linprog
 from scipy.sparse.csgraph import connected_components
 
 from .._validation import check_int
 from ..exceptions import ParameterError
-from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, edge_rows, mark_zone_neighbours, reach
+from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, edge_rows
+from ._transfers import TOO_BIG, WHY, realize
 
 __all__ = [
     "BALANCE_ROUNDS",
@@ -115,15 +115,6 @@ PLAN_MARGIN_SHARE = 0.25
 #: Refused transfers described in a failure message before "and N more".
 TRANSFERS_SHOWN = 3
 
-# Why a transfer stopped short: the counters of the compiled loop, in order.
-_WHY = (
-    "its boundary nodes there are sources or fixed nodes",
-    "moving its boundary nodes would disconnect it",
-    "it would be left empty",
-    "its boundary nodes there are bigger than the size still to move",
-)
-_IMMOVABLE, _DISCONNECTS, _EMPTIED, _TOO_BIG = range(4)
-
 
 @dataclass(frozen=True, eq=False)
 class Balance:
@@ -157,226 +148,6 @@ class Balance:
     def balanced(self) -> bool:
         """Whether every zone lies within the bounds."""
         return not self.unmet.size
-
-
-# ------------------------------------------------------------ compiled moves
-@njit(cache=True)
-def _affinity(v, y, z, indptr, indices, data, labels):  # pragma: no cover - compiled
-    """Share of ``v``'s weight into zones ``y`` and ``z`` that goes into ``z`` (-1 if none)."""
-    wy, wz = 0.0, 0.0
-    for p in range(indptr[v], indptr[v + 1]):
-        zone = labels[indices[p]]
-        if zone == y:
-            wy += data[p]
-        elif zone == z:
-            wz += data[p]
-    return wz / (wy + wz) if wz > 0.0 else -1.0
-
-
-@njit(cache=True)
-def _departure(v, limit, graph, labels, movable, marks, stamp, queue, group):  # pragma: no cover
-    """Nodes that must leave ``v``'s zone with ``v`` so that the zone stays connected.
-
-    Without ``v`` its zone neighbours fall into pieces. A search from each
-    neighbour not yet seen, bounded by ``limit`` visits, either reaches all of
-    them (one piece: ``v`` leaves alone), closes a piece (it ran out of
-    nodes), or hits the bound (a big piece). The zone keeps the big piece, or
-    when all pieces closed, the one holding immovable nodes, else the
-    largest; the other pieces, dangling from ``v``, leave with it. Returns
-    ``g >= 0`` with those nodes in ``group[:g]``, -1 when two searches hit
-    the bound (undecided; ``limit >= queue.size`` makes every search exact),
-    or -2 when a piece that would leave holds an immovable node.
-    """
-    indptr, indices = graph[0], graph[1]
-    a = labels[v]
-    wanted, _ = mark_zone_neighbours(v, indptr, indices, labels, marks, stamp)
-    if wanted <= 1:
-        return 0
-    call = stamp[1]  # nodes seen by this call's searches carry a later stamp
-    g, big, keep_at, keep_len, keep_fixed, fixed_pieces = 0, 0, 0, -1, False, 0
-    for p in range(indptr[v], indptr[v + 1]):
-        u = indices[p]
-        if labels[u] != a or marks[1, u] > call:
-            continue
-        status, seen = reach(u, v, wanted, limit, indptr, indices, labels, marks, stamp, queue)
-        if status == 1:
-            return 0
-        if status < 0:
-            big += 1
-            if big > 1:
-                return -1
-            continue
-        fixed = False
-        for i in range(seen):
-            group[g + i] = queue[i]
-            fixed = fixed or not movable[queue[i]]
-        fixed_pieces += fixed
-        if (fixed and not keep_fixed) or (fixed == keep_fixed and seen > keep_len):
-            keep_at, keep_len, keep_fixed = g, seen, fixed
-        g += seen
-    if big:  # the zone keeps the big piece; every closed piece leaves
-        return -2 if fixed_pieces else g
-    if fixed_pieces > 1:
-        return -2
-    for i in range(keep_at, g - keep_len):  # drop the kept piece from the group
-        group[i] = group[i + keep_len]
-    return g - keep_len
-
-
-@njit(cache=True)
-def _push_candidates(heap, nodes, y, z, graph, labels, movable, version, why):  # pragma: no cover
-    """Queue the movable nodes of ``y`` among ``nodes`` that touch ``z``, by affinity to ``z``."""
-    indptr, indices, data = graph
-    for v in nodes:
-        if labels[v] != y:
-            continue
-        share = _affinity(v, y, z, indptr, indices, data, labels)
-        if share < 0.0:
-            continue
-        if movable[v]:
-            version[v] += 1
-            heapq.heappush(heap, (-share, np.int64(v), version[v]))
-        else:
-            why[_IMMOVABLE] += 1
-
-
-@njit(cache=True)
-def _fits(s, rest, tol, exact):  # pragma: no cover - compiled
-    """Whether moving size ``s`` suits the ``rest`` still to move: no overshoot
-    with whole sizes, else no farther from the target than staying put."""
-    return s <= rest + tol if exact else s < 2.0 * rest
-
-
-@njit(cache=True)
-def _transfer(y, z, amount, candidates, graph, state, options, why):  # pragma: no cover - compiled
-    """Move boundary nodes of zone ``y`` into ``z`` until ``amount`` of size has moved.
-
-    ``graph`` is ``(indptr, indices, data)``; ``state`` is ``(labels, sizes,
-    movable, count, zsize, version, marks, stamp, queue, group)``, updated in
-    place; ``options`` is ``(limit, check, tol, exact)``. ``why`` counts
-    refusals by cause. A node moves with the pieces that only it joins to
-    its zone (:func:`_departure`). Nodes whose bounded test is undecided
-    wait; only if the amount is not reached without them are they tested
-    exactly (a search of the whole donor zone each), in a second phase.
-    Returns the size moved and the number of nodes moved.
-    """
-    indptr, indices = graph[0], graph[1]
-    labels, sizes, movable, count, zsize, version, marks, stamp, queue, group = state
-    limit, check, tol, exact = options
-    heap = [(0.0, np.int64(0), np.int64(0))]
-    heap.pop()
-    waiting = np.empty(0, dtype=np.int64)
-    _push_candidates(heap, candidates, y, z, graph, labels, movable, version, why)
-    moved, moves = 0.0, 0
-    exact_tests = False
-    for phase in range(2):
-        if phase == 1:  # exact tests for the nodes that waited, if still needed
-            exact_tests = True
-            _push_candidates(heap, waiting, y, z, graph, labels, movable, version, why)
-        held = []
-        while heap and amount - moved > tol:
-            _, v, ver = heapq.heappop(heap)
-            if labels[v] != y or ver != version[v]:
-                continue  # moved already, or superseded by a fresher entry
-            s = sizes[v]
-            if not _fits(s, amount - moved, tol, exact):
-                why[_TOO_BIG] += 1
-                continue
-            if count[y] <= 1:
-                why[_EMPTIED] += 1
-                break
-            g = (
-                _departure(v, limit, graph, labels, movable, marks, stamp, queue, group)
-                if check
-                else 0
-            )
-            if g == -1 and exact_tests:
-                g = _departure(v, queue.size, graph, labels, movable, marks, stamp, queue, group)
-            if g == -1:
-                held.append(v)
-                continue
-            if g == -2:
-                why[_IMMOVABLE] += 1
-                continue
-            for i in range(g):
-                s += sizes[group[i]]
-            if not _fits(s, amount - moved, tol, exact):
-                why[_DISCONNECTS] += 1  # v alone would split its zone; with its pieces, too big
-                continue
-            labels[v] = z
-            for i in range(g):
-                labels[group[i]] = z
-            count[y] -= 1 + g
-            count[z] += 1 + g
-            zsize[y] -= s
-            zsize[z] += s
-            moved += s
-            moves += 1 + g
-            _push_candidates(
-                heap, indices[indptr[v] : indptr[v + 1]], y, z, graph, labels, movable, version, why
-            )
-        if amount - moved <= tol or not held:
-            break
-        waiting = np.asarray(held, dtype=np.int64)
-        heap.clear()
-    return moved, moves
-
-
-@njit(cache=True)
-def _realize(
-    plan, amounts, goal, buckets, graph, labels, sizes, movable, count, zsize, options
-):  # pragma: no cover
-    """Run the planned transfers ``plan[i] = (y, z)`` in order; per transfer: the size
-    asked, the size moved, the nodes moved, refusal counters. ``buckets`` is
-    ``(pointers, nodes)``: boundary nodes by zone. A donor never gives below its
-    planned final size ``goal``: when what it was to receive fell short, its own
-    transfers shrink, and the shortfall travels down the cascade instead of
-    draining the zone in the middle."""
-    n = labels.size
-    t = amounts.size
-    pointers, nodes = buckets
-    version = np.zeros(n, dtype=np.int64)
-    marks = np.zeros((2, n), dtype=np.int64)
-    stamp = np.zeros(2, dtype=np.int64)
-    queue = np.empty(n, dtype=np.int64)
-    group = np.empty(n, dtype=np.int64)
-    state = (labels, sizes, movable, count, zsize, version, marks, stamp, queue, group)
-    asked = np.zeros(t)
-    moved = np.zeros(t)
-    moves = np.zeros(t, dtype=np.int64)
-    why = np.zeros((t, 4), dtype=np.int64)
-    for i in range(t):
-        y, z = plan[i, 0], plan[i, 1]
-        asked[i] = min(amounts[i], zsize[y] - goal[y])
-        if asked[i] <= options[2]:
-            continue
-        candidates = _candidates(y, z, pointers, nodes, graph[0], graph[1], labels)
-        moved[i], moves[i] = _transfer(y, z, asked[i], candidates, graph, state, options, why[i])
-    return asked, moved, moves, why
-
-
-@njit(cache=True)
-def _candidates(y, z, pointers, nodes, indptr, indices, labels):  # pragma: no cover - compiled
-    """Nodes of ``y`` that may touch ``z``: ``y``'s boundary nodes and the ``y``-neighbours
-    of ``z``'s boundary nodes (the buckets date from the start of the round, and
-    earlier transfers of the round may have moved the border)."""
-    own = nodes[pointers[y] : pointers[y + 1]]
-    other = nodes[pointers[z] : pointers[z + 1]]
-    extra = 0
-    for w in other:
-        if labels[w] == z:
-            extra += indptr[w + 1] - indptr[w]
-    out = np.empty(own.size + extra, dtype=np.int64)
-    out[: own.size] = own
-    m = own.size
-    for w in other:
-        if labels[w] != z:
-            continue
-        for p in range(indptr[w], indptr[w + 1]):
-            if labels[indices[p]] == y:
-                out[m] = indices[p]
-                m += 1
-    return out[:m]
 
 
 # ------------------------------------------------------------------ planning
@@ -461,6 +232,38 @@ def _buckets(
     return pointers.astype(np.int64), nodes.astype(np.int64)
 
 
+def _plan_with_margin(
+    arcs: np.ndarray,
+    zsize: np.ndarray,
+    present: np.ndarray,
+    bounds: tuple[float, float, float],
+    shut: set,
+) -> np.ndarray | None:
+    """:func:`_plan` aiming ``slack`` inside ``[low, high]`` first, then at the bounds.
+
+    ``bounds`` is ``(low, high, slack)``; ``slack`` is :func:`_margin` (0 with
+    whole node sizes, where the first aim is skipped).
+    """
+    low, high, slack = bounds
+    flows = None
+    if slack > 0:
+        flows = _plan(arcs, zsize, present, low + slack, high - slack, shut)
+    if flows is None:
+        flows = _plan(arcs, zsize, present, low, high, shut)
+    return flows
+
+
+def _short_transfers(missed: np.ndarray, steps: np.ndarray, why: np.ndarray) -> np.ndarray:
+    """Transfers that fell short (``missed``) because moves were refused: their arcs get shut.
+
+    A transfer refused only for nodes too big counts when it moved nothing at
+    all (it found no node touching the receiver: a border already moved this
+    round).
+    """
+    refused = (why[:, :TOO_BIG].sum(axis=1) > 0) | ((why[:, TOO_BIG] > 0) & (steps == 0))
+    return missed & refused
+
+
 # ---------------------------------------------------------------- reporting
 def _outside(zsize: np.ndarray, present: np.ndarray, low: float, high: float) -> np.ndarray:
     """Present zones outside the bounds (with :data:`SIZE_RTOL` slack), worst first."""
@@ -493,7 +296,7 @@ def _infeasible(
     near = sorted(shut, key=lambda arc: (zone not in arc, arc))
     said = []
     for y, z in near[:TRANSFERS_SHOWN]:
-        causes = [text for text, hits in zip(_WHY, shut[(y, z)], strict=True) if hits]
+        causes = [text for text, hits in zip(WHY, shut[(y, z)], strict=True) if hits]
         said.append(
             f"from {name(y)} into {name(z)}: " + (" or ".join(causes) or "no node could move")
         )
@@ -656,11 +459,7 @@ def balance_sizes(
             reason = f"still unbalanced after {max_rounds} rounds" if unmet.size else ""
             break
         arcs = _zone_arcs(current, rows, a.indices, k)
-        flows = None
-        if slack > 0:  # aim inside the bounds first, then at them
-            flows = _plan(arcs, zsize, count > 0, low + slack, high - slack, set(shut))
-        if flows is None:
-            flows = _plan(arcs, zsize, count > 0, low, high, set(shut))
+        flows = _plan_with_margin(arcs, zsize, count > 0, (low, high, slack), set(shut))
         if flows is None:
             state = (zsize, count > 0, low, high)
             reason = _infeasible(int(unmet[0]), arcs, state, shut, label)
@@ -673,7 +472,7 @@ def balance_sizes(
         goal = zsize + np.bincount(arcs[1], flows, k) - np.bincount(arcs[0], flows, k)
         buckets = _buckets(current, rows, a.indices, k)
         graph = (a.indptr, a.indices, a.data)
-        asked, got, steps, why = _realize(
+        asked, got, steps, why = realize(
             plan,
             flows[order],
             goal,
@@ -688,10 +487,7 @@ def balance_sizes(
         )
         rounds += 1
         moves, moved = moves + int(steps.sum()), moved + float(got.sum())
-        # A short transfer blocks its arc when moves were refused (a transfer that
-        # found no node touching the receiver met a border already moved this round).
-        refused = (why[:, :_TOO_BIG].sum(axis=1) > 0) | ((why[:, _TOO_BIG] > 0) & (steps == 0))
-        short = (asked - got > tol) & refused
+        short = _short_transfers(asked - got > tol, steps, why)
         for i in np.flatnonzero(short).tolist():
             shut[(int(plan[i, 0]), int(plan[i, 1]))] = why[i]
         logger.debug(

@@ -34,6 +34,7 @@ __all__ = [
     "pieces_per_zone",
     "reach",
     "stays_connected",
+    "two_zone_weights",
     "zone_pieces",
 ]
 
@@ -194,3 +195,16 @@ def stays_connected(v, limit, indptr, indices, labels, marks, stamp, queue):  # 
         return True
     status, _ = reach(first, v, wanted, limit, indptr, indices, labels, marks, stamp, queue)
     return status == 1
+
+
+@njit(cache=True)
+def two_zone_weights(v, y, z, indptr, indices, data, labels):  # pragma: no cover - compiled
+    """Link weight from node ``v`` into zone ``y`` and into zone ``z`` (``y != z``)."""
+    wy, wz = 0.0, 0.0
+    for p in range(indptr[v], indptr[v + 1]):
+        zone = labels[indices[p]]
+        if zone == y:
+            wy += data[p]
+        elif zone == z:
+            wz += data[p]
+    return wy, wz

@@ -69,7 +69,8 @@ from numba import njit
 
 from .._validation import check_int, check_rng
 from ..exceptions import ParameterError
-from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, stays_connected
+from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, stays_connected, two_zone_weights
+from ._heap import HEAP_START, heap_pop, heap_push
 
 __all__ = [
     "CONNECTIVITY_SEARCH_LIMIT",
@@ -107,8 +108,6 @@ GAIN_TOLERANCE = 1e-12
 #: Zone volumes below this fraction of the total volume count as zero when a
 #: move leaves a zone with only zero-degree nodes (rounding guard).
 _VOLUME_FLOOR = 1e-12
-
-_HEAP_START = 1024  # initial heap capacity; the heap doubles as needed
 
 
 @dataclass(frozen=True, eq=False)
@@ -279,13 +278,7 @@ def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, f
 def _apply_move(v, b, indptr, indices, data, labels, degree, sizes, state):  # pragma: no cover
     """Move ``v`` to zone ``b`` and update the zone totals in ``state``."""
     a = labels[v]
-    wa, wb = 0.0, 0.0
-    for p in range(indptr[v], indptr[v + 1]):
-        z = labels[indices[p]]
-        if z == a:
-            wa += data[p]
-        elif z == b:
-            wb += data[p]
+    wa, wb = two_zone_weights(v, a, b, indptr, indices, data, labels)
     d = degree[v]
     state[0, a] += 2.0 * wa - d
     state[1, a] -= d
@@ -299,62 +292,48 @@ def _apply_move(v, b, indptr, indices, data, labels, degree, sizes, state):  # p
 
 
 @njit(cache=True)
-def _heap_before(keys, items, i, j):  # pragma: no cover - compiled
-    """Entry ``i`` comes out before ``j``: larger gain, then smaller tie-break rank."""
-    return keys[i] > keys[j] or (keys[i] == keys[j] and items[i, 0] < items[j, 0])
+def _queue_boundary(movable, rank, args):  # pragma: no cover - compiled
+    """A new heap holding every movable node with a neighbour in another zone, at its best move.
+
+    ``args`` is the argument tuple of :func:`_best_move` after the node.
+    Returns ``(keys, items, size)``.
+    """
+    indptr, indices, labels = args[0], args[1], args[3]
+    keys = np.empty(HEAP_START)
+    items = np.empty((HEAP_START, 5), dtype=np.int64)
+    size = 0
+    for v in range(labels.size):
+        if not movable[v]:
+            continue
+        for p in range(indptr[v], indptr[v + 1]):
+            if labels[indices[p]] != labels[v]:
+                gain, target = _best_move(v, *args)
+                if target >= 0:
+                    keys, items, size = heap_push(keys, items, size, gain, rank[v], v, 0, 0, target)
+                break
+    return keys, items, size
 
 
 @njit(cache=True)
-def _heap_swap(keys, items, i, j):  # pragma: no cover - compiled
-    """Exchange heap entries ``i`` and ``j`` (key and all five item fields)."""
-    keys[i], keys[j] = keys[j], keys[i]
-    for c in range(5):
-        items[i, c], items[j, c] = items[j, c], items[i, c]
+def _requeue_neighbours(v, moves, heap, movable, locked, version, rank, args):  # pragma: no cover
+    """Queue the free neighbours of the node ``v`` just moved again, at their new best move.
 
-
-@njit(cache=True)
-def _heap_push(keys, items, size, gain, rank, node, version, stamp, target):  # pragma: no cover
-    """Push an entry; returns the (possibly reallocated) arrays and the new size."""
-    if size == keys.size:
-        bigger_keys = np.empty(2 * keys.size)
-        bigger_items = np.empty((2 * keys.size, 5), dtype=np.int64)
-        bigger_keys[:size] = keys[:size]
-        bigger_items[:size] = items[:size]
-        keys, items = bigger_keys, bigger_items
-    keys[size] = gain
-    items[size, 0] = rank
-    items[size, 1] = node
-    items[size, 2] = version
-    items[size, 3] = stamp
-    items[size, 4] = target
-    i = size
-    while i > 0:
-        parent = (i - 1) // 2
-        if not _heap_before(keys, items, i, parent):
-            break
-        _heap_swap(keys, items, i, parent)
-        i = parent
-    return keys, items, size + 1
-
-
-@njit(cache=True)
-def _heap_pop(keys, items, size):  # pragma: no cover - compiled
-    """Remove the top entry into slot ``size - 1`` and return the new size."""
-    last = size - 1
-    _heap_swap(keys, items, 0, last)
-    i = 0
-    while True:
-        left = 2 * i + 1
-        if left >= last:
-            break
-        child = left
-        if left + 1 < last and _heap_before(keys, items, left + 1, left):
-            child = left + 1
-        if not _heap_before(keys, items, child, i):
-            break
-        _heap_swap(keys, items, i, child)
-        i = child
-    return last
+    Their older entries are superseded (``version``); ``moves`` stamps the
+    new ones as evaluated at the current state. Returns the heap
+    ``(keys, items, size)``.
+    """
+    keys, items, size = heap
+    indptr, indices = args[0], args[1]
+    for p in range(indptr[v], indptr[v + 1]):
+        u = indices[p]
+        if movable[u] and not locked[u]:
+            version[u] += 1
+            gain_u, target_u = _best_move(u, *args)
+            if target_u >= 0:
+                keys, items, size = heap_push(
+                    keys, items, size, gain_u, rank[u], u, version[u], moves, target_u
+                )
+    return keys, items, size
 
 
 @njit(cache=True)
@@ -379,28 +358,13 @@ def _refine_pass(
     version = np.zeros(n, dtype=np.int64)
     log_node = np.empty(n, dtype=np.int64)
     log_zone = np.empty(n, dtype=np.int64)
-    keys = np.empty(_HEAP_START)
-    items = np.empty((_HEAP_START, 5), dtype=np.int64)
-    size = 0
     args = (indptr, indices, data, labels, degree, sizes, state, lo, hi, floor, scratch)
-
-    # Every movable node with a neighbour in another zone enters the queue.
-    for v in range(n):
-        if not movable[v]:
-            continue
-        for p in range(indptr[v], indptr[v + 1]):
-            if labels[indices[p]] != labels[v]:
-                gain, target = _best_move(v, *args)
-                if target >= 0:
-                    keys, items, size = _heap_push(
-                        keys, items, size, gain, rank[v], v, 0, 0, target
-                    )
-                break
+    keys, items, size = _queue_boundary(movable, rank, args)
 
     moves, kept, since = 0, 0, 0
     total, best = 0.0, 0.0
     while size > 0:
-        size = _heap_pop(keys, items, size)
+        size = heap_pop(keys, items, size)
         gain = keys[size]
         v, ver, stamp, target = items[size, 1], items[size, 2], items[size, 3], items[size, 4]
         if locked[v] or ver != version[v]:
@@ -409,7 +373,7 @@ def _refine_pass(
             gain, target = _best_move(v, *args)
             version[v] += 1
             if target >= 0:
-                keys, items, size = _heap_push(
+                keys, items, size = heap_push(
                     keys, items, size, gain, rank[v], v, version[v], moves, target
                 )
             continue
@@ -427,15 +391,10 @@ def _refine_pass(
             since += 1
             if since > limits[0]:
                 break
-        for p in range(indptr[v], indptr[v + 1]):
-            u = indices[p]
-            if movable[u] and not locked[u]:
-                version[u] += 1
-                gain_u, target_u = _best_move(u, *args)
-                if target_u >= 0:
-                    keys, items, size = _heap_push(
-                        keys, items, size, gain_u, rank[u], u, version[u], moves, target_u
-                    )
+        heap = _requeue_neighbours(
+            v, moves, (keys, items, size), movable, locked, version, rank, args
+        )
+        keys, items, size = heap
 
     # Undo the moves after the best prefix, newest first: each undo sees the
     # labels its move saw, so the totals come back exactly to that state.
