@@ -43,7 +43,7 @@ from ._plots import (
 )
 
 if TYPE_CHECKING:
-    from ..diagnostics import Stability
+    from ..studies import Stability
     from ..zones import Zoning
 
 __all__ = [

@@ -68,7 +68,7 @@ from ..network import Network
 from ..zones._count import HIGH_GAP, MEDIUM_GAP
 
 if TYPE_CHECKING:
-    from ..diagnostics import Stability
+    from ..studies import Stability
     from ..zones import Zoning
 
 __all__ = [
