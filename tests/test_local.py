@@ -201,3 +201,27 @@ def test_bad_input_is_named() -> None:
     lonely = Network.from_links(["a"], ["b"], node_ids=["a", "b", "c"])
     with pytest.raises(ParameterError, match="'c'"):
         local_zone(lonely, "c")
+
+
+def test_local_zone_boundary_is_the_networkx_edge_boundary() -> None:
+    # The boundary table lists exactly the links networkx's edge_boundary finds
+    # between the zone and the rest, with the end that lies inside.
+    net = gallery.grid(6, 6)
+    zone = local_zone(net, "0", size_limit=12)
+    graph = nx.Graph()
+    graph.add_edges_from(zip(*(net.link_table[c] for c in ("source", "target")), strict=True))
+    members = set(zone.nodes.tolist())
+    expected = {frozenset(link) for link in nx.edge_boundary(graph, members)}
+    table = zone.boundary
+    assert list(table.columns[:4]) == ["source", "target", "weight", "inside"]
+    got = {frozenset(pair) for pair in zip(table["source"], table["target"], strict=True)}
+    assert got == expected
+    assert set(table["inside"]) <= members
+    outside = np.where(table["inside"] == table["source"], table["target"], table["source"])
+    assert not set(outside) & members
+    assert table["weight"].sum() == pytest.approx(zone.boundary_weight, rel=1e-12)
+    figures = zone.figures()
+    assert figures["boundary_links"] == len(expected)
+    assert figures["network_nodes"] == net.n_nodes == 36
+    assert figures["nodes"] == len(members)
+    assert zone.to_frame()["node"].tolist() == zone.nodes.tolist()

@@ -122,6 +122,12 @@ class LocalZone:
         the largest ``p(S) - vol(S)/vol(G)`` over the sweep sets, the bound of
         :func:`acl_sweep_bound` (``inf`` when ``delta`` is too small for it
         to apply).
+    boundary : pandas.DataFrame
+        Every input link with one end in the zone: ``source``, ``target``,
+        ``weight``, ``inside`` (the end in the zone), then the columns
+        carried from the input link table, in input order.
+    network_nodes : int
+        Nodes of the whole network (to set ``touched`` against).
     """
 
     nodes: np.ndarray
@@ -141,6 +147,33 @@ class LocalZone:
     support_volume_bound: float
     max_residual_ratio: float
     sweep_bound: float
+    boundary: pd.DataFrame
+    network_nodes: int
+
+    def to_frame(self) -> pd.DataFrame:
+        """``node, sweep_rank`` table of the zone (rank 0: highest ``p/d``)."""
+        return pd.DataFrame({"node": self.nodes, "sweep_rank": np.arange(len(self.nodes))})
+
+    def figures(self) -> dict[str, Any]:
+        """The zone's figures and the walk's work, JSON-ready, for a run record."""
+        return {
+            "around": list(self.seeds),
+            "nodes": len(self.nodes),
+            "size": self.size,
+            "volume": self.volume,
+            "boundary_weight": self.boundary_weight,
+            "boundary_links": len(self.boundary),
+            "conductance": self.conductance,
+            "connected": self.connected,
+            "alpha": self.alpha,
+            "epsilon": self.epsilon,
+            "pushes": self.pushes,
+            "touched_nodes": self.touched,
+            "network_nodes": self.network_nodes,
+            "pushed_volume": self.pushed_volume,
+            "work_bound": self.work_bound,
+            "sweep_conductance_bound": self.sweep_bound,
+        }
 
 
 @dataclass(frozen=True, eq=False)
@@ -411,7 +444,28 @@ def local_zone(
             (push.r[u] / push.degree[u] for u in push.r if push.degree[u] > 0), default=0.0
         ),
         sweep_bound=acl_sweep_bound(alpha, delta, network.n_links),
+        boundary=_leaving_links(network, members),
+        network_nodes=network.n_nodes,
     )
+
+
+def _leaving_links(network: Network, members: list[int]) -> pd.DataFrame:
+    """Input links with exactly one end among ``members``, and which end that is.
+
+    Built from the input link table (repeated input links appear once per
+    input row, like :func:`specgraph.diagnostics.boundary_links`).
+    """
+    inside = np.zeros(network.n_nodes, dtype=bool)
+    inside[np.asarray(members, dtype=np.int64)] = True
+    table = network.link_table
+    src, dst = network.link_ends
+    crossing = inside[src] != inside[dst]
+    out = table.loc[crossing, ["source", "target", "weight"]].copy()
+    out["inside"] = np.where(
+        inside[src[crossing]], out["source"].to_numpy(), out["target"].to_numpy()
+    )
+    rest = [c for c in table.columns if c not in ("source", "target", "weight")]
+    return pd.concat([out, table.loc[crossing, rest]], axis=1).reset_index(drop=True)
 
 
 def _connected(network: Network, members: list[int]) -> bool:
