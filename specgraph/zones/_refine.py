@@ -69,6 +69,7 @@ from numba import njit
 
 from .._validation import check_int, check_rng
 from ..exceptions import ParameterError
+from ._arrays import as_csr
 from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, stays_connected, two_zone_weights
 from ._heap import HEAP_START, heap_pop, heap_push
 
@@ -144,10 +145,7 @@ def _csr(adjacency: Any) -> sp.csr_array:
         raise ParameterError(
             f"adjacency must be a scipy sparse matrix; got {type(adjacency).__name__}."
         )
-    a = sp.csr_array(adjacency, dtype=np.float64)
-    if a.shape[0] != a.shape[1]:
-        raise ParameterError(f"adjacency must be square; got shape {a.shape}.")
-    return a
+    return as_csr(adjacency)
 
 
 def _labels(labels: Any, n: int) -> np.ndarray:
