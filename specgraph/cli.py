@@ -14,63 +14,37 @@ import json
 import logging
 import math
 import os
-import shlex
 import sys
 import textwrap
-from collections.abc import Callable, Iterator, Sequence
+import traceback
+from collections.abc import Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
-import numpy as np
-
 from . import __version__
-from ._guard import check_memory
-from ._progress import stage_progress, wants_progress
+from ._commands import CAUTIONED, COMMANDS, REPORT_FILE, holds_nodes
+from ._commands import GEOJSON_FILES as GEOJSON_FILES  # re-exported: tests and users name it
+from ._progress import wants_progress
 from .diagnostics import (
     DEFAULT_TOP,
-    boundary_links,
-    compare_frames,
-    labels_from_mapping,
-    robustness,
-    score,
-    suggest_zone_counts,
 )
-from .eigen import DEFAULT_TOL, smallest_eigenpairs
-from .exceptions import ConvergenceError, InputError, ParameterError, SpecgraphError
+from .eigen import DEFAULT_TOL
+from .exceptions import ConvergenceError, ParameterError, SpecgraphError
 from .export import (
     CAUTION,
-    file_checksum,
-    jsonable,
-    parquet_available,
-    run_record,
+    not_converged_record,
     write_outputs,
-    zoning_geojson,
-    zoning_parquet,
-    zoning_tables,
 )
 from .io import (
     DEFAULT_SNAP_TOLERANCE,
-    GRAPHML_SUFFIXES,
-    flagged_links,
-    read_edges,
-    read_geojson_lines,
-    read_link_list,
-    read_node_list,
-    read_zone_file,
 )
-from .network import Network
-from .operators import laplacian
-from .report import build_report
-from .studies import DEFAULT_REPEATS, DEFAULT_SPREAD, stability
+from .studies import DEFAULT_REPEATS, DEFAULT_SPREAD
 from .walks import DEFAULT_DAMPING
 from .zones import (
     ASSIGNMENTS,
     DEFAULT_LOCAL_ALPHA,
     OPERATOR_KINDS,
     TREE_TREATMENTS,
-    ZoneConstraints,
-    find_zones,
-    local_zone,
     parse_zone_spec,
 )
 
@@ -300,14 +274,6 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
     )
 
 
-#: File name of the HTML report that --report adds to the output folder.
-REPORT_FILE = "report.html"
-#: Files that --geojson adds (names of :func:`specgraph.export.zoning_geojson`).
-GEOJSON_FILES = ["zones.geojson", "zone_summary.geojson", "boundary.geojson"]
-#: Suffixes (lower case) of edge files read as GeoJSON line networks.
-GEOJSON_SUFFIXES = frozenset({".geojson"})
-
-
 def _add_report(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--report",
@@ -332,18 +298,9 @@ def _add_formats(parser: argparse.ArgumentParser) -> None:
     )
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser of the ``specgraph`` command."""
-    parser = argparse.ArgumentParser(
-        prog="specgraph",
-        description="Split infrastructure networks into well-connected zones by spectral methods.",
-        epilog=_EXIT_CODES,
-        formatter_class=argparse.RawDescriptionHelpFormatter,
-    )
-    parser.add_argument("--version", action="version", version=f"specgraph {__version__}")
-    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+def _add_zones_command(commands: Any) -> None:
+    """The ``zones`` subcommand."""
     raw = argparse.RawDescriptionHelpFormatter
-
     zones = commands.add_parser(
         "zones",
         help="split a network into zones and write zones, boundary links and a summary",
@@ -364,6 +321,10 @@ def build_parser() -> argparse.ArgumentParser:
     _add_formats(zones)
     _add_common(zones, out="specgraph-zones")
 
+
+def _add_spectrum_command(commands: Any) -> None:
+    """The ``spectrum`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     spectrum = commands.add_parser(
         "spectrum",
         help="smallest eigenvalues, residuals and suggested zone counts",
@@ -383,6 +344,10 @@ def build_parser() -> argparse.ArgumentParser:
     _add_solving(spectrum, auto=True)
     _add_common(spectrum, out="specgraph-spectrum")
 
+
+def _add_score_command(commands: Any) -> None:
+    """The ``score`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     score = commands.add_parser(
         "score",
         help="figures of an existing zoning: conductance, normalized cut, modularity, outliers",
@@ -421,6 +386,10 @@ def build_parser() -> argparse.ArgumentParser:
     score.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
     _add_common(score, out="specgraph-score")
 
+
+def _add_compare_command(commands: Any) -> None:
+    """The ``compare`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     compare = commands.add_parser(
         "compare",
         help="agreement of two zonings: ARI, NMI, variation of information, splits and merges",
@@ -436,6 +405,10 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
     _add_common(compare, out="specgraph-compare")
 
+
+def _add_robustness_command(commands: Any) -> None:
+    """The ``robustness`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     robust = commands.add_parser(
         "robustness",
         help="algebraic connectivity, bridges, articulation nodes and bottleneck links",
@@ -465,6 +438,10 @@ def build_parser() -> argparse.ArgumentParser:
     robust.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
     _add_common(robust, out="specgraph-robustness")
 
+
+def _add_stability_command(commands: Any) -> None:
+    """The ``stability`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     stable = commands.add_parser(
         "stability",
         help="how much the zones move under other seeds and slightly perturbed weights",
@@ -498,6 +475,10 @@ def build_parser() -> argparse.ArgumentParser:
     _add_report(stable)
     _add_common(stable, out="specgraph-stability")
 
+
+def _add_local_command(commands: Any) -> None:
+    """The ``local`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     local = commands.add_parser(
         "local",
         help="a compact, weakly attached zone around one or more assets",
@@ -535,6 +516,10 @@ def build_parser() -> argparse.ArgumentParser:
     )
     _add_common(local, out="specgraph-local")
 
+
+def _add_demo_command(commands: Any) -> None:
+    """The ``demo`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
     demo = commands.add_parser(
         "demo",
         help="zone the bundled demo network (the invented town of Quillmere)",
@@ -547,21 +532,39 @@ def build_parser() -> argparse.ArgumentParser:
     _add_report(demo)
     _add_formats(demo)
     _add_common(demo, out="specgraph-demo")
+
+
+#: The subcommands, in the order ``specgraph --help`` lists them.
+_SUBCOMMANDS = (
+    _add_zones_command,
+    _add_spectrum_command,
+    _add_score_command,
+    _add_compare_command,
+    _add_robustness_command,
+    _add_stability_command,
+    _add_local_command,
+    _add_demo_command,
+)
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser of the ``specgraph`` command."""
+    parser = argparse.ArgumentParser(
+        prog="specgraph",
+        description="Split infrastructure networks into well-connected zones by spectral methods.",
+        epilog=_EXIT_CODES,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--version", action="version", version=f"specgraph {__version__}")
+    commands = parser.add_subparsers(dest="command", required=True, metavar="COMMAND")
+    for add_command in _SUBCOMMANDS:
+        add_command(commands)
     return parser
 
 
-def _holds_nodes(path: str) -> bool:
-    """Whether the edge file also holds the node table (GraphML does)."""
-    return Path(path).suffix.lower() in GRAPHML_SUFFIXES
-
-
-def _node_table(args: argparse.Namespace) -> str:
-    """The file whose node table node-column options refer to."""
-    return str(args.nodes) if args.nodes else str(args.edges)
-
-
+# ------------------------------------------------------------ options -> library
 def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespace) -> None:
-    if getattr(args, "edges", None) is None or args.nodes or _holds_nodes(args.edges):
+    if getattr(args, "edges", None) is None or args.nodes or holds_nodes(args.edges):
         return
     for option, value in (
         ("--size-col", args.size_col),
@@ -573,602 +576,7 @@ def _check_node_options(parser: argparse.ArgumentParser, args: argparse.Namespac
             parser.error(f"{option} names a column of the node table, so it needs --nodes")
 
 
-def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
-    if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:
-        network = _read_geojson(args)
-    else:
-        network = _read_table(args)
-    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
-    inputs = [{"role": "edges", "path": args.edges, "checksum": file_checksum(args.edges)}]
-    if args.nodes:
-        inputs.append({"role": "nodes", "path": args.nodes, "checksum": file_checksum(args.nodes)})
-    return network, inputs
-
-
-def _read_geojson(args: argparse.Namespace) -> Network:
-    """A line network from GeoJSON; what was snapped or skipped is said on stderr."""
-    for option, value in (
-        ("--nodes", args.nodes),
-        ("--size-col", args.size_col),
-        ("--directed", args.directed),
-    ):
-        if value:
-            raise ParameterError(
-                f"{option}: not available for a GeoJSON line network (its nodes are built "
-                "from the line ends, and its lines are read without direction); leave the "
-                f"option out, or convert the lines to an edge table; received {option} {value}"
-            )
-    network, report = read_geojson_lines(
-        args.edges,
-        snap_tolerance=args.snap,
-        weight=args.weight,
-        distance=args.distance,
-        on_invalid="skip" if args.skip_invalid else "raise",
-    )
-    logger.info(
-        "GeoJSON: %d features, %d links, %d nodes; %d line ends snapped (largest gap %.3g)",
-        report.features,
-        report.links,
-        report.nodes,
-        report.snapped_ends,
-        report.largest_snap,
-    )
-    for message in report.warnings:
-        logger.warning("warning: %s", message)
-    return network
-
-
-def _check_formats(network: Network, args: argparse.Namespace) -> None:
-    """Refuse extra formats that cannot be written, before any work is done."""
-    if getattr(args, "geojson", False) and network.coordinates is None:
-        raise ParameterError(
-            "--geojson: GeoJSON features need node coordinates, and this network has none; "
-            "give --nodes with --x-col and --y-col (or read a GeoJSON line network)"
-        )
-    if getattr(args, "parquet", False) and not parquet_available():
-        raise ParameterError(
-            "--parquet: writing Parquet needs pyarrow, which is not installed; install it "
-            "with: pip install 'specgraph[parquet]'"
-        )
-
-
-def _read_table(args: argparse.Namespace) -> Network:
-    return read_edges(
-        args.edges,
-        source=args.source,
-        target=args.target,
-        weight=args.weight,
-        distance=args.distance,
-        nodes=args.nodes,
-        node=args.node_col,
-        x=args.x_col,
-        y=args.y_col,
-        size=args.size_col,
-        directed=args.directed,
-    )
-
-
-def _read_sources(network: Network, args: argparse.Namespace) -> tuple[str, ...]:
-    """Supply points from ``--supply-col`` and ``--supply-list``, each once, checked
-    against the network so that an unknown id is reported at its file and line."""
-    sources: tuple[str, ...] = ()
-    if getattr(args, "supply_col", None):
-        sources += read_node_list(
-            _node_table(args),
-            node=args.node_col,
-            flag=args.supply_col,
-            network=network,
-            option="--supply-col",
-        )
-    if getattr(args, "supply_list", None):
-        sources += read_node_list(
-            args.supply_list, node=args.node_col, network=network, option="--supply-list"
-        )
-    return tuple(dict.fromkeys(sources))
-
-
-def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
-    """The zone constraints the options ask for, read from their files and columns.
-
-    Ids in rule files are checked against the network here, so that an unknown
-    id is reported at its file, line and column.
-    """
-    sources = _read_sources(network, args)
-    keep: list[tuple[str, str]] = []
-    if getattr(args, "keep_col", None):
-        ids = network.node_ids
-        keep += [(ids[a], ids[b]) for a, b in flagged_links(network, args.keep_col).tolist()]
-    if getattr(args, "keep_list", None):
-        keep += read_link_list(
-            args.keep_list,
-            source=args.source,
-            target=args.target,
-            network=network,
-            option="--keep-list",
-        )
-    fixed = None
-    if getattr(args, "fixed", None):
-        fixed = read_zone_file(args.fixed, node=args.node_col, network=network, option="--fixed")
-    by_size = network.sizes is not None and not args.count_nodes
-    return ZoneConstraints(
-        min_size=args.min_size,
-        max_size=args.max_size,
-        size_by="weight" if by_size else "nodes",
-        sources=sources,
-        keep_links=tuple(keep),
-        fixed=fixed,
-    )
-
-
-def _zone_and_write(
-    network: Network,
-    inputs: list[dict[str, Any]],
-    args: argparse.Namespace,
-    argv: list[str],
-    step: Callable[[str], None],
-    *,
-    markers: Sequence[str] = (),
-) -> dict[str, Any]:
-    _check_formats(network, args)
-    step("reading rules")
-    constraints = _constraints(network, args)  # reads (and checks) the rule files first
-    for option in ("supply_list", "keep_list", "fixed"):
-        path = getattr(args, option, None)
-        if path:
-            role = option.replace("_", " ")
-            inputs.append({"role": role, "path": path, "checksum": file_checksum(path)})
-    zoning = find_zones(
-        network,
-        args.zones,
-        operator=args.operator,
-        assign=args.assign,
-        trees=args.trees,
-        constraints=constraints,
-        refine=not args.no_refine,
-        tol=args.tol,
-        rng=args.seed,
-        damping=args.damping,
-        progress=step,
-    )
-    step("writing")
-    record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
-    tables = zoning_tables(zoning)
-    files: dict[str, Any] = {**tables, "run.json": record}
-    if args.report:
-        files[REPORT_FILE] = build_report(
-            zoning,
-            command=shlex.join(["specgraph", *argv]),
-            record=record,
-            tables=tables,
-            sources=tuple(dict.fromkeys([*constraints.sources, *markers])),
-        )
-    # Files of optional formats that this run does not write go in the same commit, so
-    # that a folder never mixes this run's tables with an earlier run's extras.
-    stale = [] if args.report else [REPORT_FILE]
-    if args.geojson:
-        files.update(zoning_geojson(zoning))
-    else:
-        stale += GEOJSON_FILES
-    if args.parquet:
-        files.update(zoning_parquet(zoning))
-    else:
-        stale += [str(Path(name).with_suffix(".parquet")) for name in tables]
-    written = write_outputs(args.out, files, remove=stale)
-    for message in zoning.warnings:
-        logger.warning("warning: %s", message)
-    for name, decision in zoning.decisions.items():
-        logger.info("%s: %s", name, decision["reason"])
-    scores = zoning.scores
-    logger.info(
-        "%d zones, normalized cut %.4g, %d boundary links, all zones connected: %s",
-        scores["zones"],
-        scores["normalized_cut"],
-        scores["boundary_links"],
-        "yes" if scores["all_connected"] else "NO",
-    )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "scores": scores, "warnings": list(zoning.warnings)}
-
-
-#: Stages of a zoning run, as the progress bar counts them.
-ZONING_STAGES = ["reading", "reading rules", "solving", "constraints", "refining", "writing"]
-
-
-def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    with stage_progress(ZONING_STAGES, enabled=args.progress) as step:
-        step("reading")
-        network, inputs = _read(args)
-        logger.info("read %r", network)
-        return _zone_and_write(network, inputs, args, argv, step)
-
-
-def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    from .demo import demo_files, load_demo
-
-    network = load_demo()
-    files = demo_files()
-    inputs = [
-        {"role": role, "path": f"<demo>/{path.name}", "checksum": file_checksum(path)}
-        for role, path in (("edges", files.pipes), ("nodes", files.junctions))
-    ]
-    args.count_nodes = False
-    logger.info("demo: the invented town of Quillmere, %r", network)
-    # The demo zones without rules; its treatment works are shown on the map as markers.
-    works = read_node_list(files.sources, node="node")
-    with stage_progress(ZONING_STAGES[1:], enabled=args.progress) as step:
-        return _zone_and_write(network, inputs, args, argv, step, markers=works)
-
-
-def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    import pandas as pd
-
-    network, inputs = _read(args)
-    count = min(args.count, network.n_nodes)
-    # 'auto': the directed Laplacian for a network read with directions, else the normalized.
-    if args.operator == "auto":
-        args.operator = "directed" if network.directed else "normalized"
-    damping = args.damping if args.operator == "directed" else None
-    result = smallest_eigenpairs(
-        laplacian(network, kind=args.operator, damping=damping),
-        count,
-        tol=args.tol,
-        rng=args.seed,
-    )
-    table = pd.DataFrame(
-        {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
-    )
-    # Eigengap suggestions read the normalized Laplacian's spectrum (Cheeger);
-    # the other operators' eigenvalues are listed without them.
-    suggested = (
-        suggest_zone_counts(result.values, n_components=network.n_components)
-        if args.operator in ("normalized", "random_walk", "directed")
-        else []
-    )
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": inputs,
-        "network": {
-            "nodes": network.n_nodes,
-            "links": network.n_links,
-            "components": network.n_components,
-        },
-        "eigen_solve": {
-            "method": result.method,
-            "pairs": result.k,
-            "tol": result.tol,
-            "max_residual": result.max_residual,
-            "matvecs": result.matvecs,
-            "iterations": result.iterations,
-            "converged": result.converged,
-        },
-        "suggested_zone_counts": suggested,
-        "caution": CAUTION,
-    }
-    write_outputs(args.out, {"spectrum.csv": table, "run.json": record})
-    for row in suggested:
-        logger.info(
-            "suggested zones: %d (relative eigengap %.2f)", row["zones"], row["relative_gap"]
-        )
-    return {"out": str(args.out), "eigenvalues": result.values.tolist(), "suggested": suggested}
-
-
-def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    import pandas as pd
-
-    network, inputs = _read(args)
-    mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
-    labels, coverage = labels_from_mapping(network, mapping, path=args.zones_file)
-    sources = _read_sources(network, args)
-    inputs.append(
-        {"role": "zones", "path": args.zones_file, "checksum": file_checksum(args.zones_file)}
-    )
-    card = score(
-        network,
-        labels,
-        sources=sources or None,
-        eigengap=not args.no_eigengap,
-        rng=args.seed,
-        tol=args.tol,
-        damping=args.damping,
-    )
-    if coverage.unassigned:
-        logger.warning(
-            "warning: %d nodes of the network are in no zone of %s (for example %s); they are "
-            "scored as outside every zone",
-            coverage.unassigned,
-            args.zones_file,
-            ", ".join(coverage.unassigned_examples),
-        )
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": inputs,
-        "coverage": coverage.as_dict(),
-        "overall": card.overall,
-        "eigenvalues": card.eigenvalues,
-        "caution": CAUTION,
-    }
-    files: dict[str, Any] = {"zone_scores.csv": card.zones, "run.json": jsonable(record)}
-    if card.node_importance is not None:
-        files["node_importance.csv"] = pd.DataFrame(
-            {"node": network.node_ids, "zone": labels, "importance": card.node_importance}
-        )
-    if coverage.unassigned:
-        files["unassigned.csv"] = pd.DataFrame({"node": list(card.unassigned)})
-    written = write_outputs(
-        args.out, files, remove=() if coverage.unassigned else ["unassigned.csv"]
-    )
-    overall = card.overall
-    logger.info(
-        "%d zones, normalized cut %.4g, modularity %.4g, %d flagged as outliers, "
-        "all zones connected: %s",
-        overall["zones"],
-        overall["normalized_cut"],
-        overall["modularity"],
-        overall["flagged_zones"],
-        "yes" if overall["all_connected"] else "NO",
-    )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "overall": jsonable(overall), "coverage": coverage.as_dict()}
-
-
-def _cmd_compare(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    first = read_zone_file(args.zones_a, node=args.node_col, zone=args.zone_col)
-    second = read_zone_file(args.zones_b, node=args.node_col, zone=args.zone_col)
-    result = compare_frames(first, second)
-    summary = result.summary()
-    for side, count, examples in (
-        (args.zones_a, result.only_in_a, result.examples_only_in_a),
-        (args.zones_b, result.only_in_b, result.examples_only_in_b),
-    ):
-        if count:
-            logger.warning(
-                "warning: %d nodes are only in %s (for example %s); compared on the %d common "
-                "nodes",
-                count,
-                side,
-                ", ".join(examples),
-                result.nodes_compared,
-            )
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": [
-            {"role": role, "path": path, "checksum": file_checksum(path)}
-            for role, path in (("zones_a", args.zones_a), ("zones_b", args.zones_b))
-        ],
-        "summary": summary,
-    }
-    written = write_outputs(
-        args.out,
-        {
-            "overlap.csv": result.overlap,
-            "matched.csv": result.matched,
-            "splits.csv": result.splits,
-            "merges.csv": result.merges,
-            "run.json": jsonable(record),
-        },
-    )
-    logger.info(
-        "adjusted Rand %.4f, NMI %.4f, variation of information %.4f nats; %d zones of A "
-        "split, %d zones of B merge several of A",
-        result.adjusted_rand,
-        result.nmi,
-        result.variation_of_information,
-        len(result.splits),
-        len(result.merges),
-    )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "summary": jsonable(summary)}
-
-
-def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    network, inputs = _read(args)
-    labels = None
-    if args.zones_file:
-        mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
-        labels, coverage = labels_from_mapping(network, mapping, path=args.zones_file)
-        if coverage.unassigned:
-            raise InputError(
-                f"{coverage.unassigned} nodes of the network are in no zone (for example "
-                f"{', '.join(coverage.unassigned_examples)}); robustness per zone needs every "
-                "node in a zone: complete the table, or leave out --zones-file",
-                path=args.zones_file,
-            )
-        inputs.append(
-            {"role": "zones", "path": args.zones_file, "checksum": file_checksum(args.zones_file)}
-        )
-    result = robustness(network, labels=labels, top=args.top, rng=args.seed, tol=args.tol)
-    files: dict[str, Any] = {
-        "links.csv": result.links,
-        "bridges.csv": result.bridges,
-        "articulation_nodes.csv": result.nodes,
-        "components.csv": result.components,
-    }
-    if result.zones is not None:
-        files["zone_connectivity.csv"] = result.zones
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": inputs,
-        "summary": result.record,
-        "caution": CAUTION,
-    }
-    files["run.json"] = jsonable(record)
-    stale = [] if result.zones is not None else ["zone_connectivity.csv"]
-    written = write_outputs(args.out, files, remove=stale)
-    logger.info(
-        "algebraic connectivity %.4g (normalized %.4g); %d bridges, %d articulation nodes",
-        result.algebraic_connectivity,
-        result.normalized_connectivity,
-        len(result.bridges),
-        len(result.nodes),
-    )
-    if len(result.bridges):
-        worst = result.bridges.iloc[0]
-        logger.info(
-            "worst bridge %s - %s: its failure cuts off %d nodes (size %g)",
-            worst["source"],
-            worst["target"],
-            worst["cut_nodes"],
-            worst["cut_size"],
-        )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "summary": jsonable(result.record)}
-
-
-def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    network, inputs = _read(args)
-    constraints = _constraints(network, args)
-    options = {
-        "operator": args.operator,
-        "assign": args.assign,
-        "trees": args.trees,
-        "constraints": constraints,
-        "refine": not args.no_refine,
-        "tol": args.tol,
-        "damping": args.damping,
-    }
-    logger.info(
-        "zoning %d times (1 reference, %d other seeds, %d with weights perturbed by %.0f%%)",
-        2 * args.repeats + 1,
-        args.repeats,
-        args.repeats,
-        100 * args.spread,
-    )
-    result = stability(
-        network,
-        args.zones,
-        repeats=args.repeats,
-        spread=args.spread,
-        zone_options=options,
-        rng=args.seed,
-        progress=args.progress,
-    )
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": inputs,
-        "overall": result.overall,
-        "eigengap_checks": result.bounds.to_dict(orient="records"),
-        "warnings": list(result.warnings),
-        "caution": CAUTION,
-    }
-    files: dict[str, Any] = {
-        "node_confidence.csv": result.nodes,
-        "zone_stability.csv": result.zones,
-        "runs.csv": result.runs,
-        "run.json": jsonable(record),
-    }
-    if args.report:
-        files[REPORT_FILE] = build_report(
-            result.reference,
-            command=shlex.join(["specgraph", *argv]),
-            stability=result,
-            sources=constraints.sources,
-            title="Zoning stability report",
-        )
-    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
-    for message in result.warnings:
-        logger.warning("warning: %s", message)
-    overall = result.overall
-    logger.info(
-        "mean node confidence %.3f; adjusted Rand against the reference: seeds %.3f, "
-        "perturbed weights %.3f; %d unstable zones",
-        overall["mean_confidence"],
-        overall["seed_ari_mean"],
-        overall["perturbed_ari_mean"],
-        len(overall["unstable_zones"]),
-    )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "overall": jsonable(overall), "warnings": list(result.warnings)}
-
-
-def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    import pandas as pd
-
-    network, inputs = _read(args)
-    if network.directed:
-        logger.warning(
-            "warning: the local zone walks the links in both directions; --directed is "
-            "recorded but does not change it"
-        )
-    found = local_zone(network, args.around, size_limit=args.size_limit, alpha=args.alpha)
-    inside = np.zeros(network.n_nodes, dtype=np.int64)
-    rows = np.array([network.index_of[node] for node in found.nodes], dtype=np.int64)
-    inside[rows] = 1
-    crossing = boundary_links(network, inside)
-    crossing.insert(
-        3, "inside", np.where(crossing["zone_a"] == 1, crossing["source"], crossing["target"])
-    )
-    crossing = crossing.drop(columns=["zone_a", "zone_b"])
-    zone = pd.DataFrame({"node": found.nodes, "sweep_rank": np.arange(len(found.nodes))})
-    figures = {
-        "around": list(found.seeds),
-        "nodes": len(found.nodes),
-        "size": found.size,
-        "volume": found.volume,
-        "boundary_weight": found.boundary_weight,
-        "boundary_links": len(crossing),
-        "conductance": found.conductance,
-        "connected": found.connected,
-        "alpha": found.alpha,
-        "epsilon": found.epsilon,
-        "pushes": found.pushes,
-        "touched_nodes": found.touched,
-        "network_nodes": network.n_nodes,
-        "pushed_volume": found.pushed_volume,
-        "work_bound": found.work_bound,
-        "sweep_conductance_bound": found.sweep_bound,
-    }
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "inputs": inputs,
-        "local_zone": figures,
-        "caution": CAUTION,
-    }
-    written = write_outputs(
-        args.out,
-        {
-            "local_zone.csv": zone,
-            "local_boundary.csv": crossing,
-            "sweep.csv": found.profile,
-            "run.json": jsonable(record),
-        },
-    )
-    if not found.connected:
-        logger.warning(
-            "warning: the zone is in several pieces (the assets are far apart); each piece "
-            "is weakly attached, but they do not form one area"
-        )
-    logger.info(
-        "local zone around %s: %d nodes, conductance %.4g, %d boundary links; the walk "
-        "touched %d of %d nodes",
-        ", ".join(found.seeds),
-        len(found.nodes),
-        found.conductance,
-        len(crossing),
-        found.touched,
-        network.n_nodes,
-    )
-    logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "local_zone": jsonable(figures)}
-
-
-_COMMANDS = {
-    "zones": _cmd_zones,
-    "spectrum": _cmd_spectrum,
-    "score": _cmd_score,
-    "compare": _cmd_compare,
-    "robustness": _cmd_robustness,
-    "stability": _cmd_stability,
-    "demo": _cmd_demo,
-    "local": _cmd_local,
-}
-
-
+# ------------------------------------------------------------------ running
 @contextlib.contextmanager
 def _messages_to_stderr(quiet: bool) -> Iterator[None]:
     """Route the library's log records to stderr for one command, then restore."""
@@ -1203,33 +611,45 @@ def main(argv: Sequence[str] | None = None) -> int:
 
 
 def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
-    """Run one command; map every failure to its exit code and a one-line message."""
-    if args.command in ("zones", "demo", "score", "stability", "robustness", "local"):
+    """Run one command; map every failure to its exit code and a one-line message.
+
+    Errors raised on purpose (:class:`SpecgraphError`: bad input, parameters or
+    constraints, unwritable output, too little memory) exit 2, a missed
+    tolerance exits 3, anything else is an internal error (exit 1). The
+    traceback is shown with ``--debug`` only.
+    """
+    if args.command in CAUTIONED:
         logger.info("caution: %s", CAUTION)
     try:
-        summary = _COMMANDS[args.command](args, argv)
+        summary = COMMANDS[args.command](args, argv)
     except ConvergenceError as exc:
-        partial = exc.partial
         logger.error("error: %s", exc)
         logger.error(
             "partial residuals: %s; no zones were written",
-            [f"{r:.3g}" for r in partial.residuals],
+            [f"{r:.3g}" for r in exc.partial.residuals],
         )
+        _debug_traceback(args)
         _record_not_converged(args, argv, exc)
         return EXIT_NOT_CONVERGED, None
-    except (SpecgraphError, ValueError) as exc:
-        if args.debug:
-            raise
+    except SpecgraphError as exc:
         logger.error("error: %s", exc)
+        _debug_traceback(args)
         return EXIT_INPUT, None
     except Exception as exc:
-        if args.debug:
-            raise
         logger.error(
-            "internal error: %s: %s (rerun with --debug and report it)", type(exc).__name__, exc
+            "internal error: %s: %s (rerun with --debug and report it)",
+            type(exc).__name__,
+            " ".join(str(exc).split()),
         )
+        _debug_traceback(args)
         return EXIT_INTERNAL, None
     return EXIT_OK, summary
+
+
+def _debug_traceback(args: argparse.Namespace) -> None:
+    """With ``--debug``, the traceback of the error being handled, on stderr."""
+    if args.debug:
+        traceback.print_exc(file=sys.stderr)
 
 
 #: The only file a run whose eigen-solve missed its tolerance writes: the
@@ -1241,24 +661,9 @@ def _record_not_converged(
     args: argparse.Namespace, argv: list[str], error: ConvergenceError
 ) -> None:
     """Write the partial eigen-solve figures of a failed run to ``NOT_CONVERGED_FILE``."""
-    partial = error.partial
-    record = {
-        "specgraph_run": 1,
-        "command": ["specgraph", *argv],
-        "converged": False,
-        "message": str(error),
-        "eigen_solve": {
-            "method": partial.method,
-            "tol": partial.tol,
-            "values": partial.values,
-            "residuals": partial.residuals,
-            "matvecs": partial.matvecs,
-            "iterations": partial.iterations,
-        },
-        "caution": CAUTION,
-    }
+    record = not_converged_record(error, command=["specgraph", *argv])
     try:
-        write_outputs(args.out, {NOT_CONVERGED_FILE: jsonable(record)})
+        write_outputs(args.out, {NOT_CONVERGED_FILE: record})
     except SpecgraphError as exc:  # the error already reported matters more
         logger.error("could not record the partial figures: %s", exc)
     else:

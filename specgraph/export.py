@@ -42,7 +42,7 @@ import os
 import platform
 import re
 import tempfile
-from collections.abc import Iterable, Mapping
+from collections.abc import Iterable, Mapping, Sequence
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any, Literal, cast
@@ -50,20 +50,47 @@ from typing import Any, Literal, cast
 import numpy as np
 import pandas as pd
 
+from ._formats import (
+    boundary_geojson,
+    jsonable,
+    nodes_geojson,
+    parquet_available,
+    parquet_bytes,
+    zones_geojson,
+    zoning_geojson,
+    zoning_parquet,
+    zoning_tables,
+)
 from ._guard import FORMULA_ESCAPE, FORMULA_TRIGGERS, neutralize_frame
-from .exceptions import OutputError
+from .diagnostics import Scorecard
+from .eigen import EigenResult
+from .exceptions import ConvergenceError, OutputError, ParameterError
+from .network import Network
 from .zones import Zoning
 
 __all__ = [
     "CAUTION",
     "FORMULA_ESCAPE",
     "FORMULA_TRIGGERS",
+    "RUN_RECORD_KEYS",
+    "boundary_geojson",
+    "eigen_record",
+    "eigen_table",
     "file_checksum",
+    "input_record",
     "jsonable",
     "library_versions",
+    "nodes_geojson",
+    "not_converged_record",
+    "parquet_available",
+    "parquet_bytes",
     "recover_outputs",
     "run_record",
+    "scorecard_tables",
     "write_outputs",
+    "zones_geojson",
+    "zoning_geojson",
+    "zoning_parquet",
     "zoning_tables",
 ]
 
@@ -84,7 +111,36 @@ _JOURNAL_PATTERN = re.compile(r"^\.specgraph-commit\.(?P<pid>\d+)\.json$")
 #: (the journal's own temporary file included).
 _PARTIAL_PATTERN = re.compile(r"^\..+\.(?P<pid>\d+)\.[^.]+\.partial$")
 
-_LIBRARIES = ("specgraph", "numpy", "scipy", "pandas", "scikit-learn", "networkx")
+#: Libraries whose versions every run record carries: specgraph, its dependencies
+#: (pyproject.toml) and the optional pyarrow ("not installed" when absent).
+_LIBRARIES = (
+    "specgraph",
+    "numpy",
+    "scipy",
+    "pandas",
+    "scikit-learn",
+    "networkx",
+    "pyamg",
+    "numba",
+    "defusedxml",
+    "tqdm",
+    "matplotlib",
+    "pyarrow",
+)
+
+#: Top-level keys of every run record (:func:`run_record`), in order; a
+#: command's own results come between ``decisions`` and ``warnings``.
+RUN_RECORD_KEYS = (
+    "specgraph_run",
+    "command",
+    "inputs",
+    "parameters",
+    "network",
+    "decisions",
+    "warnings",
+    "versions",
+    "caution",
+)
 
 
 def file_checksum(path: str | Path) -> str:
@@ -105,38 +161,6 @@ def library_versions() -> dict[str, str]:
         except PackageNotFoundError:
             found[name] = "not installed"
     return found
-
-
-def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
-    """The contract's CSV tables of a zoning, by file name.
-
-    ``zones.csv`` (``node,zone``), ``boundary.csv``
-    (``source,target,weight,zone_a,zone_b`` then carried input columns),
-    ``zone_summary.csv`` (``zone,nodes,size,internal_weight,boundary_weight,
-    conductance,connected`` then more) and ``spectrum.csv``
-    (``index,eigenvalue,residual`` then more).
-    """
-    return {
-        "zones.csv": zoning.to_frame(),
-        "boundary.csv": zoning.boundary,
-        "zone_summary.csv": zoning.zones,
-        "spectrum.csv": zoning.spectrum(),
-    }
-
-
-def jsonable(value: Any) -> Any:
-    """``value`` with numpy scalars and arrays as Python values and non-finite floats as None."""
-    if isinstance(value, Mapping):
-        return {str(k): jsonable(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, np.ndarray):
-        return [jsonable(v) for v in value.tolist()]
-    if isinstance(value, float) and not np.isfinite(value):
-        return None
-    return value
 
 
 def _portable_notes(notes: Mapping[str, Any]) -> dict[str, Any]:
@@ -177,36 +201,182 @@ def _solve_records(zoning: Zoning) -> list[dict[str, Any]]:
 
 
 def run_record(
-    zoning: Zoning,
+    zoning: Zoning | None = None,
     *,
+    command: Sequence[str] | None = None,
     inputs: Iterable[Mapping[str, Any]] = (),
-    command: list[str] | None = None,
+    network: Network | None = None,
+    parameters: Mapping[str, Any] | None = None,
+    decisions: Mapping[str, Any] | None = None,
+    warnings: Iterable[str] = (),
+    results: Mapping[str, Any] | None = None,
 ) -> dict[str, Any]:
-    """The JSON run record of a zoning: what went in, how it was solved, what came out.
+    """The JSON run record of any result: what went in, what was decided, what came out.
 
-    No timestamps and no absolute paths are recorded, so the same input,
-    options and seed give the same bytes wherever and whenever they run.
+    Every command's ``run.json`` is built here, so every record has the keys
+    of :data:`RUN_RECORD_KEYS`, in that order, with the command's own results
+    (``results``) between ``decisions`` and ``warnings``. No timestamps and no
+    absolute paths are recorded, so the same input, options and seed give the
+    same bytes wherever and whenever they run.
+
+    Parameters
+    ----------
+    zoning : Zoning, optional
+        A zoning supplies the network, parameters, decisions and warnings,
+        and the results ``eigen_solves`` and ``scores`` (given ``results``
+        follow them, given ``warnings`` follow the zoning's).
+
+    Returns
+    -------
+    dict
+        JSON-ready (:func:`jsonable`): ``specgraph_run`` (format version 1),
+        ``command``, ``inputs`` (role, path as given, checksum:
+        :func:`input_record`), ``parameters`` (the options of the library
+        call), ``network`` (size, components, what reading changed; None
+        without a network), ``decisions`` (choices made on the user's behalf,
+        each with its ``reason``), the results, ``warnings``, ``versions``
+        (:func:`library_versions`) and ``caution``.
+
+    Raises
+    ------
+    ParameterError
+        ``network``, ``parameters`` or ``decisions`` given with a zoning,
+        or a results key that is one of :data:`RUN_RECORD_KEYS`.
+
+    Other Parameters
+    ----------------
+    command : sequence of str, optional
+        The command line that produced the result.
+    inputs : iterable of mapping, default=()
+        The input files (:func:`input_record`).
+    network : Network, optional
+    parameters, decisions : mapping, optional
+        Empty when not given.
+    warnings : iterable of str, default=()
+    results : mapping, optional
+        The command's own figures, by key.
+
+    Examples
+    --------
+    >>> from specgraph import find_zones, gallery
+    >>> record = run_record(find_zones(gallery.barbell(5), 2, rng=0), command=["example"])
+    >>> [key for key in record if key not in RUN_RECORD_KEYS]
+    ['eigen_solves', 'scores']
     """
-    net = zoning.network
+    found = dict(results or {})
+    if zoning is not None:
+        if network is not None or parameters is not None or decisions is not None:
+            raise ParameterError(
+                "run_record takes the network, parameters and decisions of a zoning from the "
+                "zoning; give either a zoning or network=, parameters= and decisions="
+            )
+        network, parameters, decisions = zoning.network, zoning.parameters, zoning.decisions
+        warnings = [*zoning.warnings, *warnings]
+        found = {"eigen_solves": _solve_records(zoning), "scores": zoning.scores, **found}
+    clash = sorted(set(found) & set(RUN_RECORD_KEYS))
+    if clash:
+        raise ParameterError(
+            f"results keys must differ from the record's own keys {RUN_RECORD_KEYS}; got {clash}"
+        )
     return jsonable(
         {
             "specgraph_run": 1,
-            "command": command,
+            "command": None if command is None else list(command),
             "inputs": list(inputs),
-            "parameters": zoning.parameters,
-            "network": {
-                "nodes": net.n_nodes,
-                "links": net.n_links,
-                "components": net.n_components,
-                "has_coordinates": net.coordinates is not None,
-                "has_sizes": net.sizes is not None,
-                "input_policy": _portable_notes(net.notes),
-            },
-            "decisions": zoning.decisions,
-            "eigen_solves": _solve_records(zoning),
-            "scores": zoning.scores,
-            "warnings": list(zoning.warnings),
+            "parameters": dict(parameters or {}),
+            "network": None if network is None else _network_record(network),
+            "decisions": dict(decisions or {}),
+            **found,
+            "warnings": list(warnings),
             "versions": library_versions(),
+            "caution": CAUTION,
+        }
+    )
+
+
+def input_record(role: str, path: str | Path, *, shown: str | None = None) -> dict[str, str]:
+    """One entry of a record's ``inputs``: ``role``, ``path`` (as given) and ``checksum``.
+
+    ``shown`` replaces the path in the record (the demo's bundled files are
+    recorded as ``<demo>/NAME``, whatever the installation folder).
+    """
+    return {
+        "role": role,
+        "path": str(path) if shown is None else shown,
+        "checksum": file_checksum(path),
+    }
+
+
+def _network_record(net: Network) -> dict[str, Any]:
+    return {
+        "nodes": net.n_nodes,
+        "links": net.n_links,
+        "components": net.n_components,
+        "has_coordinates": net.coordinates is not None,
+        "has_sizes": net.sizes is not None,
+        "input_policy": _portable_notes(net.notes),
+    }
+
+
+def eigen_record(result: EigenResult) -> dict[str, Any]:
+    """Figures of one eigen-solve for a run record: method, pairs, tolerance, work."""
+    return {
+        "method": result.method,
+        "pairs": result.k,
+        "tol": result.tol,
+        "max_residual": result.max_residual,
+        "matvecs": result.matvecs,
+        "iterations": result.iterations,
+        "converged": result.converged,
+    }
+
+
+def eigen_table(result: EigenResult) -> pd.DataFrame:
+    """``index, eigenvalue, residual`` of one eigen-solve (``spectrum.csv``)."""
+    return pd.DataFrame(
+        {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
+    )
+
+
+def scorecard_tables(
+    network: Network, labels: np.ndarray, card: Scorecard
+) -> dict[str, pd.DataFrame]:
+    """The tables of a scored zoning, by file name.
+
+    ``zone_scores.csv`` (:attr:`Scorecard.zones`), ``node_importance.csv``
+    (``node, zone, importance``, when the card has node importance) and
+    ``unassigned.csv`` (``node``: nodes in no zone, when there are any).
+    """
+    files = {"zone_scores.csv": card.zones}
+    if card.node_importance is not None:
+        files["node_importance.csv"] = pd.DataFrame(
+            {"node": network.node_ids, "zone": labels, "importance": card.node_importance}
+        )
+    if len(card.unassigned):
+        files["unassigned.csv"] = pd.DataFrame({"node": list(card.unassigned)})
+    return files
+
+
+def not_converged_record(error: ConvergenceError, *, command: Sequence[str]) -> dict[str, Any]:
+    """The record of an eigen-solve that missed its tolerance: its partial figures only.
+
+    Written as ``not-converged.json`` next to (never in place of) earlier results.
+    """
+    partial = error.partial
+    return jsonable(
+        {
+            "specgraph_run": 1,
+            "command": list(command),
+            "converged": False,
+            "message": str(error),
+            "eigen_solve": {
+                "method": partial.method,
+                "tol": partial.tol,
+                "values": partial.values,
+                "residuals": partial.residuals,
+                "matvecs": partial.matvecs,
+                "iterations": partial.iterations,
+            },
             "caution": CAUTION,
         }
     )
@@ -440,249 +610,3 @@ def write_outputs(
         raise
     _commit(folder, staged, stale, journal)
     return [final for _, final in staged]
-
-
-# ------------------------------------------------------------------ GeoJSON
-# Zonings as RFC 7946 FeatureCollections (plain dicts, so that write_outputs
-# writes them as JSON under a ``.geojson`` name). Positions are the network's
-# node coordinates as they are: RFC 7946 expects longitude/latitude (WGS 84),
-# so a network read in projected coordinates gives a file in those units,
-# which GIS software then needs to be told. Links are drawn as straight
-# segments between their two end nodes; the true geometry stays in the user's
-# own layer, joined through the carried columns (a pipe or line id).
-
-
-def _geojson_value(value: Any) -> Any:
-    """A table cell as a JSON value: numpy scalars as Python, missing and non-finite as null."""
-    if value is None or value is pd.NA or value is pd.NaT:
-        return None
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float):
-        return value if np.isfinite(value) else None
-    if isinstance(value, bool | int | str):
-        return value
-    if isinstance(value, Mapping | list | tuple | np.ndarray):
-        return jsonable(value)
-    return str(value)
-
-
-def _properties(table: pd.DataFrame) -> list[dict[str, Any]]:
-    """One JSON-ready property object per row of ``table``."""
-    columns = [str(c) for c in table.columns]
-    return [
-        {name: _geojson_value(cell) for name, cell in zip(columns, row, strict=True)}
-        for row in table.itertuples(index=False, name=None)
-    ]
-
-
-def _coordinates_of(zoning: Zoning) -> np.ndarray:
-    xy = zoning.network.coordinates
-    if xy is None:
-        from .exceptions import ParameterError
-
-        raise ParameterError(
-            "zoning must come from a network with node coordinates for GeoJSON output; "
-            "got a network without them (give a node table with x and y columns, or read "
-            "a GeoJSON line network)."
-        )
-    return xy
-
-
-def _collection(features: list[dict[str, Any]]) -> dict[str, Any]:
-    return {"type": "FeatureCollection", "features": features}
-
-
-def nodes_geojson(zoning: Zoning) -> dict[str, Any]:
-    """One ``Point`` feature per node, with properties ``node`` and ``zone`` (and ``size``).
-
-    Parameters
-    ----------
-    zoning : Zoning
-        Of a network with node coordinates.
-
-    Returns
-    -------
-    dict
-        A GeoJSON FeatureCollection, in network row order; each feature's
-        ``id`` is the node id.
-
-    Raises
-    ------
-    ParameterError
-        The network has no node coordinates.
-    """
-    xy = _coordinates_of(zoning)
-    net = zoning.network
-    table = pd.DataFrame({"node": net.node_ids, "zone": zoning.labels})
-    if net.sizes is not None:
-        table["size"] = net.sizes
-    features = [
-        {
-            "type": "Feature",
-            "id": props["node"],
-            "geometry": {"type": "Point", "coordinates": [float(x), float(y)]},
-            "properties": props,
-        }
-        for (x, y), props in zip(xy.tolist(), _properties(table), strict=True)
-    ]
-    return _collection(features)
-
-
-def zones_geojson(zoning: Zoning) -> dict[str, Any]:
-    """One ``MultiPoint`` feature per zone (its nodes), carrying the zone summary row.
-
-    Parameters
-    ----------
-    zoning : Zoning
-        Of a network with node coordinates.
-
-    Returns
-    -------
-    dict
-        A GeoJSON FeatureCollection, zones in number order; properties are
-        the columns of ``zoning.zones`` (``zone``, ``nodes``, ``size``,
-        ``conductance``...).
-    """
-    xy = _coordinates_of(zoning)
-    order = np.argsort(zoning.labels, kind="stable")
-    bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
-    features = []
-    for z, props in enumerate(_properties(zoning.zones)):
-        points = xy[order[bounds[z] : bounds[z + 1]]].tolist()
-        features.append(
-            {
-                "type": "Feature",
-                "id": z,
-                "geometry": {"type": "MultiPoint", "coordinates": points},
-                "properties": props,
-            }
-        )
-    return _collection(features)
-
-
-def boundary_geojson(zoning: Zoning) -> dict[str, Any]:
-    """One ``LineString`` feature per boundary link, carrying both zone ids and its columns.
-
-    Parameters
-    ----------
-    zoning : Zoning
-        Of a network with node coordinates.
-
-    Returns
-    -------
-    dict
-        A GeoJSON FeatureCollection, one feature per row of
-        ``zoning.boundary`` (``source``, ``target``, ``weight``, ``zone_a``,
-        ``zone_b``, then the columns carried from the input links), each a
-        straight segment from the source node to the target node.
-    """
-    xy = _coordinates_of(zoning)
-    table = zoning.boundary
-    index = pd.Index(zoning.network.node_ids)
-    src = index.get_indexer(table["source"].to_numpy(dtype=object))
-    dst = index.get_indexer(table["target"].to_numpy(dtype=object))
-    features = [
-        {
-            "type": "Feature",
-            "geometry": {"type": "LineString", "coordinates": [a, b]},
-            "properties": props,
-        }
-        for a, b, props in zip(xy[src].tolist(), xy[dst].tolist(), _properties(table), strict=True)
-    ]
-    return _collection(features)
-
-
-def zoning_geojson(zoning: Zoning) -> dict[str, dict[str, Any]]:
-    """The GeoJSON files of a zoning, by file name, for :func:`write_outputs`.
-
-    ``zones.geojson`` (:func:`nodes_geojson`), ``zone_summary.geojson``
-    (:func:`zones_geojson`) and ``boundary.geojson`` (:func:`boundary_geojson`).
-    """
-    return {
-        "zones.geojson": nodes_geojson(zoning),
-        "zone_summary.geojson": zones_geojson(zoning),
-        "boundary.geojson": boundary_geojson(zoning),
-    }
-
-
-# ------------------------------------------------------------------ Parquet
-def parquet_available() -> bool:
-    """True when pyarrow, which Parquet output needs, can be imported."""
-    try:
-        import pyarrow.parquet  # noqa: F401
-    except ImportError:
-        return False
-    return True
-
-
-def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
-    """``frame`` with text column names, and object columns of mixed types as text.
-
-    Parquet columns have one type; a carried input column holding, say, ints
-    and strings is written as text (missing cells stay missing).
-    """
-    table = frame.copy()
-    table.columns = [str(c) for c in table.columns]
-    for name in table.columns:
-        column = table[name]
-        if column.dtype != object:
-            continue
-        kinds = {type(v) for v in column.dropna().tolist()}
-        if len(kinds) > 1 or (kinds and not kinds <= {str, bool, int, float}):
-            table[name] = column.map(lambda v: v if v is None or pd.isna(v) else str(v))
-    return table
-
-
-def parquet_bytes(frame: pd.DataFrame) -> bytes:
-    """A table as the bytes of one Parquet file (pyarrow, no index).
-
-    Parameters
-    ----------
-    frame : pandas.DataFrame
-
-    Returns
-    -------
-    bytes
-        A complete Parquet file; the same frame gives the same bytes with the
-        same library versions.
-
-    Raises
-    ------
-    OutputError
-        pyarrow is not installed.
-    """
-    try:
-        import pyarrow as pa
-        import pyarrow.parquet as pq
-    except ImportError as exc:
-        raise OutputError(
-            "Parquet output needs the optional package pyarrow; install it with "
-            "pip install 'specgraph[parquet]', or write CSV instead"
-        ) from exc
-    table = pa.Table.from_pandas(_parquet_ready(frame), preserve_index=False)
-    sink = pa.BufferOutputStream()
-    pq.write_table(table, sink)
-    return bytes(sink.getvalue().to_pybytes())
-
-
-def zoning_parquet(zoning: Zoning) -> dict[str, bytes]:
-    """The tables of :func:`zoning_tables` as Parquet files: ``zones.parquet`` and so on.
-
-    File name to bytes, ready for :func:`write_outputs`.
-    """
-    return {
-        name.removesuffix(".csv") + ".parquet": parquet_bytes(table)
-        for name, table in zoning_tables(zoning).items()
-    }
-
-
-__all__ += [
-    "boundary_geojson",
-    "nodes_geojson",
-    "parquet_available",
-    "parquet_bytes",
-    "zones_geojson",
-    "zoning_geojson",
-    "zoning_parquet",
-]

@@ -580,3 +580,129 @@ def test_every_command_help_renders() -> None:
         text = sub.format_help()
         assert name in text
         assert "Decision support only" in text
+
+
+# ------------------------------------------------------------ run records
+def every_command(folder: Path) -> dict[str, list[str]]:
+    """argv of every command on the two cliques (zone tables made by a first zones run)."""
+    edges = str(two_cliques_csv(folder))
+    zones_csv = str(folder / "zones" / "zones.csv")
+    halves = write(
+        folder,
+        "halves.csv",
+        "node,zone\n" + "".join(f"J{i},{0 if i <= 4 else 1}\n" for i in range(1, 9)),
+    )
+    return {
+        "zones": ["zones", edges, "--zones", "2"],
+        "demo": ["demo", "--seed", str(DEMO_SEED)],
+        "spectrum": ["spectrum", edges, "--count", "4"],
+        "score": ["score", edges, zones_csv],
+        "compare": ["compare", zones_csv, str(halves)],
+        "robustness": ["robustness", edges, "--zones-file", zones_csv],
+        "stability": ["stability", edges, "--zones", "2", "--repeats", "1"],
+        "local": ["local", edges, "--around", "J1"],
+    }
+
+
+@pytest.fixture(scope="module")
+def records(tmp_path_factory: pytest.TempPathFactory) -> dict[str, dict]:
+    folder = tmp_path_factory.mktemp("records")
+    found = {}
+    for name, argv in every_command(folder).items():  # zones first: the others read it
+        out = folder / name
+        assert main([*argv, "--out", str(out), "--quiet"]) == 0, name
+        found[name] = load_run(out)
+    return found
+
+
+def test_every_command_is_in_the_record_check(records: dict[str, dict]) -> None:
+    parser = build_parser()
+    commands = next(a for a in parser._actions if isinstance(a, argparse._SubParsersAction))
+    assert set(records) == set(commands.choices)
+
+
+def test_every_run_record_has_the_same_top_level_keys(records: dict[str, dict]) -> None:
+    from specgraph.export import RUN_RECORD_KEYS
+
+    for name, record in records.items():
+        core = [key for key in record if key in RUN_RECORD_KEYS]
+        assert core == list(RUN_RECORD_KEYS), name
+        # A command's own results sit between 'decisions' and 'warnings'.
+        keys = list(record)
+        own = keys[keys.index("decisions") + 1 : keys.index("warnings")]
+        assert set(keys) == set(RUN_RECORD_KEYS) | set(own), name
+
+
+def test_every_run_record_carries_versions_checksums_and_caution(
+    records: dict[str, dict],
+) -> None:
+    for name, record in records.items():
+        assert record["specgraph_run"] == 1, name
+        assert record["command"][0] == "specgraph", name
+        assert record["versions"]["specgraph"] == specgraph.__version__, name
+        assert {"python", "numpy", "scipy", "pandas"} <= set(record["versions"]), name
+        assert isinstance(record["parameters"], dict), name
+        assert isinstance(record["decisions"], dict), name
+        assert isinstance(record["warnings"], list), name
+        assert "licensed engineers" in flat(record["caution"]), name
+        assert record["inputs"], name
+        for item in record["inputs"]:
+            if item["path"].startswith("<demo>/"):
+                continue  # the bundled files: checked in test_demo_run_record
+            digest = hashlib.sha256(Path(item["path"]).read_bytes()).hexdigest()
+            assert item["checksum"] == f"sha256:{digest}", (name, item["role"])
+
+
+def test_spectrum_record_has_the_operator_decision_and_parameters(
+    records: dict[str, dict],
+) -> None:
+    record = records["spectrum"]
+    assert record["parameters"]["operator"] == "auto"
+    assert record["parameters"]["count"] == 4
+    assert record["decisions"]["operator"]["choice"] == "normalized"  # undirected input
+    assert record["network"]["nodes"] == 8
+    assert record["network"]["links"] == len(TWO_CLIQUES)
+
+
+# ------------------------------------------------------------ internal errors
+def broken_zoning(*args: object, **kwargs: object) -> None:
+    # numpy's LinAlgError is a ValueError: it must still count as an internal error.
+    raise np.linalg.LinAlgError("Matrix is singular\nsecond line")
+
+
+def test_internal_error_exits_1_with_one_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import specgraph._commands
+
+    assert issubclass(np.linalg.LinAlgError, ValueError)
+    monkeypatch.setattr(specgraph._commands, "find_zones", broken_zoning)
+    edges = two_cliques_csv(tmp_path)
+    code = main(["zones", str(edges), "--zones", "2", "--out", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert code == 1, err
+    lines = [line for line in err.splitlines() if "internal error" in line]
+    assert lines == [
+        "specgraph: internal error: LinAlgError: Matrix is singular second line (rerun with "
+        "--debug and report it)"
+    ]
+    assert "Traceback" not in err
+    assert not (tmp_path / "out").exists()
+
+
+def test_debug_adds_the_traceback_and_keeps_the_exit_code(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import specgraph._commands
+
+    monkeypatch.setattr(specgraph._commands, "find_zones", broken_zoning)
+    edges = two_cliques_csv(tmp_path)
+    out = str(tmp_path / "out")
+    assert main(["zones", str(edges), "--zones", "2", "--out", out, "--debug"]) == 1
+    assert "Traceback" in capsys.readouterr().err
+    # A bad input with --debug: still exit 2, now with its traceback.
+    code = main(["zones", str(tmp_path / "missing.csv"), "--out", out, "--debug"])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert "Traceback" in err
+    assert "no such file" in err

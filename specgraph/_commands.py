@@ -1,0 +1,647 @@
+"""What each ``specgraph`` command runs: its options passed to the library, its files written.
+
+:mod:`specgraph.cli` parses the command line and maps errors to exit codes;
+the functions here turn the parsed options into library calls (reading,
+zoning, scoring...), build the run record with
+:func:`specgraph.export.run_record` and write the files with
+:func:`specgraph.export.write_outputs`. Messages go to the ``specgraph``
+logger, which the command line routes to stderr.
+"""
+
+from __future__ import annotations
+
+import argparse
+import logging
+import shlex
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+from ._guard import check_memory
+from ._progress import stage_progress
+from .diagnostics import (
+    compare_frames,
+    labels_from_mapping,
+    robustness,
+    score,
+    suggest_zone_counts,
+)
+from .eigen import smallest_eigenpairs
+from .exceptions import InputError, ParameterError
+from .export import (
+    eigen_record,
+    eigen_table,
+    input_record,
+    jsonable,
+    parquet_available,
+    run_record,
+    scorecard_tables,
+    write_outputs,
+    zoning_geojson,
+    zoning_parquet,
+    zoning_tables,
+)
+from .io import (
+    GRAPHML_SUFFIXES,
+    flagged_links,
+    read_edges,
+    read_geojson_lines,
+    read_link_list,
+    read_node_list,
+    read_zone_file,
+)
+from .network import Network
+from .operators import laplacian
+from .report import build_report
+from .studies import stability
+from .zones import (
+    NORMALIZED_LIKE,
+    ZoneConstraints,
+    Zoning,
+    choose_operator,
+    find_zones,
+    local_zone,
+)
+
+__all__ = ["CAUTIONED", "COMMANDS", "GEOJSON_FILES", "REPORT_FILE", "holds_nodes"]
+
+logger = logging.getLogger("specgraph")
+
+#: File name of the HTML report that --report adds to the output folder.
+REPORT_FILE = "report.html"
+#: Files that --geojson adds (names of :func:`specgraph.export.zoning_geojson`).
+GEOJSON_FILES = ["zones.geojson", "zone_summary.geojson", "boundary.geojson"]
+#: Suffixes (lower case) of edge files read as GeoJSON line networks.
+GEOJSON_SUFFIXES = frozenset({".geojson"})
+
+
+def holds_nodes(path: str) -> bool:
+    """Whether the edge file also holds the node table (GraphML does)."""
+    return Path(path).suffix.lower() in GRAPHML_SUFFIXES
+
+
+def _node_table(args: argparse.Namespace) -> str:
+    """The file whose node table node-column options refer to."""
+    return str(args.nodes) if args.nodes else str(args.edges)
+
+
+def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
+    if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:
+        network = _read_geojson(args)
+    else:
+        network = _read_table(args)
+    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
+    inputs = [input_record("edges", args.edges)]
+    if args.nodes:
+        inputs.append(input_record("nodes", args.nodes))
+    return network, inputs
+
+
+def _read_geojson(args: argparse.Namespace) -> Network:
+    """A line network from GeoJSON; what was snapped or skipped is said on stderr."""
+    for option, value in (
+        ("--nodes", args.nodes),
+        ("--size-col", args.size_col),
+        ("--directed", args.directed),
+    ):
+        if value:
+            raise ParameterError(
+                f"{option}: not available for a GeoJSON line network (its nodes are built "
+                "from the line ends, and its lines are read without direction); leave the "
+                f"option out, or convert the lines to an edge table; received {option} {value}"
+            )
+    network, report = read_geojson_lines(
+        args.edges,
+        snap_tolerance=args.snap,
+        weight=args.weight,
+        distance=args.distance,
+        on_invalid="skip" if args.skip_invalid else "raise",
+    )
+    logger.info(
+        "GeoJSON: %d features, %d links, %d nodes; %d line ends snapped (largest gap %.3g)",
+        report.features,
+        report.links,
+        report.nodes,
+        report.snapped_ends,
+        report.largest_snap,
+    )
+    for message in report.warnings:
+        logger.warning("warning: %s", message)
+    return network
+
+
+def _check_formats(network: Network, args: argparse.Namespace) -> None:
+    """Refuse extra formats that cannot be written, before any work is done."""
+    if getattr(args, "geojson", False) and network.coordinates is None:
+        raise ParameterError(
+            "--geojson: GeoJSON features need node coordinates, and this network has none; "
+            "give --nodes with --x-col and --y-col (or read a GeoJSON line network)"
+        )
+    if getattr(args, "parquet", False) and not parquet_available():
+        raise ParameterError(
+            "--parquet: writing Parquet needs pyarrow, which is not installed; install it "
+            "with: pip install 'specgraph[parquet]'"
+        )
+
+
+def _read_table(args: argparse.Namespace) -> Network:
+    return read_edges(
+        args.edges,
+        source=args.source,
+        target=args.target,
+        weight=args.weight,
+        distance=args.distance,
+        nodes=args.nodes,
+        node=args.node_col,
+        x=args.x_col,
+        y=args.y_col,
+        size=args.size_col,
+        directed=args.directed,
+    )
+
+
+def _read_sources(network: Network, args: argparse.Namespace) -> tuple[str, ...]:
+    """Supply points from ``--supply-col`` and ``--supply-list``, each once, checked
+    against the network so that an unknown id is reported at its file and line."""
+    sources: tuple[str, ...] = ()
+    if getattr(args, "supply_col", None):
+        sources += read_node_list(
+            _node_table(args),
+            node=args.node_col,
+            flag=args.supply_col,
+            network=network,
+            option="--supply-col",
+        )
+    if getattr(args, "supply_list", None):
+        sources += read_node_list(
+            args.supply_list, node=args.node_col, network=network, option="--supply-list"
+        )
+    return tuple(dict.fromkeys(sources))
+
+
+def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
+    """The zone constraints the options ask for, read from their files and columns.
+
+    Ids in rule files are checked against the network here, so that an unknown
+    id is reported at its file, line and column.
+    """
+    sources = _read_sources(network, args)
+    keep: list[tuple[str, str]] = []
+    if getattr(args, "keep_col", None):
+        ids = network.node_ids
+        keep += [(ids[a], ids[b]) for a, b in flagged_links(network, args.keep_col).tolist()]
+    if getattr(args, "keep_list", None):
+        keep += read_link_list(
+            args.keep_list,
+            source=args.source,
+            target=args.target,
+            network=network,
+            option="--keep-list",
+        )
+    fixed = None
+    if getattr(args, "fixed", None):
+        fixed = read_zone_file(args.fixed, node=args.node_col, network=network, option="--fixed")
+    by_size = network.sizes is not None and not args.count_nodes
+    return ZoneConstraints(
+        min_size=args.min_size,
+        max_size=args.max_size,
+        size_by="weight" if by_size else "nodes",
+        sources=sources,
+        keep_links=tuple(keep),
+        fixed=fixed,
+    )
+
+
+def _zone_options(args: argparse.Namespace, constraints: ZoneConstraints) -> dict[str, Any]:
+    """The keywords of :func:`specgraph.find_zones` that the options ask for."""
+    return {
+        "operator": args.operator,
+        "assign": args.assign,
+        "trees": args.trees,
+        "constraints": constraints,
+        "refine": not args.no_refine,
+        "tol": args.tol,
+        "damping": args.damping,
+    }
+
+
+def _rule_inputs(args: argparse.Namespace) -> list[dict[str, str]]:
+    """Input records of the rule files given (supply list, keep list, fixed zones)."""
+    found = []
+    for option in ("supply_list", "keep_list", "fixed"):
+        path = getattr(args, option, None)
+        if path:
+            found.append(input_record(option.replace("_", " "), path))
+    return found
+
+
+def _zone_labels(network: Network, args: argparse.Namespace) -> tuple[Any, Any]:
+    """Labels of ``args.zones_file`` on the network, and which nodes it covers."""
+    mapping = read_zone_file(args.zones_file, node=args.node_col, zone=args.zone_col)
+    return labels_from_mapping(network, mapping, path=args.zones_file)
+
+
+def _warn(messages: Sequence[str]) -> None:
+    for message in messages:
+        logger.warning("warning: %s", message)
+
+
+# ------------------------------------------------------------------ commands
+#: Stages of a zoning run, as the progress bar counts them.
+ZONING_STAGES = ["reading", "reading rules", "solving", "constraints", "refining", "writing"]
+
+
+def _zone_and_write(
+    network: Network,
+    inputs: list[dict[str, Any]],
+    args: argparse.Namespace,
+    argv: list[str],
+    step: Callable[[str], None],
+    *,
+    markers: Sequence[str] = (),
+) -> dict[str, Any]:
+    _check_formats(network, args)
+    step("reading rules")
+    constraints = _constraints(network, args)  # reads (and checks) the rule files first
+    inputs += _rule_inputs(args)
+    options = _zone_options(args, constraints)
+    zoning = find_zones(network, args.zones, **options, rng=args.seed, progress=step)
+    step("writing")
+    record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
+    sources = tuple(dict.fromkeys([*constraints.sources, *markers]))
+    files, stale = _zoning_files(zoning, record, args, argv, sources)
+    written = write_outputs(args.out, files, remove=stale)
+    _warn(zoning.warnings)
+    for name, decision in zoning.decisions.items():
+        logger.info("%s: %s", name, decision["reason"])
+    scores = zoning.scores
+    logger.info(
+        "%d zones, normalized cut %.4g, %d boundary links, all zones connected: %s",
+        scores["zones"],
+        scores["normalized_cut"],
+        scores["boundary_links"],
+        "yes" if scores["all_connected"] else "NO",
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "scores": scores, "warnings": list(zoning.warnings)}
+
+
+def _zoning_files(
+    zoning: Zoning,
+    record: dict[str, Any],
+    args: argparse.Namespace,
+    argv: list[str],
+    sources: tuple[str, ...],
+) -> tuple[dict[str, Any], list[str]]:
+    """The files of a zoning run, and the optional files it does not write (stale)."""
+    tables = zoning_tables(zoning)
+    files: dict[str, Any] = {**tables, "run.json": record}
+    if args.report:
+        files[REPORT_FILE] = build_report(
+            zoning,
+            command=shlex.join(["specgraph", *argv]),
+            record=record,
+            tables=tables,
+            sources=sources,
+        )
+    # Files of optional formats that this run does not write go in the same commit, so
+    # that a folder never mixes this run's tables with an earlier run's extras.
+    stale = [] if args.report else [REPORT_FILE]
+    if args.geojson:
+        files.update(zoning_geojson(zoning))
+    else:
+        stale += GEOJSON_FILES
+    if args.parquet:
+        files.update(zoning_parquet(zoning))
+    else:
+        stale += [str(Path(name).with_suffix(".parquet")) for name in tables]
+    return files, stale
+
+
+def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    with stage_progress(ZONING_STAGES, enabled=args.progress) as step:
+        step("reading")
+        network, inputs = _read(args)
+        logger.info("read %r", network)
+        return _zone_and_write(network, inputs, args, argv, step)
+
+
+def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    from .demo import demo_files, load_demo
+
+    network = load_demo()
+    files = demo_files()
+    inputs = [
+        input_record(role, path, shown=f"<demo>/{path.name}")
+        for role, path in (("edges", files.pipes), ("nodes", files.junctions))
+    ]
+    args.count_nodes = False
+    logger.info("demo: the invented town of Quillmere, %r", network)
+    # The demo zones without rules; its treatment works are shown on the map as markers.
+    works = read_node_list(files.sources, node="node")
+    with stage_progress(ZONING_STAGES[1:], enabled=args.progress) as step:
+        return _zone_and_write(network, inputs, args, argv, step, markers=works)
+
+
+def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    choice = choose_operator(args.operator, directed=network.directed)
+    damping = args.damping if choice.kind == "directed" else None
+    options = {"tol": args.tol, "rng": args.seed}
+    operator = laplacian(network, kind=choice.kind, damping=damping)  # type: ignore[arg-type]
+    result = smallest_eigenpairs(operator, min(args.count, network.n_nodes), **options)
+    # Eigengap suggestions read the normalized Laplacian's spectrum (Cheeger);
+    # the other operators' eigenvalues are listed without them.
+    suggested = (
+        suggest_zone_counts(result.values, n_components=network.n_components)
+        if choice.kind in NORMALIZED_LIKE
+        else []
+    )
+    record = run_record(
+        command=["specgraph", *argv],
+        inputs=inputs,
+        network=network,
+        parameters={"count": args.count, "operator": args.operator, "damping": damping, **options},
+        decisions={"operator": choice.as_decision()},
+        results={"eigen_solve": eigen_record(result), "suggested_zone_counts": suggested},
+    )
+    write_outputs(args.out, {"spectrum.csv": eigen_table(result), "run.json": record})
+    for row in suggested:
+        logger.info(
+            "suggested zones: %d (relative eigengap %.2f)", row["zones"], row["relative_gap"]
+        )
+    return {"out": str(args.out), "eigenvalues": result.values.tolist(), "suggested": suggested}
+
+
+def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    labels, coverage = _zone_labels(network, args)
+    sources = _read_sources(network, args)
+    inputs.append(input_record("zones", args.zones_file))
+    options = {
+        "eigengap": not args.no_eigengap,
+        "rng": args.seed,
+        "tol": args.tol,
+        "damping": args.damping,
+    }
+    card = score(network, labels, sources=sources or None, **options)
+    warnings = []
+    if coverage.unassigned:
+        warnings.append(
+            f"{coverage.unassigned} nodes of the network are in no zone of {args.zones_file} "
+            f"(for example {', '.join(coverage.unassigned_examples)}); they are scored as "
+            "outside every zone"
+        )
+    _warn(warnings)
+    record = run_record(
+        command=["specgraph", *argv],
+        inputs=inputs,
+        network=network,
+        parameters={"sources": len(sources), **options},
+        warnings=warnings,
+        results={
+            "coverage": coverage.as_dict(),
+            "overall": card.overall,
+            "eigenvalues": card.eigenvalues,
+        },
+    )
+    tables = scorecard_tables(network, labels, card)
+    files: dict[str, Any] = {"zone_scores.csv": tables.pop("zone_scores.csv"), "run.json": record}
+    files.update(tables)
+    stale = () if coverage.unassigned else ["unassigned.csv"]
+    written = write_outputs(args.out, files, remove=stale)
+    overall = card.overall
+    logger.info(
+        "%d zones, normalized cut %.4g, modularity %.4g, %d flagged as outliers, "
+        "all zones connected: %s",
+        overall["zones"],
+        overall["normalized_cut"],
+        overall["modularity"],
+        overall["flagged_zones"],
+        "yes" if overall["all_connected"] else "NO",
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "overall": jsonable(overall), "coverage": coverage.as_dict()}
+
+
+def _cmd_compare(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    columns = {"node": args.node_col, "zone": args.zone_col}
+    result = compare_frames(
+        read_zone_file(args.zones_a, **columns), read_zone_file(args.zones_b, **columns)
+    )
+    summary = result.summary()
+    warnings = [
+        f"{count} nodes are only in {side} (for example {', '.join(examples)}); compared on "
+        f"the {result.nodes_compared} common nodes"
+        for side, count, examples in (
+            (args.zones_a, result.only_in_a, result.examples_only_in_a),
+            (args.zones_b, result.only_in_b, result.examples_only_in_b),
+        )
+        if count
+    ]
+    _warn(warnings)
+    record = run_record(
+        command=["specgraph", *argv],
+        inputs=[input_record("zones_a", args.zones_a), input_record("zones_b", args.zones_b)],
+        parameters=columns,
+        warnings=warnings,
+        results={"summary": summary},
+    )
+    files: dict[str, Any] = {
+        "overlap.csv": result.overlap,
+        "matched.csv": result.matched,
+        "splits.csv": result.splits,
+        "merges.csv": result.merges,
+        "run.json": record,
+    }
+    written = write_outputs(args.out, files)
+    logger.info(
+        "adjusted Rand %.4f, NMI %.4f, variation of information %.4f nats; %d zones of A "
+        "split, %d zones of B merge several of A",
+        result.adjusted_rand,
+        result.nmi,
+        result.variation_of_information,
+        len(result.splits),
+        len(result.merges),
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "summary": jsonable(summary)}
+
+
+def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    labels = None
+    if args.zones_file:
+        labels, coverage = _zone_labels(network, args)
+        if coverage.unassigned:
+            raise InputError(
+                f"{coverage.unassigned} nodes of the network are in no zone (for example "
+                f"{', '.join(coverage.unassigned_examples)}); robustness per zone needs every "
+                "node in a zone: complete the table, or leave out --zones-file",
+                path=args.zones_file,
+            )
+        inputs.append(input_record("zones", args.zones_file))
+    options = {"top": args.top, "rng": args.seed, "tol": args.tol}
+    result = robustness(network, labels=labels, **options)
+    files: dict[str, Any] = {
+        "links.csv": result.links,
+        "bridges.csv": result.bridges,
+        "articulation_nodes.csv": result.nodes,
+        "components.csv": result.components,
+    }
+    if result.zones is not None:
+        files["zone_connectivity.csv"] = result.zones
+    files["run.json"] = run_record(
+        command=["specgraph", *argv],
+        inputs=inputs,
+        network=network,
+        parameters=options,
+        results={"summary": result.record},
+    )
+    stale = [] if result.zones is not None else ["zone_connectivity.csv"]
+    written = write_outputs(args.out, files, remove=stale)
+    logger.info(
+        "algebraic connectivity %.4g (normalized %.4g); %d bridges, %d articulation nodes",
+        result.algebraic_connectivity,
+        result.normalized_connectivity,
+        len(result.bridges),
+        len(result.nodes),
+    )
+    if len(result.bridges):
+        worst = result.bridges.iloc[0]
+        logger.info(
+            "worst bridge %s - %s: its failure cuts off %d nodes (size %g)",
+            worst["source"],
+            worst["target"],
+            worst["cut_nodes"],
+            worst["cut_size"],
+        )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "summary": jsonable(result.record)}
+
+
+def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    constraints = _constraints(network, args)
+    inputs += _rule_inputs(args)
+    logger.info(
+        "zoning %d times (1 reference, %d other seeds, %d with weights perturbed by %.0f%%)",
+        2 * args.repeats + 1,
+        args.repeats,
+        args.repeats,
+        100 * args.spread,
+    )
+    options = {"repeats": args.repeats, "spread": args.spread, "rng": args.seed}
+    result = stability(
+        network,
+        args.zones,
+        zone_options=_zone_options(args, constraints),
+        progress=args.progress,
+        **options,
+    )
+    reference = result.reference
+    record = run_record(
+        command=["specgraph", *argv],
+        inputs=inputs,
+        network=network,
+        parameters={**reference.parameters, **options},
+        decisions=reference.decisions,
+        warnings=result.warnings,
+        results={
+            "overall": result.overall,
+            "eigengap_checks": result.bounds.to_dict(orient="records"),
+        },
+    )
+    files: dict[str, Any] = {
+        "node_confidence.csv": result.nodes,
+        "zone_stability.csv": result.zones,
+        "runs.csv": result.runs,
+        "run.json": record,
+    }
+    if args.report:
+        files[REPORT_FILE] = build_report(
+            reference,
+            command=shlex.join(["specgraph", *argv]),
+            stability=result,
+            sources=constraints.sources,
+            title="Zoning stability report",
+        )
+    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
+    _warn(result.warnings)
+    overall = result.overall
+    logger.info(
+        "mean node confidence %.3f; adjusted Rand against the reference: seeds %.3f, "
+        "perturbed weights %.3f; %d unstable zones",
+        overall["mean_confidence"],
+        overall["seed_ari_mean"],
+        overall["perturbed_ari_mean"],
+        len(overall["unstable_zones"]),
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "overall": jsonable(overall), "warnings": list(result.warnings)}
+
+
+#: Said when ``local`` is asked for a directed network.
+LOCAL_UNDIRECTED = (
+    "the local zone walks the links in both directions; --directed is recorded but does "
+    "not change it"
+)
+#: Said when a local zone comes in pieces.
+LOCAL_IN_PIECES = (
+    "the zone is in several pieces (the assets are far apart); each piece is weakly "
+    "attached, but they do not form one area"
+)
+
+
+def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    network, inputs = _read(args)
+    if network.directed:
+        _warn([LOCAL_UNDIRECTED])
+    options = {"size_limit": args.size_limit, "alpha": args.alpha}
+    found = local_zone(network, args.around, **options)
+    warnings = [LOCAL_UNDIRECTED] if network.directed else []
+    warnings += [] if found.connected else [LOCAL_IN_PIECES]
+    figures = found.figures()
+    record = run_record(
+        command=["specgraph", *argv],
+        inputs=inputs,
+        network=network,
+        parameters={"around": list(args.around), **options},
+        warnings=warnings,
+        results={"local_zone": figures},
+    )
+    files: dict[str, Any] = {
+        "local_zone.csv": found.to_frame(),
+        "local_boundary.csv": found.boundary,
+        "sweep.csv": found.profile,
+        "run.json": record,
+    }
+    written = write_outputs(args.out, files)
+    if not found.connected:
+        _warn([LOCAL_IN_PIECES])
+    logger.info(
+        "local zone around %s: %d nodes, conductance %.4g, %d boundary links; the walk "
+        "touched %d of %d nodes",
+        ", ".join(found.seeds),
+        len(found.nodes),
+        found.conductance,
+        len(found.boundary),
+        found.touched,
+        network.n_nodes,
+    )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    return {"out": str(args.out), "local_zone": jsonable(figures)}
+
+
+COMMANDS = {
+    "zones": _cmd_zones,
+    "spectrum": _cmd_spectrum,
+    "score": _cmd_score,
+    "compare": _cmd_compare,
+    "robustness": _cmd_robustness,
+    "stability": _cmd_stability,
+    "demo": _cmd_demo,
+    "local": _cmd_local,
+}
+#: Commands whose results go to an engineer's decision: their caution is said first.
+CAUTIONED = ("zones", "demo", "score", "stability", "robustness", "local")

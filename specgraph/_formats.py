@@ -1,0 +1,293 @@
+"""What result files hold: JSON-ready values, a zoning's tables, GeoJSON and Parquet.
+
+The contents are built here; :mod:`specgraph.export` writes them (and
+re-exports every public name of this module, where users find them).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from .exceptions import OutputError, ParameterError
+from .zones import Zoning
+
+__all__ = [
+    "boundary_geojson",
+    "jsonable",
+    "nodes_geojson",
+    "parquet_available",
+    "parquet_bytes",
+    "zones_geojson",
+    "zoning_geojson",
+    "zoning_parquet",
+    "zoning_tables",
+]
+
+
+def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
+    """The contract's CSV tables of a zoning, by file name.
+
+    ``zones.csv`` (``node,zone``), ``boundary.csv``
+    (``source,target,weight,zone_a,zone_b`` then carried input columns),
+    ``zone_summary.csv`` (``zone,nodes,size,internal_weight,boundary_weight,
+    conductance,connected`` then more) and ``spectrum.csv``
+    (``index,eigenvalue,residual`` then more).
+    """
+    return {
+        "zones.csv": zoning.to_frame(),
+        "boundary.csv": zoning.boundary,
+        "zone_summary.csv": zoning.zones,
+        "spectrum.csv": zoning.spectrum(),
+    }
+
+
+def jsonable(value: Any) -> Any:
+    """``value`` with numpy scalars and arrays as Python values and non-finite floats as None."""
+    if isinstance(value, Mapping):
+        return {str(k): jsonable(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [jsonable(v) for v in value]
+    if isinstance(value, np.generic):
+        return value.item()
+    if isinstance(value, np.ndarray):
+        return [jsonable(v) for v in value.tolist()]
+    if isinstance(value, float) and not np.isfinite(value):
+        return None
+    return value
+
+
+# ------------------------------------------------------------------ GeoJSON
+# Zonings as RFC 7946 FeatureCollections (plain dicts, so that write_outputs
+# writes them as JSON under a ``.geojson`` name). Positions are the network's
+# node coordinates as they are: RFC 7946 expects longitude/latitude (WGS 84),
+# so a network read in projected coordinates gives a file in those units,
+# which GIS software then needs to be told. Links are drawn as straight
+# segments between their two end nodes; the true geometry stays in the user's
+# own layer, joined through the carried columns (a pipe or line id).
+
+
+def _geojson_value(value: Any) -> Any:
+    """A table cell as a JSON value: numpy scalars as Python, missing and non-finite as null."""
+    if value is None or value is pd.NA or value is pd.NaT:
+        return None
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float):
+        return value if np.isfinite(value) else None
+    if isinstance(value, bool | int | str):
+        return value
+    if isinstance(value, Mapping | list | tuple | np.ndarray):
+        return jsonable(value)
+    return str(value)
+
+
+def _properties(table: pd.DataFrame) -> list[dict[str, Any]]:
+    """One JSON-ready property object per row of ``table``."""
+    columns = [str(c) for c in table.columns]
+    return [
+        {name: _geojson_value(cell) for name, cell in zip(columns, row, strict=True)}
+        for row in table.itertuples(index=False, name=None)
+    ]
+
+
+def _coordinates_of(zoning: Zoning) -> np.ndarray:
+    xy = zoning.network.coordinates
+    if xy is None:
+        raise ParameterError(
+            "zoning must come from a network with node coordinates for GeoJSON output; "
+            "got a network without them (give a node table with x and y columns, or read "
+            "a GeoJSON line network)."
+        )
+    return xy
+
+
+def _collection(features: list[dict[str, Any]]) -> dict[str, Any]:
+    return {"type": "FeatureCollection", "features": features}
+
+
+def nodes_geojson(zoning: Zoning) -> dict[str, Any]:
+    """One ``Point`` feature per node, with properties ``node`` and ``zone`` (and ``size``).
+
+    Parameters
+    ----------
+    zoning : Zoning
+        Of a network with node coordinates.
+
+    Returns
+    -------
+    dict
+        A GeoJSON FeatureCollection, in network row order; each feature's
+        ``id`` is the node id.
+
+    Raises
+    ------
+    ParameterError
+        The network has no node coordinates.
+    """
+    xy = _coordinates_of(zoning)
+    net = zoning.network
+    table = pd.DataFrame({"node": net.node_ids, "zone": zoning.labels})
+    if net.sizes is not None:
+        table["size"] = net.sizes
+    features = [
+        {
+            "type": "Feature",
+            "id": props["node"],
+            "geometry": {"type": "Point", "coordinates": [float(x), float(y)]},
+            "properties": props,
+        }
+        for (x, y), props in zip(xy.tolist(), _properties(table), strict=True)
+    ]
+    return _collection(features)
+
+
+def zones_geojson(zoning: Zoning) -> dict[str, Any]:
+    """One ``MultiPoint`` feature per zone (its nodes), carrying the zone summary row.
+
+    Parameters
+    ----------
+    zoning : Zoning
+        Of a network with node coordinates.
+
+    Returns
+    -------
+    dict
+        A GeoJSON FeatureCollection, zones in number order; properties are
+        the columns of ``zoning.zones`` (``zone``, ``nodes``, ``size``,
+        ``conductance``...).
+    """
+    xy = _coordinates_of(zoning)
+    order = np.argsort(zoning.labels, kind="stable")
+    bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
+    features = []
+    for z, props in enumerate(_properties(zoning.zones)):
+        points = xy[order[bounds[z] : bounds[z + 1]]].tolist()
+        features.append(
+            {
+                "type": "Feature",
+                "id": z,
+                "geometry": {"type": "MultiPoint", "coordinates": points},
+                "properties": props,
+            }
+        )
+    return _collection(features)
+
+
+def boundary_geojson(zoning: Zoning) -> dict[str, Any]:
+    """One ``LineString`` feature per boundary link, carrying both zone ids and its columns.
+
+    Parameters
+    ----------
+    zoning : Zoning
+        Of a network with node coordinates.
+
+    Returns
+    -------
+    dict
+        A GeoJSON FeatureCollection, one feature per row of
+        ``zoning.boundary`` (``source``, ``target``, ``weight``, ``zone_a``,
+        ``zone_b``, then the columns carried from the input links), each a
+        straight segment from the source node to the target node.
+    """
+    xy = _coordinates_of(zoning)
+    table = zoning.boundary
+    index = pd.Index(zoning.network.node_ids)
+    src = index.get_indexer(table["source"].to_numpy(dtype=object))
+    dst = index.get_indexer(table["target"].to_numpy(dtype=object))
+    features = [
+        {
+            "type": "Feature",
+            "geometry": {"type": "LineString", "coordinates": [a, b]},
+            "properties": props,
+        }
+        for a, b, props in zip(xy[src].tolist(), xy[dst].tolist(), _properties(table), strict=True)
+    ]
+    return _collection(features)
+
+
+def zoning_geojson(zoning: Zoning) -> dict[str, dict[str, Any]]:
+    """The GeoJSON files of a zoning, by file name, for :func:`write_outputs`.
+
+    ``zones.geojson`` (:func:`nodes_geojson`), ``zone_summary.geojson``
+    (:func:`zones_geojson`) and ``boundary.geojson`` (:func:`boundary_geojson`).
+    """
+    return {
+        "zones.geojson": nodes_geojson(zoning),
+        "zone_summary.geojson": zones_geojson(zoning),
+        "boundary.geojson": boundary_geojson(zoning),
+    }
+
+
+# ------------------------------------------------------------------ Parquet
+def parquet_available() -> bool:
+    """True when pyarrow, which Parquet output needs, can be imported."""
+    try:
+        import pyarrow.parquet  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+def _parquet_ready(frame: pd.DataFrame) -> pd.DataFrame:
+    """``frame`` with text column names, and object columns of mixed types as text.
+
+    Parquet columns have one type; a carried input column holding, say, ints
+    and strings is written as text (missing cells stay missing).
+    """
+    table = frame.copy()
+    table.columns = [str(c) for c in table.columns]
+    for name in table.columns:
+        column = table[name]
+        if column.dtype != object:
+            continue
+        kinds = {type(v) for v in column.dropna().tolist()}
+        if len(kinds) > 1 or (kinds and not kinds <= {str, bool, int, float}):
+            table[name] = column.map(lambda v: v if v is None or pd.isna(v) else str(v))
+    return table
+
+
+def parquet_bytes(frame: pd.DataFrame) -> bytes:
+    """A table as the bytes of one Parquet file (pyarrow, no index).
+
+    Parameters
+    ----------
+    frame : pandas.DataFrame
+
+    Returns
+    -------
+    bytes
+        A complete Parquet file; the same frame gives the same bytes with the
+        same library versions.
+
+    Raises
+    ------
+    OutputError
+        pyarrow is not installed.
+    """
+    try:
+        import pyarrow as pa
+        import pyarrow.parquet as pq
+    except ImportError as exc:
+        raise OutputError(
+            "Parquet output needs the optional package pyarrow; install it with "
+            "pip install 'specgraph[parquet]', or write CSV instead"
+        ) from exc
+    table = pa.Table.from_pandas(_parquet_ready(frame), preserve_index=False)
+    sink = pa.BufferOutputStream()
+    pq.write_table(table, sink)
+    return bytes(sink.getvalue().to_pybytes())
+
+
+def zoning_parquet(zoning: Zoning) -> dict[str, bytes]:
+    """The tables of :func:`zoning_tables` as Parquet files: ``zones.parquet`` and so on.
+
+    File name to bytes, ready for :func:`write_outputs`.
+    """
+    return {
+        name.removesuffix(".csv") + ".parquet": parquet_bytes(table)
+        for name, table in zoning_tables(zoning).items()
+    }
