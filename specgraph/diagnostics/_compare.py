@@ -20,8 +20,10 @@ from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components, min_weight_full_bipartite_matching
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 
+from .. import _figures
+from .._figures import UNASSIGNED
 from ..exceptions import InputError, ParameterError
-from ._score import EXAMPLES_SHOWN, UNASSIGNED
+from ._score import EXAMPLES_SHOWN
 
 __all__ = [
     "MATCH_DENSE_CELLS",
@@ -172,18 +174,17 @@ def variation_of_information(counts: np.ndarray) -> float:
     return vi if vi > 0 else 0.0  # rounding can leave -0.0 or -1e-17 for identical zonings
 
 
+#: Messages of the label check of :func:`compare` (labels of any length).
+_WORDING = _figures.LabelWording(
+    shape="{name} must be one-dimensional; got shape {shape}.",
+    dtype="{name} must hold integer zone numbers; got dtype {dtype}.",
+    minimum=f"{{name}} must hold zone numbers >= 0, or {UNASSIGNED} for unassigned; "
+    "got {minimum}.",
+)
+
+
 def _check_labels(labels: Any, name: str) -> np.ndarray:
-    labels = np.asarray(labels)
-    if labels.ndim != 1:
-        raise ParameterError(f"{name} must be one-dimensional; got shape {labels.shape}.")
-    if not np.issubdtype(labels.dtype, np.integer):
-        raise ParameterError(f"{name} must hold integer zone numbers; got dtype {labels.dtype}.")
-    if labels.size and labels.min() < UNASSIGNED:
-        raise ParameterError(
-            f"{name} must hold zone numbers >= 0, or {UNASSIGNED} for unassigned; "
-            f"got {int(labels.min())}."
-        )
-    return labels.astype(np.int64, copy=False)
+    return _figures.check_labels(labels, name=name, unassigned=True, wording=_WORDING)
 
 
 def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:

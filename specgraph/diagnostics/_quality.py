@@ -1,67 +1,37 @@
 """Quality figures of a zoning: per-zone table, boundary links, overall scores.
 
-Definitions, for a zone :math:`S` with complement :math:`\\bar S` in a network
-of total volume :math:`\\operatorname{vol} V = \\sum_i d_i`:
-
-.. math::
-
-    w(S, \\bar S) = \\sum_{i \\in S, j \\notin S} a_{ij}, \\qquad
-    \\operatorname{vol} S = \\sum_{i \\in S} d_i, \\qquad
-    \\phi(S) = \\frac{w(S, \\bar S)}{\\min(\\operatorname{vol} S, \\operatorname{vol} \\bar S)},
-
-and the normalized cut of a zoning :math:`S_1, \\dots, S_k` is
-:math:`\\sum_z w(S_z, \\bar S_z) / \\operatorname{vol} S_z` (Shi and Malik 2000,
-:doi:`10.1109/34.868688`). A zone with no boundary has conductance 0 (it is a
-whole component), whatever its volume. Everything here is vectorized over links,
-so it costs a few passes over the adjacency whatever the number of zones.
+The definitions (conductance, volume, normalized cut of Shi and Malik 2000,
+:doi:`10.1109/34.868688`) and the engine behind them are those of
+:mod:`specgraph._figures`, shared with scoring, refinement and the report. A
+zone with no boundary has conductance 0 (it is a whole component), whatever its
+volume. Everything is vectorized over links, so it costs a few passes over the
+adjacency whatever the number of zones.
 """
 
 from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import scipy.sparse as sp
-from scipy.sparse.csgraph import connected_components
 
+from .. import _figures
 from ..exceptions import InputError
 from ..network import Network
 
 __all__ = ["boundary_links", "check_labels", "overall_scores", "zone_table"]
 
+#: Messages of :func:`check_labels` (labels are data here: an ``InputError``).
+_WORDING = _figures.LabelWording(
+    shape="{name} must hold one zone per node ({n}); got shape {shape}",
+    dtype="{name} must be integers >= 0",
+    minimum="{name} must be integers >= 0",
+)
+
 
 def check_labels(network: Network, labels: np.ndarray) -> np.ndarray:
     """Return ``labels`` as int64 zone numbers 0..k-1, one per node, or raise."""
-    labels = np.asarray(labels)
-    if labels.shape != (network.n_nodes,):
-        raise InputError(
-            f"labels must hold one zone per node ({network.n_nodes}); got shape {labels.shape}"
-        )
-    if not np.issubdtype(labels.dtype, np.integer) or (labels.size and labels.min() < 0):
-        raise InputError("labels must be integers >= 0")
-    return labels.astype(np.int64, copy=False)
-
-
-def _link_figures(
-    network: Network, labels: np.ndarray, k: int
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Internal weight, boundary weight, boundary link count and connectedness per zone.
-
-    One pass over the stored links (each undirected link is stored twice, so
-    internal sums are halved, and each crossing is counted once at each side).
-    """
-    coo = network.adjacency.tocoo()
-    zi, zj = labels[coo.row], labels[coo.col]
-    inside = zi == zj
-    internal = np.bincount(zi[inside], weights=coo.data[inside], minlength=k) / 2.0
-    boundary = np.bincount(zi[~inside], weights=coo.data[~inside], minlength=k)
-    crossings = np.bincount(zi[~inside], minlength=k)
-    inner = sp.csr_array(
-        (coo.data[inside], (coo.row[inside], coo.col[inside])), shape=network.adjacency.shape
+    return _figures.check_labels(
+        labels, n_nodes=network.n_nodes, error=InputError, wording=_WORDING
     )
-    _, pieces = connected_components(inner, directed=False)
-    pairs = np.unique(np.column_stack([labels, pieces]), axis=0)
-    connected = np.bincount(pairs[:, 0], minlength=k) == 1
-    return internal, boundary, crossings, connected
 
 
 def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
@@ -92,24 +62,21 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
     """
     labels = check_labels(network, labels)
     k = int(labels.max()) + 1 if labels.size else 0
-    nodes = np.bincount(labels, minlength=k)
-    size = np.bincount(labels, weights=network.node_weights, minlength=k)
-    volume = np.bincount(labels, weights=network.degrees, minlength=k)
-    internal, boundary, link_counts, connected = _link_figures(network, labels, k)
-    smaller = np.minimum(volume, volume.sum() - volume)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        conductance = np.where(boundary > 0, boundary / smaller, 0.0)
+    figures = _figures.zone_figures(network, labels, k)
     return pd.DataFrame(
         {
             "zone": np.arange(k),
-            "nodes": nodes,
-            "size": size,
-            "internal_weight": internal,
-            "boundary_weight": boundary,
-            "conductance": conductance,
-            "connected": connected & (nodes > 0),
-            "volume": volume,
-            "boundary_links": link_counts,
+            "nodes": figures.nodes,
+            "size": figures.size,
+            "internal_weight": figures.internal_weight,
+            "boundary_weight": figures.boundary_weight,
+            # Every node is in a zone, so vol V is the sum of the zone volumes.
+            "conductance": _figures.conductance(
+                figures.boundary_weight, figures.volume, figures.volume.sum()
+            ),
+            "connected": figures.connected,
+            "volume": figures.volume,
+            "boundary_links": figures.boundary_links,
         }
     )
 
@@ -145,8 +112,7 @@ def overall_scores(table: pd.DataFrame) -> dict[str, float | int | bool]:
     """
     vol = table["volume"].to_numpy()
     cut = table["boundary_weight"].to_numpy()
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ncut = float(np.sum(np.where(vol > 0, cut / vol, 0.0)))
+    ncut = float(np.sum(_figures.ncut_terms(cut, vol)))
     return {
         "zones": len(table),
         "normalized_cut": ncut,

@@ -11,10 +11,11 @@ unassigned, and modularity sums over the zones only (the outside set has no
 term).
 
 Zone numbers are the user's: they need not start at 0 nor be consecutive, and
-every table keeps them. Every figure is vectorized over links (a few passes over
-the adjacency, with the definitions of :func:`~specgraph.diagnostics.zone_table`
-and no sort), so scoring costs little next to an eigen-solve; the optional
-eigengap is the one costly part.
+every table keeps them. Every figure comes from the engine of
+:mod:`specgraph._figures` that :func:`~specgraph.diagnostics.zone_table` uses too
+(a few passes over the adjacency, no sort), so scoring costs little next to an
+eigen-solve; the optional eigengap is the one costly part. ``UNASSIGNED`` is
+:data:`specgraph._figures.UNASSIGNED`.
 """
 
 from __future__ import annotations
@@ -26,9 +27,9 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-import scipy.sparse as sp
-from scipy.sparse.csgraph import connected_components
 
+from .. import _figures
+from .._figures import UNASSIGNED
 from .._validation import check_positive_float, check_rng
 from ..eigen import DEFAULT_TOL, smallest_eigenpairs
 from ..exceptions import InputError, ParameterError
@@ -49,9 +50,6 @@ __all__ = [
     "outlier_flags",
     "score",
 ]
-
-#: Label of a node that belongs to no zone.
-UNASSIGNED = -1
 
 #: How many ids an error message or a report shows as examples.
 EXAMPLES_SHOWN = 5
@@ -219,21 +217,10 @@ def labels_from_mapping(
 
 
 def _check_user_labels(network: Network, labels: Any) -> np.ndarray:
-    labels = np.asarray(labels)
-    if labels.shape != (network.n_nodes,):
-        raise ParameterError(
-            f"labels must hold one zone per node ({network.n_nodes}); got shape {labels.shape}."
-        )
-    if not np.issubdtype(labels.dtype, np.integer):
-        raise ParameterError(f"labels must be integers; got dtype {labels.dtype}.")
-    if labels.size and labels.min() < UNASSIGNED:
-        raise ParameterError(
-            f"labels must be zone numbers >= 0, or {UNASSIGNED} for unassigned; "
-            f"got {int(labels.min())}."
-        )
+    labels = _figures.check_labels(labels, n_nodes=network.n_nodes, unassigned=True)
     if not np.any(labels >= 0):
         raise InputError("labels assign no node to a zone; nothing to score")
-    return labels.astype(np.int64, copy=False)
+    return labels
 
 
 def outlier_flags(table: pd.DataFrame) -> np.ndarray:
@@ -281,41 +268,6 @@ def outlier_flags(table: pd.DataFrame) -> np.ndarray:
     return np.asarray(["; ".join(n) for n in notes], dtype=object)
 
 
-def _zone_figures(network: Network, coded: np.ndarray, count: int) -> dict[str, np.ndarray]:
-    """Per-label figures of ``coded`` (labels ``0..count-1``), one pass over the stored links.
-
-    Each undirected link is stored twice, so internal sums are halved and a
-    crossing link is counted once at each end. A label is connected when the
-    links inside it join all its nodes: each piece of the network cut along
-    label changes lies in one label, so counting pieces per label needs no sort
-    (faster than ``zone_table``'s pair sort at a million nodes).
-    """
-    adjacency = network.adjacency
-    n = network.n_nodes
-    rows = np.repeat(np.arange(n, dtype=np.int64), np.diff(adjacency.indptr))
-    zi, zj = coded[rows], coded[adjacency.indices]
-    inside = zi == zj
-    data = adjacency.data
-    per_row = np.bincount(rows[inside], minlength=n)
-    inner = sp.csr_array(
-        (data[inside], adjacency.indices[inside], np.concatenate([[0], np.cumsum(per_row)])),
-        shape=(n, n),
-    )
-    n_pieces, pieces = connected_components(inner, directed=False)
-    piece_label = np.empty(n_pieces, dtype=np.int64)
-    piece_label[pieces] = coded
-    nodes = np.bincount(coded, minlength=count)
-    return {
-        "nodes": nodes,
-        "size": np.bincount(coded, weights=network.node_weights, minlength=count),
-        "volume": np.bincount(coded, weights=network.degrees, minlength=count),
-        "internal_weight": np.bincount(zi[inside], weights=data[inside], minlength=count) / 2.0,
-        "boundary_weight": np.bincount(zi[~inside], weights=data[~inside], minlength=count),
-        "boundary_links": np.bincount(zi[~inside], minlength=count),
-        "connected": (np.bincount(piece_label, minlength=count) == 1) & (nodes > 0),
-    }
-
-
 def _rows_of(network: Network, ids: np.ndarray) -> np.ndarray:
     """Row of each id, ``-1`` for ids that are not network nodes (dictionary look-ups)."""
     index = network.index_of
@@ -347,13 +299,14 @@ def _eigengap(
         return None, empty
     values = smallest_eigenpairs(laplacian(network, kind="normalized"), k + 1, rng=rng, tol=tol)
     lam, nxt = float(values.values[k - 1]), float(values.values[k])
+    relative = _figures.relative_gap(lam, nxt)
     return values.values.copy(), {
         "eigenvalue_k": lam,
         "eigenvalue_next": nxt,
         "eigengap": nxt - lam,
         # Relative gap, as in suggest_zone_counts; undefined when lambda_{k+1} = 0
         # (fewer zones than connected components).
-        "relative_eigengap": (nxt - lam) / nxt if nxt > 0 else None,
+        "relative_eigengap": float(relative) if np.isfinite(relative) else None,
     }
 
 
@@ -467,77 +420,24 @@ def score(
     # of each zone; its own figures are then set aside.
     coded = np.full(network.n_nodes, k, dtype=np.int64)
     coded[assigned] = dense
-    figures = _zone_figures(network, coded, k + 1)
-    volume = figures["volume"][:k]
-    cut = figures["boundary_weight"][:k]
-    smaller = np.minimum(volume, network.degrees.sum() - volume)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        conductance = np.where(cut > 0, cut / smaller, 0.0)
-    total_weight = float(network.degrees.sum()) / 2.0
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ncut_terms = np.where(volume > 0, cut / volume, 0.0)
-    ncut = float(ncut_terms.sum())
-    if total_weight > 0:
-        q_terms = (
-            figures["internal_weight"][:k] / total_weight - (volume / (2.0 * total_weight)) ** 2
-        )
-    else:
-        q_terms = np.zeros(k)
-
-    zones = pd.DataFrame(
-        {
-            "zone": numbers,
-            "nodes": figures["nodes"][:k],
-            "size": figures["size"][:k],
-            "internal_weight": figures["internal_weight"][:k],
-            "boundary_weight": cut,
-            "boundary_links": figures["boundary_links"][:k],
-            "conductance": conductance,
-            "ncut_share": ncut_terms / ncut if ncut > 0 else np.zeros(k),
-            "modularity_share": q_terms,
-            "connected": figures["connected"][:k],
-            "volume": volume,
-        }
-    )
+    figures = _figures.zone_figures(network, coded, k + 1)
+    zones, terms = _zone_frame(network, numbers, figures)
     source_figures = _source_figures(network, sources, coded, k, zones)
     zones["flags"] = outlier_flags(zones)
-    node_importance = None
-    importance_figures: dict[str, Any] = {"damping": None, "importance_unassigned": None}
-    if importance:
-        walk = stationary_distribution(network, damping=damping)
-        node_importance = walk.values
-        per_zone = np.bincount(coded, weights=node_importance, minlength=k + 1)
-        zones.insert(list(zones.columns).index("volume") + 1, "importance", per_zone[:k])
-        importance_figures = {
-            "damping": walk.damping,
-            "importance_unassigned": float(per_zone[k]),
-        }
-
-    # Crossing links: zone-zone ones appear in two zones' boundaries, zone-outside
-    # ones in one zone's boundary and in the outside row.
-    out_weight = float(figures["boundary_weight"][k])
-    out_links = int(figures["boundary_links"][k])
+    node_importance, importance_figures = (
+        _importance(network, coded, zones, damping) if importance else (None, {})
+    )
     eigenvalues, gap = _eigengap(network, k, generator, tol) if eigengap else (None, {})
     overall: dict[str, Any] = {
-        "zones": k,
-        "assigned_nodes": int(assigned.sum()),
-        "unassigned_nodes": int(network.n_nodes - assigned.sum()),
-        "normalized_cut": ncut,
-        "modularity": float(q_terms.sum()),
-        "max_conductance": float(zones["conductance"].max()),
-        "mean_conductance": float(zones["conductance"].mean()),
-        "boundary_weight": (float(cut.sum()) + out_weight) / 2.0,
-        "boundary_links": (int(zones["boundary_links"].sum()) + out_links) // 2,
-        "boundary_weight_to_unassigned": out_weight,
-        "boundary_links_to_unassigned": out_links,
-        "all_connected": bool(zones["connected"].all()),
-        "flagged_zones": int((zones["flags"] != "").sum()),
+        **_overall(network, zones, figures, terms, assigned),
         **source_figures,
         "eigenvalue_k": None,
         "eigenvalue_next": None,
         "eigengap": None,
         "relative_eigengap": None,
         **gap,
+        "damping": None,
+        "importance_unassigned": None,
         **importance_figures,
     }
     return Scorecard(
@@ -547,6 +447,85 @@ def score(
         eigenvalues=eigenvalues,
         node_importance=node_importance,
     )
+
+
+def _zone_frame(
+    network: Network, numbers: np.ndarray, figures: _figures.ZoneFigures
+) -> tuple[pd.DataFrame, dict[str, np.ndarray]]:
+    """The zone table of :func:`score` (the ``k`` zones, outside set dropped) and its terms.
+
+    Returns the table and the per-zone terms of the normalized cut (``"ncut"``)
+    and of modularity (``"modularity"``).
+    """
+    k = int(numbers.size)
+    volume = figures.volume[:k]
+    cut = figures.boundary_weight[:k]
+    # Volumes refer to the whole network, unassigned nodes included.
+    total_volume = network.degrees.sum()
+    total_weight = float(total_volume) / 2.0
+    ncut_terms = _figures.ncut_terms(cut, volume)
+    ncut = float(ncut_terms.sum())
+    if total_weight > 0:
+        q_terms = figures.internal_weight[:k] / total_weight - (volume / (2.0 * total_weight)) ** 2
+    else:
+        q_terms = np.zeros(k)
+    zones = pd.DataFrame(
+        {
+            "zone": numbers,
+            "nodes": figures.nodes[:k],
+            "size": figures.size[:k],
+            "internal_weight": figures.internal_weight[:k],
+            "boundary_weight": cut,
+            "boundary_links": figures.boundary_links[:k],
+            "conductance": _figures.conductance(cut, volume, total_volume),
+            "ncut_share": ncut_terms / ncut if ncut > 0 else np.zeros(k),
+            "modularity_share": q_terms,
+            "connected": figures.connected[:k],
+            "volume": volume,
+        }
+    )
+    return zones, {"ncut": ncut_terms, "modularity": q_terms}
+
+
+def _importance(
+    network: Network, coded: np.ndarray, zones: pd.DataFrame, damping: float
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Node importance; adds the zones' ``importance`` column, returns the overall figures."""
+    k = len(zones)
+    walk = stationary_distribution(network, damping=damping)
+    per_zone = np.bincount(coded, weights=walk.values, minlength=k + 1)
+    zones.insert(list(zones.columns).index("volume") + 1, "importance", per_zone[:k])
+    return walk.values, {"damping": walk.damping, "importance_unassigned": float(per_zone[k])}
+
+
+def _overall(
+    network: Network,
+    zones: pd.DataFrame,
+    figures: _figures.ZoneFigures,
+    terms: dict[str, np.ndarray],
+    assigned: np.ndarray,
+) -> dict[str, Any]:
+    """Whole-zoning figures of :func:`score` that come from the zone table."""
+    k = len(zones)
+    # Crossing links: zone-zone ones appear in two zones' boundaries, zone-outside
+    # ones in one zone's boundary and in the outside row.
+    out_weight = float(figures.boundary_weight[k])
+    out_links = int(figures.boundary_links[k])
+    return {
+        "zones": k,
+        "assigned_nodes": int(assigned.sum()),
+        "unassigned_nodes": int(network.n_nodes - assigned.sum()),
+        "normalized_cut": float(terms["ncut"].sum()),
+        "modularity": float(terms["modularity"].sum()),
+        "max_conductance": float(zones["conductance"].max()),
+        "mean_conductance": float(zones["conductance"].mean()),
+        "boundary_weight": (float(figures.boundary_weight[:k].sum()) + out_weight) / 2.0,
+        "boundary_links": (int(zones["boundary_links"].sum()) + out_links) // 2,
+        "boundary_weight_to_unassigned": out_weight,
+        "boundary_links_to_unassigned": out_links,
+        "all_connected": bool(zones["connected"].all()),
+        "flagged_zones": int((zones["flags"] != "").sum()),
+    }
 
 
 def _source_figures(

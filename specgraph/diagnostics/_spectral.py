@@ -1,28 +1,16 @@
-"""Spectral evidence: eigengaps and the Cheeger check."""
+"""Spectral evidence: eigengaps and the Cheeger check.
+
+:func:`eigengaps` and the relative gap are computed by :mod:`specgraph._figures`,
+shared with the zone count and the scorecard.
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
+from .._figures import eigengaps, relative_gap
+
 __all__ = ["cheeger_bounds", "eigengaps", "suggest_zone_counts"]
-
-
-def eigengaps(values: np.ndarray) -> np.ndarray:
-    """Gaps :math:`\\lambda_{i+1} - \\lambda_i` between consecutive sorted eigenvalues.
-
-    ``gaps[k-1]`` is the gap after the ``k``-th smallest eigenvalue: a large
-    gap there says the network has ``k`` well-separated groups, by the
-    higher-order Cheeger inequality :math:`\\lambda_k/2 \\le \\rho(k) \\le
-    O(k^2)\\sqrt{\\lambda_k}` (Lee, Oveis Gharan and Trevisan, J. ACM 61(6), 2014,
-    :doi:`10.1145/2665063`).
-
-    Examples
-    --------
-    >>> eigengaps(np.array([0.0, 0.01, 0.02, 0.5])).round(2).tolist()
-    [0.01, 0.01, 0.48]
-    """
-    values = np.sort(np.asarray(values, dtype=np.float64))
-    return np.diff(values)
 
 
 def cheeger_bounds(lambda2: float) -> tuple[float, float]:
@@ -75,18 +63,18 @@ def suggest_zone_counts(values: np.ndarray, *, n_components: int = 1, top: int =
     4
     """
     values = np.sort(np.asarray(values, dtype=np.float64))
-    out = []
-    for k in range(max(n_components, 1) + 1, values.size):
-        lam, nxt = float(values[k - 1]), float(values[k])
-        if nxt <= 0:
-            continue
-        out.append(
-            {
-                "zones": k,
-                "relative_gap": (nxt - lam) / nxt,
-                "eigenvalue": lam,
-                "next_eigenvalue": nxt,
-            }
-        )
+    ks = np.arange(max(n_components, 1) + 1, values.size, dtype=np.int64)
+    lam, nxt = values[ks - 1], values[ks]
+    gaps = relative_gap(lam, nxt)
+    out = [
+        {
+            "zones": int(k),
+            "relative_gap": float(gap),
+            "eigenvalue": float(low),
+            "next_eigenvalue": float(high),
+        }
+        for k, low, high, gap in zip(ks, lam, nxt, gaps, strict=True)
+        if high > 0
+    ]
     out.sort(key=lambda row: (-row["relative_gap"], row["zones"]))
     return out[:top]

@@ -1,0 +1,338 @@
+"""Zone figures shared by zoning, diagnostics and the report: one label check, one engine.
+
+Every per-zone figure of specgraph comes from here, so that
+:func:`~specgraph.diagnostics.zone_table`, :func:`~specgraph.diagnostics.score`,
+boundary refinement (:func:`~specgraph.zones.normalized_cut`), the zone-count
+curve and the report agree to the bit. For a zone :math:`S` with complement
+:math:`\\bar S`:
+
+.. math::
+
+    w(S, \\bar S) = \\sum_{i \\in S, j \\notin S} a_{ij}, \\qquad
+    \\operatorname{vol} S = \\sum_{i \\in S} d_i, \\qquad
+    \\phi(S) = \\frac{w(S, \\bar S)}
+                   {\\min(\\operatorname{vol} S, \\operatorname{vol} V - \\operatorname{vol} S)},
+
+and the normalized cut of a zoning is :math:`\\sum_z w(S_z, \\bar S_z) /
+\\operatorname{vol} S_z` (Shi and Malik 2000, :doi:`10.1109/34.868688`; k-way
+form of Dhillon, Guan and Kulis 2007, :doi:`10.1109/TPAMI.2007.1115`). A zone
+with no boundary has conductance 0 and a zone of zero volume adds 0 to the cut.
+
+The engine makes one pass over the stored links of the CSR adjacency (each
+undirected link is stored twice: internal sums are halved, a crossing link is
+counted once at each end). A zone is connected when the links inside it join
+all its nodes: each piece of the network cut along zone changes lies in one
+zone, so counting pieces per zone needs no sort.
+
+This is a shared low-level module: it imports only numpy, scipy, the
+exceptions and the network, never a pipeline stage, so every stage may use it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
+
+from .exceptions import ParameterError, SpecgraphError
+
+if TYPE_CHECKING:
+    from .network import Network
+
+__all__ = [
+    "HIGH_GAP",
+    "LABEL_WORDING",
+    "MEDIUM_GAP",
+    "UNASSIGNED",
+    "LabelWording",
+    "ZoneFigures",
+    "check_labels",
+    "conductance",
+    "cut_and_volume",
+    "eigengaps",
+    "ncut_terms",
+    "normalized_cut",
+    "relative_gap",
+    "zone_figures",
+]
+
+#: Label of a node that belongs to no zone.
+UNASSIGNED = -1
+
+#: Relative gap :math:`(\lambda_{k+1} - \lambda_k)/\lambda_{k+1}` from which a
+#: count may be called ``'high'`` confidence: :math:`\lambda_{k+1} \ge 2.5
+#: \lambda_k`. Block models with a clear planted structure (3 to 6 blocks)
+#: measured 0.67 to 0.84 at the planted count (tests/test_count.py).
+HIGH_GAP = 0.6
+
+#: Relative gap from which a count may be called ``'medium'`` confidence:
+#: :math:`\lambda_{k+1} \ge 1.43 \lambda_k`. Below it the spectrum rises with
+#: no clear step and the count is ``'low'`` confidence.
+MEDIUM_GAP = 0.3
+
+
+# -------------------------------------------------------------- label check
+@dataclass(frozen=True)
+class LabelWording:
+    """The three refusals of :func:`check_labels`, as :meth:`str.format` templates.
+
+    Fields available to every template: ``name``, ``n`` (expected length or
+    None), ``shape``, ``dtype`` and ``minimum`` (the smallest label, or None
+    before it is known). Callers keep their own wording so that messages stay
+    word for word what their users and tests know.
+
+    Attributes
+    ----------
+    shape : str
+        Wrong shape (or, without an expected length, not one-dimensional).
+    dtype : str
+        Not integers.
+    minimum : str
+        A label below the smallest allowed one.
+    """
+
+    shape: str
+    dtype: str
+    minimum: str
+
+
+#: The wording of :func:`specgraph.diagnostics.score` (the default).
+LABEL_WORDING = LabelWording(
+    shape="{name} must hold one zone per node ({n}); got shape {shape}.",
+    dtype="{name} must be integers; got dtype {dtype}.",
+    minimum=f"{{name}} must be zone numbers >= 0, or {UNASSIGNED} for unassigned; got {{minimum}}.",
+)
+
+
+def check_labels(
+    labels: Any,
+    *,
+    n_nodes: int | None = None,
+    name: str = "labels",
+    unassigned: bool = False,
+    error: type[SpecgraphError] = ParameterError,
+    wording: LabelWording = LABEL_WORDING,
+    copy: bool = False,
+) -> np.ndarray:
+    """Return ``labels`` as int64 zone numbers, one per node, or raise ``error``.
+
+    The checks, in order: the shape (``(n_nodes,)``, or one-dimensional when
+    ``n_nodes`` is None), integer dtype, and no label below 0 (below
+    :data:`UNASSIGNED` with ``unassigned=True``).
+
+    Parameters
+    ----------
+    labels : array-like of int
+    n_nodes : int, optional
+        Expected length; any length of a one-dimensional array when None.
+    name : str, default='labels'
+        Argument name used in the messages.
+    unassigned : bool, default=False
+        Accept :data:`UNASSIGNED` (``-1``) for a node in no zone.
+    error : type, default=ParameterError
+        Exception class raised (:class:`~specgraph.exceptions.InputError` where
+        labels are data rather than an argument).
+    wording : LabelWording, default=LABEL_WORDING
+        Message templates.
+    copy : bool, default=False
+        Always return a new array (otherwise int64 input is returned as is).
+
+    Returns
+    -------
+    ndarray of int64
+
+    Examples
+    --------
+    >>> check_labels([2, 0, -1], n_nodes=3, unassigned=True).tolist()
+    [2, 0, -1]
+    >>> check_labels([0, 1.5], n_nodes=2)
+    Traceback (most recent call last):
+    ...
+    specgraph.exceptions.ParameterError: labels must be integers; got dtype float64.
+    """
+    array = np.asarray(labels)
+
+    def refuse(template: str, minimum: int | None = None) -> SpecgraphError:
+        return error(
+            template.format(
+                name=name, n=n_nodes, shape=array.shape, dtype=array.dtype, minimum=minimum
+            )
+        )
+
+    if (array.ndim != 1) if n_nodes is None else (array.shape != (n_nodes,)):
+        raise refuse(wording.shape)
+    if not np.issubdtype(array.dtype, np.integer):
+        raise refuse(wording.dtype)
+    floor = UNASSIGNED if unassigned else 0
+    if array.size and array.min() < floor:
+        raise refuse(wording.minimum, int(array.min()))
+    return array.astype(np.int64, copy=copy)
+
+
+# ------------------------------------------------------------------- engine
+@dataclass(frozen=True, eq=False)
+class ZoneFigures:
+    """Per-zone sums of a zoning, one entry per label ``0..count-1`` (see :func:`zone_figures`).
+
+    Attributes
+    ----------
+    nodes : ndarray of int
+        Nodes in the zone.
+    size : ndarray of float
+        Sum of node sizes (the network's ``node_weights``).
+    volume : ndarray of float
+        Sum of weighted degrees.
+    internal_weight : ndarray of float
+        Weight of the links with both ends in the zone.
+    boundary_weight : ndarray of float
+        Weight of the links with one end in the zone (the cut).
+    boundary_links : ndarray of int
+        Number of such links.
+    connected : ndarray of bool
+        The links inside the zone join all its nodes (False for an empty zone).
+    """
+
+    nodes: np.ndarray
+    size: np.ndarray
+    volume: np.ndarray
+    internal_weight: np.ndarray
+    boundary_weight: np.ndarray
+    boundary_links: np.ndarray
+    connected: np.ndarray
+
+
+def cut_and_volume(
+    adjacency: sp.csr_array, labels: np.ndarray, count: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Cut :math:`w(S_z, \\bar S_z)` and volume of every label, degrees from ``adjacency``.
+
+    ``adjacency`` is a checked float CSR array and ``labels`` int64 in
+    ``0..count-1`` (see :func:`check_labels`).
+    """
+    degree = np.asarray(adjacency.sum(axis=1)).ravel()
+    rows = np.repeat(labels, np.diff(adjacency.indptr))  # label of each entry's row
+    cross = rows != labels[adjacency.indices]
+    cut = np.bincount(rows[cross], weights=adjacency.data[cross], minlength=count)
+    return cut, np.bincount(labels, weights=degree, minlength=count)
+
+
+def zone_figures(network: Network, labels: np.ndarray, count: int) -> ZoneFigures:
+    """Every per-zone sum of ``labels`` (int64 in ``0..count-1``), one pass over the links.
+
+    Examples
+    --------
+    >>> from specgraph import gallery
+    >>> figures = zone_figures(gallery.path(4), np.array([0, 0, 1, 1]), 2)
+    >>> figures.internal_weight.tolist(), figures.boundary_weight.tolist()
+    ([1.0, 1.0], [1.0, 1.0])
+    """
+    adjacency = network.adjacency
+    n = network.n_nodes
+    rows = np.repeat(np.arange(n, dtype=np.int64), np.diff(adjacency.indptr))
+    zi, zj = labels[rows], labels[adjacency.indices]
+    inside = zi == zj
+    data = adjacency.data
+    per_row = np.bincount(rows[inside], minlength=n)
+    inner = sp.csr_array(
+        (data[inside], adjacency.indices[inside], np.concatenate([[0], np.cumsum(per_row)])),
+        shape=(n, n),
+    )
+    n_pieces, pieces = connected_components(inner, directed=False)
+    piece_label = np.empty(n_pieces, dtype=np.int64)
+    piece_label[pieces] = labels
+    nodes = np.bincount(labels, minlength=count)
+    return ZoneFigures(
+        nodes=nodes,
+        size=np.bincount(labels, weights=network.node_weights, minlength=count),
+        volume=np.bincount(labels, weights=network.degrees, minlength=count),
+        internal_weight=np.bincount(zi[inside], weights=data[inside], minlength=count) / 2.0,
+        boundary_weight=np.bincount(zi[~inside], weights=data[~inside], minlength=count),
+        boundary_links=np.bincount(zi[~inside], minlength=count),
+        connected=(np.bincount(piece_label, minlength=count) == 1) & (nodes > 0),
+    )
+
+
+def conductance(cut: np.ndarray, volume: np.ndarray, total_volume: float) -> np.ndarray:
+    """Conductance :math:`\\phi(S)` of every zone (module notes), 0 for a zone without a cut.
+
+    ``total_volume`` is :math:`\\operatorname{vol} V`, the whole network's.
+
+    Examples
+    --------
+    >>> conductance(np.array([1.0, 0.0]), np.array([3.0, 3.0]), 6.0).tolist()
+    [0.3333333333333333, 0.0]
+    """
+    smaller = np.minimum(volume, total_volume - volume)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(cut > 0, cut / smaller, 0.0)
+
+
+def ncut_terms(cut: np.ndarray, volume: np.ndarray) -> np.ndarray:
+    """Each zone's term :math:`w(S_z, \\bar S_z)/\\operatorname{vol} S_z` of the normalized cut.
+
+    Zones of zero volume give 0.
+
+    Examples
+    --------
+    >>> ncut_terms(np.array([1.0, 1.0, 0.0]), np.array([7.0, 7.0, 0.0])).round(4).tolist()
+    [0.1429, 0.1429, 0.0]
+    """
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(volume > 0, cut / volume, 0.0)
+
+
+def normalized_cut(adjacency: sp.csr_array, labels: np.ndarray) -> float:
+    """Normalized cut of ``labels`` (int64 ``>= 0``) on a checked float CSR ``adjacency``.
+
+    The sum of :func:`ncut_terms`, volumes from the row sums of ``adjacency``.
+
+    Examples
+    --------
+    >>> from specgraph import gallery
+    >>> round(normalized_cut(gallery.barbell(3).adjacency, np.array([0, 0, 0, 1, 1, 1])), 6)
+    0.285714
+    """
+    count = int(labels.max()) + 1 if labels.size else 0
+    cut, volume = cut_and_volume(adjacency, labels, count)
+    return float(np.sum(ncut_terms(cut, volume)))
+
+
+# ----------------------------------------------------------------- eigengap
+def eigengaps(values: np.ndarray) -> np.ndarray:
+    """Gaps :math:`\\lambda_{i+1} - \\lambda_i` between consecutive sorted eigenvalues.
+
+    ``gaps[k-1]`` is the gap after the ``k``-th smallest eigenvalue: a large
+    gap there says the network has ``k`` well-separated groups, by the
+    higher-order Cheeger inequality :math:`\\lambda_k/2 \\le \\rho(k) \\le
+    O(k^2)\\sqrt{\\lambda_k}` (Lee, Oveis Gharan and Trevisan, J. ACM 61(6), 2014,
+    :doi:`10.1145/2665063`).
+
+    Examples
+    --------
+    >>> eigengaps(np.array([0.0, 0.01, 0.02, 0.5])).round(2).tolist()
+    [0.01, 0.01, 0.48]
+    """
+    values = np.sort(np.asarray(values, dtype=np.float64))
+    return np.diff(values)
+
+
+def relative_gap(lower: Any, upper: Any, *, undefined: float = np.nan) -> np.ndarray:
+    """Relative eigengap :math:`(\\lambda_{k+1} - \\lambda_k)/\\lambda_{k+1}`, elementwise.
+
+    Relative rather than absolute, since on large near-planar networks every
+    small eigenvalue is tiny. Undefined (``undefined``) where
+    :math:`\\lambda_{k+1} \\le 0`, that is with fewer zones than connected
+    components.
+
+    Examples
+    --------
+    >>> relative_gap(np.array([0.01, 0.0]), np.array([0.3, 0.0]), undefined=0.0).round(4).tolist()
+    [0.9667, 0.0]
+    """
+    lower = np.asarray(lower, dtype=np.float64)
+    upper = np.asarray(upper, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(upper > 0, (upper - lower) / upper, undefined)
