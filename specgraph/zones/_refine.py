@@ -67,6 +67,8 @@ import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
+from .._figures import LabelWording, check_labels, cut_and_volume
+from .._figures import normalized_cut as figures_normalized_cut
 from .._validation import check_int, check_rng
 from ..exceptions import ParameterError
 from ._arrays import as_csr
@@ -148,23 +150,17 @@ def _csr(adjacency: Any) -> sp.csr_array:
     return as_csr(adjacency)
 
 
+#: Messages of the label check of refinement and :func:`normalized_cut`.
+_WORDING = LabelWording(
+    shape="{name} must have shape ({n},); got shape {shape}.",
+    dtype="{name} must be integers >= 0; got dtype {dtype}.",
+    minimum="{name} must be integers >= 0; got dtype {dtype}.",
+)
+
+
 def _labels(labels: Any, n: int) -> np.ndarray:
-    array = np.asarray(labels)
-    if array.shape != (n,):
-        raise ParameterError(f"labels must have shape ({n},); got shape {array.shape}.")
-    if not np.issubdtype(array.dtype, np.integer) or (array.size and array.min() < 0):
-        raise ParameterError(f"labels must be integers >= 0; got dtype {array.dtype}.")
-    return array.astype(np.int64)  # always a copy: the input is never modified
-
-
-def _zone_totals(a: sp.csr_array, labels: np.ndarray, k: int) -> tuple[np.ndarray, np.ndarray]:
-    """Cut and volume of every zone, in one pass over the stored links."""
-    degree = np.asarray(a.sum(axis=1)).ravel()
-    rows = np.repeat(labels, np.diff(a.indptr))
-    cross = rows != labels[a.indices]
-    cut = np.bincount(rows[cross], weights=a.data[cross], minlength=k)
-    vol = np.bincount(labels, weights=degree, minlength=k)
-    return cut, vol
+    # Always a copy: the input is never modified.
+    return check_labels(labels, n_nodes=n, wording=_WORDING, copy=True)
 
 
 def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
@@ -182,6 +178,7 @@ def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
     Returns
     -------
     float
+        The sum over zones (:func:`specgraph._figures.normalized_cut`).
 
     Raises
     ------
@@ -204,11 +201,7 @@ def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
     True
     """
     a = _csr(adjacency)
-    zones = _labels(labels, a.shape[0])
-    k = int(zones.max()) + 1 if zones.size else 0
-    cut, vol = _zone_totals(a, zones, k)
-    safe = np.where(vol > 0, vol, 1.0)
-    return float(np.sum(np.where(vol > 0, cut / safe, 0.0)))
+    return figures_normalized_cut(a, _labels(labels, a.shape[0]))
 
 
 # ------------------------------------------------------------ compiled moves
@@ -557,8 +550,7 @@ def refine_boundary(
     rank = check_rng(rng).permutation(n).astype(np.int64)
 
     k = int(start.max()) + 1 if n else 0
-    cut, vol = _zone_totals(a, start, k)
-    before = float(np.sum(np.where(vol > 0, cut / np.where(vol > 0, vol, 1.0), 0.0)))
+    before = figures_normalized_cut(a, start)
     current = start.copy()
     degree = np.asarray(a.sum(axis=1)).ravel()
     floor = _VOLUME_FLOOR * float(degree.sum())
@@ -567,7 +559,7 @@ def refine_boundary(
     moves = passes = 0
     for _ in range(max_passes if k > 1 else 0):
         # Totals are recomputed each pass so rounding never accumulates across passes.
-        cut, vol = _zone_totals(a, current, k)
+        cut, vol = cut_and_volume(a, current, k)
         zsize = np.bincount(current, weights=node_sizes, minlength=k)
         zcount = np.bincount(current, minlength=k).astype(np.float64)
         state = np.vstack([cut, vol, zsize, zcount])

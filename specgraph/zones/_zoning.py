@@ -30,9 +30,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._figures import boundary_links, eigengaps, overall_scores, zone_table
 from .._validation import check_choice, check_int, check_rng
-from ..diagnostics._quality import boundary_links, overall_scores, zone_table
-from ..diagnostics._spectral import eigengaps
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult, smallest_eigenpairs
 from ..exceptions import ParameterError
 from ..network import Network
