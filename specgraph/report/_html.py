@@ -374,92 +374,104 @@ def build_report(
         cells=cells,
     )
     embed = {"image_format": image_format}
-    parts = [_caution_box(), _contents(stability is not None, bool(zoning.warnings))]
-    parts.append(
+    parts = [
+        _caution_box(),
+        _contents(stability is not None, bool(zoning.warnings)),
         _section(
             "summary-section", "Summary", _summary_table(_summary_rows(zoning, record, stability))
-        )
-    )
-    parts.append(_map_section(zoning, figures, sources, raster_above, aggregate_above, embed))
-    parts.append(
-        _section(
-            "spectrum-section",
-            "Spectrum and zone count",
-            _figure_html(
-                figures["spectrum"],
-                image_id="spectrum",
-                alt="smallest eigenvalues with the chosen eigengap",
-                caption="Smallest eigenvalues of the operator; the shaded band is the gap after "
-                "the chosen zone count. Lower panel (when the count was chosen automatically): "
-                "relative gap of each candidate count against the confidence levels.",
-                **embed,
-            )
-            + "<p>Choices made on the user's behalf:</p>"
-            + _decisions(zoning),
-        )
-    )
-    summary = tables["zone_summary.csv"]
-    shown = summary.head(ZONE_ROWS)
-    parts.append(
-        _section(
-            "zones-section",
-            "Zones",
-            _figure_html(
-                figures["zone_bars"],
-                image_id="zone-bars",
-                alt="size and conductance of each zone",
-                caption="Size and conductance of each zone, in the map's colours.",
-                **embed,
-            )
-            + _table(
-                shown,
-                table_id="zones",
-                caption=_shown_note(len(shown), len(summary), "zones", "zone_summary.csv"),
-            ),
-        )
-    )
+        ),
+        _map_section(zoning, figures, sources, raster_above, aggregate_above, embed),
+        _spectrum_section(zoning, figures, embed),
+        _zones_section(tables["zone_summary.csv"], figures, embed),
+    ]
     if stability is not None:
         parts.append(_stability_section(figures, stability, embed))
-    boundary = tables["boundary.csv"]
-    parts.append(
-        _section(
-            "boundary-section",
-            "Boundary links",
-            _table(
-                boundary.head(boundary_rows),
-                table_id="boundary",
-                caption=_shown_note(
-                    min(boundary_rows, len(boundary)),
-                    len(boundary),
-                    "boundary links",
-                    "boundary.csv",
-                ),
-            ),
-        )
-    )
+    parts.append(_boundary_section(tables["boundary.csv"], boundary_rows))
     if zoning.warnings:
         items = "".join(f"<li>{_esc(w)}</li>" for w in zoning.warnings)
         parts.append(_section("warnings-section", "Warnings", f'<ul id="warnings">{items}</ul>'))
-    parts.append(
+    parts += _reproduce_sections(command, record)
+    lede = f"{zoning.n_zones} zones of a network of {net.n_nodes:,} nodes and {net.n_links:,} links"
+    return _page(title, lede, "".join(parts))
+
+
+def _spectrum_section(
+    zoning: Zoning, figures: Mapping[str, Figure], embed: Mapping[str, Any]
+) -> str:
+    """The spectrum figure and the choices made on the user's behalf."""
+    return _section(
+        "spectrum-section",
+        "Spectrum and zone count",
+        _figure_html(
+            figures["spectrum"],
+            image_id="spectrum",
+            alt="smallest eigenvalues with the chosen eigengap",
+            caption="Smallest eigenvalues of the operator; the shaded band is the gap after "
+            "the chosen zone count. Lower panel (when the count was chosen automatically): "
+            "relative gap of each candidate count against the confidence levels.",
+            **embed,
+        )
+        + "<p>Choices made on the user's behalf:</p>"
+        + _decisions(zoning),
+    )
+
+
+def _zones_section(
+    summary: pd.DataFrame, figures: Mapping[str, Figure], embed: Mapping[str, Any]
+) -> str:
+    """Per-zone bars and the first :data:`ZONE_ROWS` rows of ``zone_summary.csv``."""
+    shown = summary.head(ZONE_ROWS)
+    return _section(
+        "zones-section",
+        "Zones",
+        _figure_html(
+            figures["zone_bars"],
+            image_id="zone-bars",
+            alt="size and conductance of each zone",
+            caption="Size and conductance of each zone, in the map's colours.",
+            **embed,
+        )
+        + _table(
+            shown,
+            table_id="zones",
+            caption=_shown_note(len(shown), len(summary), "zones", "zone_summary.csv"),
+        ),
+    )
+
+
+def _boundary_section(boundary: pd.DataFrame, rows: int) -> str:
+    """The first ``rows`` rows of ``boundary.csv``, with how many more it holds."""
+    return _section(
+        "boundary-section",
+        "Boundary links",
+        _table(
+            boundary.head(rows),
+            table_id="boundary",
+            caption=_shown_note(
+                min(rows, len(boundary)), len(boundary), "boundary links", "boundary.csv"
+            ),
+        ),
+    )
+
+
+def _reproduce_sections(command: str, record: Mapping[str, Any]) -> list[str]:
+    """The command that reproduces the run, then the run record."""
+    text = json.dumps(jsonable(record), indent=2, allow_nan=False, default=str)
+    return [
         _section(
             "reproduce-section",
             "Reproduce",
             "<p>This command, run on the same input files, gives the same zones:</p>"
             f'<pre class="command" id="command"><code>{_esc(command)}</code></pre>',
-        )
-    )
-    text = json.dumps(jsonable(record), indent=2, allow_nan=False, default=str)
-    parts.append(
+        ),
         _section(
             "record-section",
             "Run record",
             "<p class=note>The contents of run.json: inputs and their checksums, parameters, "
             "decisions, eigen-solves, scores and library versions.</p>"
             f'<pre id="run-record">{_esc(text)}</pre>',
-        )
-    )
-    lede = f"{zoning.n_zones} zones of a network of {net.n_nodes:,} nodes and {net.n_links:,} links"
-    return _page(title, lede, "".join(parts))
+        ),
+    ]
 
 
 def _shown_note(shown: int, total: int, what: str, file: str) -> str:

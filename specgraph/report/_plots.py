@@ -62,10 +62,10 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
+from .._figures import HIGH_GAP, MEDIUM_GAP, LabelWording, check_labels
 from .._validation import check_choice, check_int
 from ..exceptions import ParameterError
 from ..network import Network
-from ..zones._count import HIGH_GAP, MEDIUM_GAP
 
 if TYPE_CHECKING:
     from ..studies import Stability
@@ -191,6 +191,14 @@ def _zone_pairs(network: Network, labels: np.ndarray) -> np.ndarray:
     return np.unique(pairs, axis=0) if pairs.size else pairs.reshape(0, 2)
 
 
+#: Messages of the label check of :func:`zone_colours` (labels are cast to int64 first).
+_COLOUR_WORDING = LabelWording(
+    shape="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
+    dtype="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
+    minimum="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
+)
+
+
 def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     """Colour zones from :data:`PALETTE` so that neighbouring zones differ.
 
@@ -208,6 +216,7 @@ def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     Parameters
     ----------
     network : Network
+        The zoned network; its links make the zone adjacency graph.
     labels : ndarray of int, shape (n_nodes,)
         Zone of each node, numbered from 0.
 
@@ -227,12 +236,9 @@ def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     >>> zone_colours(net, np.array([0, 0, 1, 1])).colours == PALETTE[:2]
     True
     """
-    labels = np.asarray(labels, dtype=np.int64)
-    if labels.shape != (network.n_nodes,) or (labels.size and labels.min() < 0):
-        raise ParameterError(
-            f"labels must hold one zone number >= 0 per node ({network.n_nodes}); "
-            f"got shape {labels.shape}."
-        )
+    labels = check_labels(
+        np.asarray(labels, dtype=np.int64), n_nodes=network.n_nodes, wording=_COLOUR_WORDING
+    )
     k = int(labels.max()) + 1 if labels.size else 0
     p = len(PALETTE)
     if k <= p:
@@ -318,9 +324,9 @@ def spectrum_figure(zoning: Zoning) -> Figure:
     the figure shows that solve, the gap after the chosen count shaded, and a
     second panel with the relative gap
     :math:`(\\lambda_{k+1} - \\lambda_k)/\\lambda_{k+1}` of every candidate
-    against the confidence levels :data:`specgraph.zones.HIGH_GAP` and
-    :data:`specgraph.zones.MEDIUM_GAP`. Otherwise it shows the solve of each
-    split component (up to :data:`SPECTRUM_SERIES_MAX`).
+    against the confidence levels of the zone count (``HIGH_GAP`` and
+    ``MEDIUM_GAP``). Otherwise it shows the solve of each split component
+    (up to :data:`SPECTRUM_SERIES_MAX`).
 
     Parameters
     ----------
