@@ -3,17 +3,16 @@
 What already exists and is not repeated here:
 
 * :meth:`specgraph.Network.from_networkx` builds a network from a graph with
-  a chosen weight attribute (a missing attribute counts as 1), sizes and
-  positions;
+  a chosen weight attribute (a missing attribute counts as 1, or is
+  refused), sizes and positions, carrying every other edge attribute;
 * :func:`specgraph.io.network_from_frames`
   builds one from pandas edge and node frames;
 * :meth:`specgraph.Zoning.to_frame`, ``Zoning.zones`` and ``Zoning.boundary``
   are the node, zone and boundary tables as frames.
 
-This module adds :func:`network_from_graph`, which goes through the frame
-reader so that every other edge attribute (a pipe or line id, say) is carried
-into the link table and so into boundary tables, and a missing or bad weight
-is refused naming its edge; and the way back: :func:`zone_sets`,
+This module adds :func:`network_from_graph`, the strict form of
+:meth:`~specgraph.Network.from_networkx` (a missing weight is refused naming
+its edge; both read the graph with the same code); and the way back: :func:`zone_sets`,
 :func:`annotate_graph` and :func:`zones_frame`.
 
 Node ids are compared as strings, as everywhere in specgraph: a graph node
@@ -22,14 +21,12 @@ Node ids are compared as strings, as everywhere in specgraph: a graph node
 
 from __future__ import annotations
 
-from collections.abc import Hashable
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
 
 from .exceptions import InputError, ParameterError
-from .io import network_from_frames
 from .network import Network
 from .zones import Zoning
 
@@ -37,65 +34,6 @@ if TYPE_CHECKING:
     import networkx as nx
 
 __all__ = ["annotate_graph", "network_from_graph", "zone_sets", "zones_frame"]
-
-#: Column names that :func:`network_from_graph` uses for the two link ends of
-#: the intermediate edge frame; chosen so that no ordinary edge attribute
-#: takes them (an attribute named so is refused, naming it).
-_SOURCE, _TARGET = "__source__", "__target__"
-
-
-def _graph_frames(
-    graph: nx.Graph, weight: str | None, size: str | None, pos: str | None
-) -> tuple[pd.DataFrame, pd.DataFrame]:
-    """An edge frame (ends and every edge attribute) and a node frame of ``graph``."""
-    rows = []
-    for number, (u, v, data) in enumerate(graph.edges(data=True)):
-        for reserved in (_SOURCE, _TARGET):
-            if reserved in data:
-                raise InputError(
-                    f"edge {number} ({u!r}, {v!r}): attribute {reserved!r} is reserved"
-                )
-        if weight is not None and weight not in data:
-            raise InputError(
-                f"edge {number} ({u!r}, {v!r}) has no attribute {weight!r}; give every edge "
-                "one, or pass weight=None to give every link weight 1"
-            )
-        rows.append({_SOURCE: u, _TARGET: v, **data})
-    edges = pd.DataFrame(rows, columns=_edge_columns(rows))
-    node_rows: dict[str, list[Any]] = {"node": list(graph.nodes)}
-    if pos is not None:
-        xy = [_position(graph, node, pos) for node in graph.nodes]
-        node_rows["x"] = [p[0] for p in xy]
-        node_rows["y"] = [p[1] for p in xy]
-    if size is not None:
-        node_rows["size"] = [_node_value(graph, node, size) for node in graph.nodes]
-    return edges, pd.DataFrame(node_rows)
-
-
-def _edge_columns(rows: list[dict[Hashable, Any]]) -> list[Hashable]:
-    """Columns of the edge frame: the two ends, then attributes in order of first use."""
-    seen: dict[Hashable, None] = {_SOURCE: None, _TARGET: None}
-    for row in rows:
-        seen.update(dict.fromkeys(row))
-    return list(seen)
-
-
-def _node_value(graph: nx.Graph, node: Any, attribute: str) -> Any:
-    data = graph.nodes[node]
-    if attribute not in data:
-        raise InputError(f"node {node!r} has no attribute {attribute!r}; give every node one")
-    return data[attribute]
-
-
-def _position(graph: nx.Graph, node: Any, attribute: str) -> tuple[Any, Any]:
-    value = _node_value(graph, node, attribute)
-    try:
-        x, y = value
-    except (TypeError, ValueError):
-        raise InputError(
-            f"node {node!r}: attribute {attribute!r} must be a pair (x, y); got {value!r}"
-        ) from None
-    return x, y
 
 
 def network_from_graph(
@@ -108,12 +46,11 @@ def network_from_graph(
 ) -> Network:
     """Build a :class:`~specgraph.Network` from a networkx graph, keeping its edge attributes.
 
-    Like :meth:`Network.from_networkx`, but through
-    :func:`specgraph.io.network_from_frames`: every edge attribute other than
-    the weight becomes a column of :attr:`Network.link_table` (so boundary
-    tables carry pipe or line ids), and an edge without the weight attribute,
-    or with a weight that is not a finite number in range, is refused
-    naming the edge instead of counting as 1.
+    :meth:`Network.from_networkx` with ``missing_weight=None``: the same
+    reading of the graph (every edge attribute other than the weight becomes
+    a column of :attr:`Network.link_table`, so boundary tables carry pipe or
+    line ids), but an edge without the weight attribute is refused naming
+    the edge instead of counting as 1, and a graph without edges is refused.
 
     Parameters
     ----------
@@ -155,22 +92,10 @@ def network_from_graph(
     >>> net.link_table[["source", "target", "weight", "pipe"]].to_numpy().tolist()
     [['a', 'b', 2.0, 'P-1'], ['b', 'c', 1.0, 'P-2']]
     """
-    if not hasattr(graph, "edges") or not hasattr(graph, "nodes"):
-        raise ParameterError(f"graph must be a networkx graph; got {type(graph).__name__}.")
-    if graph.number_of_edges() == 0:
+    if hasattr(graph, "number_of_edges") and graph.number_of_edges() == 0:
         raise InputError("the graph has no edges; a network needs at least one link")
-    edges, nodes = _graph_frames(graph, weight, size, pos)
-    return network_from_frames(
-        edges,
-        source=_SOURCE,
-        target=_TARGET,
-        weight=weight,
-        distance=distance,
-        nodes=nodes,
-        node="node",
-        x="x" if pos is not None else None,
-        y="y" if pos is not None else None,
-        size="size" if size is not None else None,
+    return Network.from_networkx(
+        graph, weight=weight, distance=distance, size=size, pos=pos, missing_weight=None
     )
 
 

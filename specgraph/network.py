@@ -39,6 +39,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
+from ._graph import MISSING_WEIGHT_DEFAULT, read_graph
 from .exceptions import InputError, ParameterError
 
 if TYPE_CHECKING:
@@ -479,42 +480,84 @@ class Network:
         distance: bool = False,
         size: str | None = None,
         pos: str | None = None,
+        missing_weight: float | None = MISSING_WEIGHT_DEFAULT,
     ) -> Network:
         """Build a network from a networkx graph (directed graphs are made undirected).
+
+        Every edge attribute other than the weight becomes a column of
+        :attr:`link_table` (so boundary tables carry pipe or line ids); an
+        attribute named like one of the table's own columns (a ``weight``
+        that is not the chosen weight, say) is carried as ``edge_<name>``
+        and listed in ``notes["renamed_attributes"]``.
 
         Parameters
         ----------
         graph : networkx.Graph
-            Any networkx graph; node labels become string ids.
+            Any networkx graph; node labels become string ids. Multigraphs'
+            parallel edges are summed (the input policy of this class).
         weight : str or None, default="weight"
-            Edge attribute holding the weight; missing attributes count as 1.
-            ``None`` gives every link weight 1.
+            Edge attribute holding the weight (finite, >= 0). ``None`` gives
+            every link weight 1.
         distance : bool, default=False
-            Read ``weight`` as a length and convert it with
+            Read ``weight`` as a length (finite, > 0) and convert it with
             :func:`affinity_from_distance`.
         size : str, optional
-            Node attribute holding node sizes.
+            Node attribute holding node sizes (finite, >= 0).
         pos : str, optional
             Node attribute holding ``(x, y)`` coordinates.
+        missing_weight : float or None, default=1.0
+            Weight of an edge without the ``weight`` attribute (networkx's
+            own convention is 1); ``None`` refuses such an edge, naming it
+            (what :func:`specgraph.interop.network_from_graph` does).
 
         Returns
         -------
         Network
+            Nodes in the graph's node order, isolated nodes included.
+
+        Raises
+        ------
+        InputError
+            A weight, size or position is missing (where refused) or not a
+            finite number in range; the message names the edge or node.
+        ParameterError
+            ``graph`` is not a networkx graph.
+
+        Examples
+        --------
+        >>> import networkx as nx
+        >>> g = nx.Graph()
+        >>> g.add_edge("QM-J1", "QM-J2", weight=2.0, pipe="QM-P1")
+        >>> g.add_edge("QM-J2", "QM-J3")
+        >>> net = Network.from_networkx(g)
+        >>> net.link_table[["source", "weight", "pipe"]].to_numpy().tolist()
+        [['QM-J1', 2.0, 'QM-P1'], ['QM-J2', 1.0, nan]]
         """
-        nodes = list(graph.nodes)
-        edges = list(graph.edges(data=True))
-        w = np.array([1.0 if weight is None else d.get(weight, 1.0) for _, _, d in edges])
-        notes: dict[str, Any] = {}
-        if distance:
-            w, notes["weight_conversion"] = affinity_from_distance(w)
-        data = graph.nodes
+        links = read_graph(
+            graph,
+            weight=weight,
+            distance=distance,
+            size=size,
+            pos=pos,
+            missing_weight=missing_weight,
+        )
+        notes: dict[str, Any] = {"weight_column": weight}
+        notes["weight_read_as"] = (
+            None if weight is None else ("distance" if distance else "affinity")
+        )
+        values = links.values
+        if distance and weight is not None:
+            values, notes["weight_conversion"] = affinity_from_distance(values)
+        if links.renamed:
+            notes["renamed_attributes"] = dict(links.renamed)
         return cls.from_links(
-            [u for u, _, _ in edges],
-            [v for _, v, _ in edges],
-            w,
-            node_ids=nodes,
-            sizes=None if size is None else np.array([data[v][size] for v in nodes], float),
-            coordinates=None if pos is None else np.array([data[v][pos] for v in nodes], float),
+            links.source,
+            links.target,
+            values,
+            node_ids=links.node_ids,
+            sizes=links.sizes,
+            coordinates=links.coordinates,
+            extra=links.extra,
             notes=notes,
         )
 
