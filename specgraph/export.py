@@ -50,6 +50,7 @@ from typing import Any, Literal, cast
 import numpy as np
 import pandas as pd
 
+from . import _figures
 from ._formats import (
     boundary_geojson,
     jsonable,
@@ -62,9 +63,10 @@ from ._formats import (
     zoning_tables,
 )
 from ._guard import FORMULA_ESCAPE, FORMULA_TRIGGERS, neutralize_frame
+from ._validation import NoneOk, check_param, parameter_error
 from .diagnostics import Scorecard
 from .eigen import EigenResult
-from .exceptions import ConvergenceError, OutputError, ParameterError
+from .exceptions import ConvergenceError, OutputError
 from .network import Network
 from .zones import Zoning
 
@@ -175,17 +177,16 @@ def _portable_notes(notes: Mapping[str, Any]) -> dict[str, Any]:
 
 
 def _solve_records(zoning: Zoning) -> list[dict[str, Any]]:
+    """One record per component solve: the work done and the eigengap after its zones."""
     records = []
     for solve in zoning.solves:
         eig = solve.eigen
-        values = eig.values
-        k = solve.zones
-        gap = float(values[k] - values[k - 1]) if values.size > k else None
+        gap, relative = _gap_after(eig.values, solve.zones)
         records.append(
             {
                 "component": solve.component,
                 "nodes": int(solve.nodes.size),
-                "zones": k,
+                "zones": solve.zones,
                 "method": eig.method,
                 "pairs": eig.k,
                 "iterations": eig.iterations,
@@ -194,10 +195,25 @@ def _solve_records(zoning: Zoning) -> list[dict[str, Any]]:
                 "tol": eig.tol,
                 "converged": eig.converged,
                 "eigengap_after_zones": gap,
-                "relative_eigengap": None if gap is None else gap / float(values[k]),
+                "relative_eigengap": relative,
             }
         )
     return records
+
+
+def _gap_after(values: np.ndarray, k: int) -> tuple[float | None, float | None]:
+    """The eigengap after the ``k``-th smallest eigenvalue and the relative gap.
+
+    Both come from the one engine, :func:`specgraph._figures.eigengaps` and
+    :func:`specgraph._figures.relative_gap`; each is None where it is not
+    defined (no ``(k+1)``-th eigenvalue was computed; the relative gap also
+    when :math:`\\lambda_{k+1} \\le 0`, as with a Bethe Hessian).
+    """
+    if values.size <= k:
+        return None, None
+    gap = float(_figures.eigengaps(values)[k - 1])
+    relative = float(_figures.relative_gap(values[k - 1], values[k]))
+    return gap, relative if np.isfinite(relative) else None
 
 
 def run_record(
@@ -265,19 +281,11 @@ def run_record(
     """
     found = dict(results or {})
     if zoning is not None:
-        if network is not None or parameters is not None or decisions is not None:
-            raise ParameterError(
-                "run_record takes the network, parameters and decisions of a zoning from the "
-                "zoning; give either a zoning or network=, parameters= and decisions="
-            )
+        _check_left_to_zoning(network=network, parameters=parameters, decisions=decisions)
         network, parameters, decisions = zoning.network, zoning.parameters, zoning.decisions
         warnings = [*zoning.warnings, *warnings]
         found = {"eigen_solves": _solve_records(zoning), "scores": zoning.scores, **found}
-    clash = sorted(set(found) & set(RUN_RECORD_KEYS))
-    if clash:
-        raise ParameterError(
-            f"results keys must differ from the record's own keys {RUN_RECORD_KEYS}; got {clash}"
-        )
+    _check_result_keys(found)
     return jsonable(
         {
             "specgraph_run": 1,
@@ -292,6 +300,32 @@ def run_record(
             "caution": CAUTION,
         }
     )
+
+
+#: What ``network``, ``parameters`` and ``decisions`` of :func:`run_record` may
+#: be when a zoning is given: the zoning supplies all three.
+_LEFT_TO_ZONING = [
+    NoneOk(
+        "None when a zoning is given (run_record takes the network, parameters and "
+        "decisions from the zoning; give either a zoning or network=, parameters= and "
+        "decisions=)"
+    )
+]
+
+
+def _check_left_to_zoning(**given: Any) -> None:
+    """Refuse a network, parameters or decisions given beside a zoning."""
+    for name, value in given.items():
+        check_param(value, name, _LEFT_TO_ZONING)
+
+
+def _check_result_keys(found: Mapping[str, Any]) -> None:
+    """Refuse results keyed like one of the record's own keys."""
+    clash = sorted(set(found) & set(RUN_RECORD_KEYS))
+    if clash:
+        raise parameter_error(
+            "results", f"keyed other than the record's own keys {RUN_RECORD_KEYS}", clash
+        )
 
 
 def input_record(role: str, path: str | Path, *, shown: str | None = None) -> dict[str, str]:

@@ -310,7 +310,7 @@ def directed_flow(
 ) -> tuple[sp.csr_array, np.ndarray, StationaryResult]:
     r"""The symmetrized stationary flow along the arcs, and the stationary distribution.
 
-    Returns :math:`S = lpha(\Phi P + P^T \Phi)/2` (sparse, the flow of the
+    Returns :math:`S = \alpha(\Phi P + P^T \Phi)/2` (sparse, the flow of the
     random surfer along the network's own arcs at stationarity, made
     symmetric), :math:`\phi`, and the stationary solve.
     """
@@ -339,7 +339,7 @@ def _walk_parts(network: Network) -> tuple[sp.csr_array, np.ndarray, np.ndarray]
 def _directed(network: Network, damping: float | None) -> GraphOperator:
     r"""Chung's directed Laplacian with the teleport flow kept as holding steps.
 
-    :math:`\mathcal{L} = I - \Phi^{-1/2}igl(S + \operatorname{diag}(\phi - S\mathbf{1})igr)
+    :math:`\mathcal{L} = I - \Phi^{-1/2}\bigl(S + \operatorname{diag}(\phi - S\mathbf{1})\bigr)
     \Phi^{-1/2} = \operatorname{diag}(S\mathbf{1}/\phi) - \Phi^{-1/2} S \Phi^{-1/2}`.
     """
     flow, phi, walk = directed_flow(network, damping=damping)
@@ -399,14 +399,20 @@ def _bethe_hessian(network: Network, r: float | None) -> GraphOperator:
     )
 
 
+#: Kinds that take no parameter, by name.
 _BUILDERS: dict[str, Callable[[Network], GraphOperator]] = {
     "combinatorial": _combinatorial,
     "normalized": _normalized,
     "random_walk": _random_walk,
 }
 
-#: Kinds that take a parameter, with the name of that parameter.
-_PARAMETRIZED = {"regularized": "tau", "bethe_hessian": "r", "directed": "damping"}
+#: Kinds that take a parameter: the name of that parameter, and the builder
+#: given its value (None for the kind's default).
+_PARAMETRIZED: dict[str, tuple[str, Callable[[Network, float | None], GraphOperator]]] = {
+    "regularized": ("tau", _regularized),
+    "bethe_hessian": ("r", _bethe_hessian),
+    "directed": ("damping", _directed),
+}
 
 
 def laplacian(
@@ -486,9 +492,9 @@ def laplacian(
     bound, from which the eigen-solver takes its shift.
 
     *Directed.* Let :math:`\phi` be the stationary distribution of the
-    random surfer :math:`G = lpha P + c v^T` (:mod:`specgraph.walks`; ``v``
+    random surfer :math:`G = \alpha P + c v^T` (:mod:`specgraph.walks`; ``v``
     uniform, so :math:`\phi > 0`), and split its flow
-    :math:`\Phi G` into the flow along arcs, :math:`lpha\Phi P`, and the
+    :math:`\Phi G` into the flow along arcs, :math:`\alpha\Phi P`, and the
     teleport flow :math:`\Phi c v^T`. Chung's Laplacian of ``G`` [6]_ is the
     normalized Laplacian :math:`I - \Phi^{-1/2} S_G \Phi^{-1/2}` of the
     symmetric flow :math:`S_G = (\Phi G + G^T\Phi)/2`, whose row sums are
@@ -499,8 +505,8 @@ def laplacian(
 
     .. math::
 
-        \mathcal{L} = I - \Phi^{-1/2}igl(S + \operatorname{diag}(\phi - S\mathbf{1})igr)
-        \Phi^{-1/2}, \qquad S = lpha(\Phi P + P^T\Phi)/2 .
+        \mathcal{L} = I - \Phi^{-1/2}\bigl(S + \operatorname{diag}(\phi - S\mathbf{1})\bigr)
+        \Phi^{-1/2}, \qquad S = \alpha(\Phi P + P^T\Phi)/2 .
 
     So :math:`\mathcal{L}` is the normalized Laplacian of a symmetric
     non-negative matrix with row sums :math:`\phi` (:math:`S\mathbf{1} \le
@@ -531,19 +537,23 @@ def laplacian(
            [ 0., -2.,  4.]])
     """
     check_choice(kind, "kind", (*_BUILDERS, *_PARAMETRIZED))
-    for name, value in (("tau", tau), ("r", r), ("damping", damping)):
-        if value is not None and _PARAMETRIZED.get(kind) != name:
-            raise parameter_error(
-                name, f"None unless kind={_kind_of(name)!r}", f"{value!r} with kind={kind!r}"
-            )
-    if kind == "regularized":
-        return _regularized(network, tau)
-    if kind == "bethe_hessian":
-        return _bethe_hessian(network, r)
-    if kind == "directed":
-        return _directed(network, damping)
+    given = {"tau": tau, "r": r, "damping": damping}
+    _check_parameters_of(kind, given)
+    if kind in _PARAMETRIZED:
+        name, build = _PARAMETRIZED[kind]
+        return build(network, given[name])
     return _BUILDERS[kind](network)
 
 
+def _check_parameters_of(kind: str, given: dict[str, float | None]) -> None:
+    """Refuse a parameter given to a kind that does not take it."""
+    own = _PARAMETRIZED[kind][0] if kind in _PARAMETRIZED else None
+    for name, value in given.items():
+        if value is not None and name != own:
+            raise parameter_error(
+                name, f"None unless kind={_kind_of(name)!r}", f"{value!r} with kind={kind!r}"
+            )
+
+
 def _kind_of(parameter: str) -> str:
-    return next(kind for kind, name in _PARAMETRIZED.items() if name == parameter)
+    return next(kind for kind, (name, _) in _PARAMETRIZED.items() if name == parameter)

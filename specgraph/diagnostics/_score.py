@@ -30,9 +30,9 @@ import pandas as pd
 
 from .. import _figures
 from .._figures import UNASSIGNED
-from .._validation import check_positive_float, check_rng
+from .._validation import check_positive_float, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, smallest_eigenpairs
-from ..exceptions import InputError, ParameterError
+from ..exceptions import InputError
 from ..network import Network
 from ..operators import laplacian
 from ..walks import DEFAULT_DAMPING, stationary_distribution
@@ -83,6 +83,11 @@ OUTLIER_FIGURES: Mapping[str, str] = {
 #: Consistency constant of the MAD: the 3/4 quantile of the standard normal,
 #: so that 0.6745 (x - median)/MAD estimates a z-score for normal data.
 _MAD_SCALE = 0.6745
+
+#: Overall figures of the eigengap step, in the order of :attr:`Scorecard.overall`.
+_GAP_KEYS = ("eigenvalue_k", "eigenvalue_next", "eigengap", "relative_eigengap")
+#: Overall figures of the importance step, in the same order.
+_IMPORTANCE_KEYS = ("damping", "importance_unassigned")
 
 
 @dataclass(frozen=True)
@@ -276,7 +281,7 @@ def _rows_of(network: Network, ids: np.ndarray) -> np.ndarray:
 
 def _source_rows(network: Network, sources: Sequence[str]) -> np.ndarray:
     if isinstance(sources, str):
-        raise ParameterError(f"sources must be a sequence of node ids; got {sources!r}.")
+        raise parameter_error("sources", "a sequence of node ids", sources)
     ids = np.asarray([str(s) for s in sources], dtype=object)
     rows = _rows_of(network, ids)
     unknown = ids[rows < 0]
@@ -284,7 +289,7 @@ def _source_rows(network: Network, sources: Sequence[str]) -> np.ndarray:
         shown = ", ".join(repr(i) for i in unknown[:EXAMPLES_SHOWN].tolist())
         raise InputError(f"{unknown.size} sources are not nodes of the network (first: {shown})")
     if np.unique(rows).size != rows.size:
-        raise ParameterError("sources must be distinct node ids; got repeated ids.")
+        raise parameter_error("sources", "distinct node ids", ids.tolist())
     return rows
 
 
@@ -292,9 +297,7 @@ def _eigengap(
     network: Network, k: int, rng: Any, tol: float
 ) -> tuple[np.ndarray | None, dict[str, float | None]]:
     """The ``k+1`` smallest normalized-Laplacian eigenvalues and the gap after the ``k``-th."""
-    empty: dict[str, float | None] = dict.fromkeys(
-        ("eigenvalue_k", "eigenvalue_next", "eigengap", "relative_eigengap")
-    )
+    empty: dict[str, float | None] = dict.fromkeys(_GAP_KEYS)
     if k + 1 > network.n_nodes:
         return None, empty
     values = smallest_eigenpairs(laplacian(network, kind="normalized"), k + 1, rng=rng, tol=tol)
@@ -303,7 +306,7 @@ def _eigengap(
     return values.values.copy(), {
         "eigenvalue_k": lam,
         "eigenvalue_next": nxt,
-        "eigengap": nxt - lam,
+        "eigengap": float(_figures.eigengaps(values.values)[k - 1]),
         # Relative gap, as in suggest_zone_counts; undefined when lambda_{k+1} = 0
         # (fewer zones than connected components).
         "relative_eigengap": float(relative) if np.isfinite(relative) else None,
@@ -414,12 +417,8 @@ def score(
     tol = check_positive_float(tol, "tol")
     generator = check_rng(rng)
     assigned = labels >= 0
-    numbers, dense = np.unique(labels[assigned], return_inverse=True)
+    numbers, coded = _with_outside_set(labels, assigned)
     k = int(numbers.size)
-    # The outside set becomes an extra label k, so links to it count as boundary
-    # of each zone; its own figures are then set aside.
-    coded = np.full(network.n_nodes, k, dtype=np.int64)
-    coded[assigned] = dense
     figures = _figures.zone_figures(network, coded, k + 1)
     zones, terms = _zone_frame(network, numbers, figures)
     source_figures = _source_figures(network, sources, coded, k, zones)
@@ -428,17 +427,10 @@ def score(
         _importance(network, coded, zones, damping) if importance else (None, {})
     )
     eigenvalues, gap = _eigengap(network, k, generator, tol) if eigengap else (None, {})
-    overall: dict[str, Any] = {
+    overall = {
         **_overall(network, zones, figures, terms, assigned),
         **source_figures,
-        "eigenvalue_k": None,
-        "eigenvalue_next": None,
-        "eigengap": None,
-        "relative_eigengap": None,
-        **gap,
-        "damping": None,
-        "importance_unassigned": None,
-        **importance_figures,
+        **_optional_figures(gap, importance_figures),
     }
     return Scorecard(
         zones=zones,
@@ -447,6 +439,30 @@ def score(
         eigenvalues=eigenvalues,
         node_importance=node_importance,
     )
+
+
+def _with_outside_set(labels: np.ndarray, assigned: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The user's zone numbers, and labels ``0..k-1`` with the outside set as label ``k``.
+
+    Coded so, links to unassigned nodes count in each zone's boundary; the
+    outside set's own figures are then set aside.
+    """
+    numbers, dense = np.unique(labels[assigned], return_inverse=True)
+    coded = np.full(labels.size, numbers.size, dtype=np.int64)
+    coded[assigned] = dense
+    return numbers, coded
+
+
+def _optional_figures(
+    gap: Mapping[str, Any], importance_figures: Mapping[str, Any]
+) -> dict[str, Any]:
+    """The eigengap and importance figures, every key present, None where not computed."""
+    return {
+        **dict.fromkeys(_GAP_KEYS),
+        **gap,
+        **dict.fromkeys(_IMPORTANCE_KEYS),
+        **importance_figures,
+    }
 
 
 def _zone_frame(

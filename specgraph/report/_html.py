@@ -25,14 +25,15 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from .._validation import check_choice, check_int
-from ..exceptions import OutputError, ParameterError
+from .._validation import InstanceOf, check_choice, check_int, check_param
+from ..exceptions import OutputError
 from ..export import CAUTION, jsonable, run_record, zoning_tables
 from ._plots import (
     MAP_AGGREGATE_NODES,
     MAP_CELLS,
     MAP_RASTER_NODES,
     PALETTE_REFERENCE,
+    ZoneColouring,
     figure_bytes,
     map_detail,
     spectrum_figure,
@@ -360,11 +361,9 @@ def build_report(
     """
     check_choice(image_format, "image_format", ("png", "svg"))
     boundary_rows = check_int(boundary_rows, "boundary_rows", minimum=0)
-    if not isinstance(command, str):
-        raise ParameterError(f"command must be a string; got {type(command).__name__}.")
+    check_param(command, "command", [InstanceOf((str,), "a string")])
     record = run_record(zoning) if record is None else record
     tables = zoning_tables(zoning) if tables is None else tables
-    net = zoning.network
     figures = report_figures(
         zoning,
         sources=sources,
@@ -383,16 +382,22 @@ def build_report(
         _map_section(zoning, figures, sources, raster_above, aggregate_above, embed),
         _spectrum_section(zoning, figures, embed),
         _zones_section(tables["zone_summary.csv"], figures, embed),
+        "" if stability is None else _stability_section(figures, stability, embed),
+        _boundary_section(tables["boundary.csv"], boundary_rows),
+        _warnings_section(zoning.warnings),
+        *_reproduce_sections(command, record),
     ]
-    if stability is not None:
-        parts.append(_stability_section(figures, stability, embed))
-    parts.append(_boundary_section(tables["boundary.csv"], boundary_rows))
-    if zoning.warnings:
-        items = "".join(f"<li>{_esc(w)}</li>" for w in zoning.warnings)
-        parts.append(_section("warnings-section", "Warnings", f'<ul id="warnings">{items}</ul>'))
-    parts += _reproduce_sections(command, record)
+    net = zoning.network
     lede = f"{zoning.n_zones} zones of a network of {net.n_nodes:,} nodes and {net.n_links:,} links"
     return _page(title, lede, "".join(parts))
+
+
+def _warnings_section(warnings: Sequence[str]) -> str:
+    """The zoning's warnings, or nothing when there are none."""
+    if not warnings:
+        return ""
+    items = "".join(f"<li>{_esc(w)}</li>" for w in warnings)
+    return _section("warnings-section", "Warnings", f'<ul id="warnings">{items}</ul>')
 
 
 def _spectrum_section(
@@ -507,13 +512,30 @@ def _map_section(
     aggregate_above: int,
     embed: Mapping[str, Any],
 ) -> str:
+    """The zone map with its caption, or why there is none."""
     if "zone_map" not in figures:
         body = (
             '<p class="missing" id="no-map">No map: the network has no node coordinates. '
             "Give a node table with x and y columns to draw one.</p>"
         )
         return _section("map-section", "Zone map", body)
-    n = zoning.network.n_nodes
+    colouring = zone_colours(zoning.network, zoning.labels)
+    body = _figure_html(
+        figures["zone_map"],
+        image_id="zone-map",
+        alt=f"map of {zoning.n_zones} zones",
+        caption=_map_caption(
+            zoning.network.n_nodes, raster_above, aggregate_above, colouring, bool(sources)
+        ),
+        **embed,
+    )
+    return _section("map-section", "Zone map", body)
+
+
+def _map_caption(
+    n: int, raster_above: int, aggregate_above: int, colouring: ZoneColouring, sources: bool
+) -> str:
+    """How the map was drawn (by its level of detail) and how its colours were chosen."""
     detail = map_detail(n, raster_above=raster_above, aggregate_above=aggregate_above)
     how = {
         "vector": "Every link is drawn in its zone's colour",
@@ -521,8 +543,7 @@ def _map_section(
         "aggregate": f"Each grid cell shows the zone holding most of its nodes (more than "
         f"{aggregate_above:,} nodes)",
     }[detail]
-    colouring = zone_colours(zoning.network, zoning.labels)
-    caption = (
+    return (
         f"{how}; boundary links in black, "
         + ("supply points as stars; " if sources else "")
         + f"zone colours: {PALETTE_REFERENCE}"
@@ -539,14 +560,6 @@ def _map_section(
         )
         + "."
     )
-    body = _figure_html(
-        figures["zone_map"],
-        image_id="zone-map",
-        alt=f"map of {zoning.n_zones} zones",
-        caption=caption,
-        **embed,
-    )
-    return _section("map-section", "Zone map", body)
 
 
 def _stability_section(

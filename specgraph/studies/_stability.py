@@ -41,11 +41,19 @@ import numpy as np
 import pandas as pd
 from sklearn.metrics import adjusted_rand_score
 
+from .. import _figures
 from .._progress import count_progress
-from .._validation import check_int, check_positive_float, check_rng
-from ..exceptions import ParameterError
+from .._validation import (
+    InstanceOf,
+    NoneOk,
+    check_int,
+    check_param,
+    check_positive_float,
+    check_rng,
+    parameter_error,
+)
 from ..network import Network
-from ..zones import Zoning, find_zones
+from ..zones import ComponentSolve, Zoning, find_zones
 from ._matching import match_zones
 from ._options import ZoningOptions
 from ._perturb import perturb_weights, perturbation_norm
@@ -144,18 +152,25 @@ class Stability:
 
 
 # ------------------------------------------------------------------ steps
-def _check_reference(reference: Any, network: Network) -> Zoning:
-    if not isinstance(reference, Zoning):
-        raise ParameterError(f"reference must be a Zoning or None; got {type(reference)!r}.")
+def _check_reference(reference: Any, network: Network) -> Zoning | None:
+    """The reference zoning, if given, checked to be a zoning of ``network``."""
+    reference = check_param(reference, "reference", _REFERENCE)
+    if reference is None:
+        return None
     same = reference.network.n_nodes == network.n_nodes and np.array_equal(
         reference.network.node_ids, network.node_ids
     )
     if not same:
-        raise ParameterError(
-            f"reference must be a zoning of this network ({network.n_nodes} nodes, same ids "
-            f"in the same order); got a zoning of {reference.network!r}."
+        raise parameter_error(
+            "reference",
+            f"a zoning of this network ({network.n_nodes} nodes, same ids in the same order)",
+            reference.network,
         )
     return reference
+
+
+#: What ``reference`` of :func:`stability` may be.
+_REFERENCE = [InstanceOf((Zoning,), "a Zoning"), NoneOk()]
 
 
 def _operator_kind(reference: Zoning) -> str:
@@ -176,58 +191,66 @@ def _davis_kahan(
     reference: Zoning, perturbed: Network, spread: float, rng: np.random.Generator
 ) -> tuple[pd.DataFrame, list[str]]:
     """One row per split component: gap, perturbation norm, bound; and the warnings."""
-    network = reference.network
-    kind = _operator_kind(reference)
-    merged = _merged(reference)
+    kind, merged = _operator_kind(reference), _merged(reference)
     rows, notes = [], []
     # The merged network of find_zones numbers its components by first node,
     # as the network does, so solve.component is a component of `network`.
     for solve in reference.solves:
-        values, k = solve.eigen.values, solve.zones
-        if values.size <= k:
+        if solve.eigen.values.size <= solve.zones:
             continue  # the whole component was solved: no (k+1)-th eigenvalue
-        lam, nxt = float(values[k - 1]), float(values[k])
-        gap = max(nxt - lam, 0.0)
-        nodes = np.flatnonzero(network.component_labels == solve.component)
-        norm = perturbation_norm(network, perturbed, kind=kind, nodes=nodes, rng=rng)
-        bound = norm / gap if gap > 0 else (np.inf if norm > 0 else 0.0)
-        rotation = float(np.degrees(np.arcsin(min(bound, 1.0))))
-        trustworthy = bound <= ROTATION_WARNING
-        rows.append(
-            {
-                "component": solve.component,
-                "zones": k,
-                "eigenvalue": lam,
-                "next_eigenvalue": nxt,
-                "eigengap": gap,
-                "perturbation_norm": norm,
-                "bound": bound,
-                "rotation_deg": rotation,
-                "merged": merged,
-                "trustworthy": trustworthy,
-            }
-        )
-        if not trustworthy:
+        row = _davis_kahan_row(solve, reference.network, perturbed, kind, rng)
+        rows.append({**row, "merged": merged})
+        if not row["trustworthy"]:
             where = f" in component {solve.component}" if len(reference.solves) > 1 else ""
-            notes.append(_davis_kahan_message(k, lam, nxt, gap, norm, bound, spread, where))
-    columns = [
-        "component",
-        "zones",
-        "eigenvalue",
-        "next_eigenvalue",
-        "eigengap",
-        "perturbation_norm",
-        "bound",
-        "rotation_deg",
-        "merged",
-        "trustworthy",
-    ]
-    return pd.DataFrame(rows, columns=columns), notes
+            notes.append(_davis_kahan_message(row, spread, where))
+    return pd.DataFrame(rows, columns=_BOUND_COLUMNS), notes
 
 
-def _davis_kahan_message(
-    k: int, lam: float, nxt: float, gap: float, norm: float, bound: float, spread: float, where: str
-) -> str:
+#: Columns of :attr:`Stability.bounds`.
+_BOUND_COLUMNS = [
+    "component",
+    "zones",
+    "eigenvalue",
+    "next_eigenvalue",
+    "eigengap",
+    "perturbation_norm",
+    "bound",
+    "rotation_deg",
+    "merged",
+    "trustworthy",
+]
+
+
+def _davis_kahan_row(
+    solve: ComponentSolve,
+    network: Network,
+    perturbed: Network,
+    kind: str,
+    rng: np.random.Generator,
+) -> dict[str, Any]:
+    """The Davis-Kahan figures of one component solve (all but ``merged``)."""
+    values, k = solve.eigen.values, solve.zones
+    gap = float(_figures.eigengaps(values)[k - 1])
+    nodes = np.flatnonzero(network.component_labels == solve.component)
+    norm = perturbation_norm(network, perturbed, kind=kind, nodes=nodes, rng=rng)
+    bound = norm / gap if gap > 0 else (np.inf if norm > 0 else 0.0)
+    return {
+        "component": solve.component,
+        "zones": k,
+        "eigenvalue": float(values[k - 1]),
+        "next_eigenvalue": float(values[k]),
+        "eigengap": gap,
+        "perturbation_norm": norm,
+        "bound": bound,
+        "rotation_deg": float(np.degrees(np.arcsin(min(bound, 1.0)))),
+        "trustworthy": bound <= ROTATION_WARNING,
+    }
+
+
+def _davis_kahan_message(row: Mapping[str, Any], spread: float, where: str) -> str:
+    """The warning for an untrustworthy zone count, from one row of :attr:`Stability.bounds`."""
+    k, lam, nxt = row["zones"], row["eigenvalue"], row["next_eigenvalue"]
+    gap, norm, bound = row["eigengap"], row["perturbation_norm"], row["bound"]
     relation = "smaller than" if gap < norm else f"only {gap / norm:.3g} times"
     if bound >= 1:
         reach = (
@@ -532,8 +555,7 @@ def stability(
     repeats = check_int(repeats, "repeats", minimum=1)
     spread = check_positive_float(spread, "spread", allow_zero=True)
     options = ZoningOptions.from_mapping(zone_options, argument="zone_options", caller="stability")
-    if reference is not None:
-        reference = _check_reference(reference, network)
+    reference = _check_reference(reference, network)
     streams = _Streams.spawn(check_rng(rng), repeats)
     runs_due = 2 * repeats + (1 if reference is None else 0)
     bounds: pd.DataFrame | None = None
