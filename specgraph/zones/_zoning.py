@@ -41,6 +41,7 @@ from ._count import parse_zone_spec
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
 from ._readonly import read_only
 from ._stages import (
+    _ASSIGNERS,
     Merged,
     SolveOptions,
     assign_component,
@@ -67,8 +68,8 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-#: Assignment methods (besides ``"auto"``).
-ASSIGNMENTS = ("kmeans", "qr", "bisection")
+#: Assignment methods (besides ``"auto"``), in the order of the dispatch table.
+ASSIGNMENTS = tuple(_ASSIGNERS)
 #: Treatments of dangling trees (besides ``"auto"``).
 TREE_TREATMENTS = ("attach", "keep")
 
