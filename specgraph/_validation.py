@@ -15,14 +15,15 @@ converts one value, :func:`check_params` the values of a table (the fields of
 an options object), and :func:`validate_params` checks a whole call from a
 table written beside the function.
 
-The constraints: numbers in an :class:`Interval` (:data:`OPEN_UNIT` for a
-probability, :data:`UNIT` for a share), :class:`Options` (one of some strings),
-:class:`Boolean`, :class:`NoneOk`, :class:`InstanceOf`, :class:`IsCallable`,
-:class:`Text` (a non-empty name), :class:`RandomState` (a seed), :class:`NodeIds`
-(a collection of node ids), :class:`Array` (an array of a kind, shape and lower
-bound) and :class:`SquareMatrix`. A check that depends on the data (a zone count
-above the node count, an id that is not a node) is written where the data is
-known, with :func:`parameter_error`, so that its message has the same shape and
+The constraints: numbers in an :class:`Interval` (:data:`POSITIVE`,
+:data:`NON_NEGATIVE`, :data:`OPEN_UNIT` for a probability, :data:`UNIT` for a
+share), :class:`Options` (one of some strings), :class:`Boolean`,
+:class:`NoneOk`, :class:`InstanceOf`, :class:`IsCallable`, :class:`Text` (a
+non-empty name), :class:`RandomState` (a seed), :class:`NodeIds` (a collection
+of node ids), :class:`Array` (an array of a kind, shape and lower bound) and
+:class:`SquareMatrix`. A check that depends on the data (a zone count above the
+node count, an id that is not a node) is written where the data is known, with
+:func:`parameter_error`, so that its message has the same shape and
 attributes.
 
 Examples
@@ -51,7 +52,9 @@ import scipy.sparse as sp
 from .exceptions import ParameterError
 
 __all__ = [
+    "NON_NEGATIVE",
     "OPEN_UNIT",
+    "POSITIVE",
     "REFUSED",
     "UNIT",
     "Array",
@@ -177,6 +180,10 @@ class Interval(Constraint):
     def convert(self, value: Any) -> Any:
         return int(value) if self.kind is int else float(value)
 
+    def shown(self, value: Any) -> str | None:
+        # A real number refused where a float is wanted is shown as that float.
+        return repr(float(value)) if self.kind is float and _is_real(value) else None
+
     @property
     def description(self) -> str:  # type: ignore[override]
         noun = "an integer" if self.kind is int else "a finite number"
@@ -197,9 +204,10 @@ class Interval(Constraint):
 
 @dataclass(frozen=True)
 class Options(Constraint):
-    """One of a set of strings."""
+    """One of a set of strings; ``noun`` names them as a group (``"find_zones options"``)."""
 
     values: Collection[str]
+    noun: str = ""
 
     def accepts(self, value: Any) -> bool:
         return isinstance(value, str) and value in self.values
@@ -207,7 +215,10 @@ class Options(Constraint):
     @property
     def description(self) -> str:  # type: ignore[override]
         names = sorted(self.values)
-        return "one of " + ", ".join(repr(v) for v in names) if len(names) > 1 else repr(names[0])
+        listed = ", ".join(repr(v) for v in names)
+        if self.noun:
+            return f"{self.noun} ({listed})"
+        return "one of " + listed if len(names) > 1 else repr(names[0])
 
 
 @dataclass(frozen=True)
@@ -338,6 +349,12 @@ class NodeIds(Constraint):
         return None
 
 
+def _shape_fits(shape: tuple[int, ...], wanted: tuple[int | None, ...]) -> bool:
+    return len(shape) == len(wanted) and all(
+        want is None or got == want for got, want in zip(shape, wanted, strict=True)
+    )
+
+
 #: The element kinds of :class:`Array`: numpy dtype of the converted array, and the noun.
 _ARRAY_KINDS: dict[str, tuple[type, str]] = {
     "bool": (np.bool_, "booleans"),
@@ -392,10 +409,7 @@ class Array(Constraint):
         """What is wrong with ``array``, as the message shows it; None when nothing is."""
         if array is None:
             return "no array of numbers"
-        if self.shape is not None and (
-            array.ndim != len(self.shape)
-            or any(want is not None and got != want for got, want in zip(array.shape, self.shape))
-        ):
+        if self.shape is not None and not _shape_fits(array.shape, self.shape):
             return f"shape {array.shape}"
         if (self.kind == "int" and array.dtype.kind not in "iu") or (
             self.kind == "bool" and array.dtype != np.bool_
@@ -451,6 +465,12 @@ class SquareMatrix(Constraint):
         shape = getattr(value, "shape", None)
         return type(value).__name__ + ("" if shape is None else f" of shape {shape}")
 
+
+#: A finite number above 0 (a tolerance, a size bound, a weight).
+POSITIVE = Interval(float, 0.0, None, closed="neither")
+
+#: A finite number of at least 0.
+NON_NEGATIVE = Interval(float, 0.0, None)
 
 #: A probability or damping factor strictly between 0 and 1.
 OPEN_UNIT = Interval(float, 0.0, 1.0, closed="neither")
@@ -554,13 +574,7 @@ def check_int(
 
 def check_positive_float(value: Any, name: str, *, allow_zero: bool = False) -> float:
     """Return ``value`` as a finite float > 0 (or >= 0), else raise naming ``name``."""
-    if not _is_real(value):
-        raise parameter_error(name, "a real number", value)
-    bound = Interval(float, 0.0, None, closed="both" if allow_zero else "neither")
-    if not bound.accepts(value):
-        expected = "a finite number >= 0" if allow_zero else "a finite number > 0"
-        raise parameter_error(name, expected, float(value))
-    return float(value)
+    return float(check_param(value, name, [NON_NEGATIVE if allow_zero else POSITIVE]))
 
 
 def check_choice(value: Any, name: str, choices: Collection[str]) -> str:
