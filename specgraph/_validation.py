@@ -18,7 +18,7 @@ table written beside the function.
 The constraints: numbers in an :class:`Interval` (:data:`POSITIVE`,
 :data:`NON_NEGATIVE`, :data:`OPEN_UNIT` for a probability, :data:`UNIT` for a
 share), :class:`Options` (one of some strings), :class:`Boolean`,
-:class:`NoneOk`, :class:`InstanceOf`, :class:`IsCallable`, :class:`Text` (a
+:class:`NoneOk`, :class:`InstanceOf`, :class:`HasMethods`, :class:`IsCallable`, :class:`Text` (a
 non-empty name), :class:`RandomState` (a seed), :class:`NodeIds` (a collection
 of node ids), :class:`Array` (an array of a kind, shape and lower bound) and
 :class:`SquareMatrix`. A check that depends on the data (a zone count above the
@@ -60,6 +60,7 @@ __all__ = [
     "Array",
     "Boolean",
     "Constraint",
+    "HasMethods",
     "InstanceOf",
     "Interval",
     "IsCallable",
@@ -278,6 +279,20 @@ class RandomState(Constraint):
 
     def convert(self, value: Any) -> np.random.Generator:
         return np.random.default_rng(value)
+
+
+@dataclass(frozen=True)
+class HasMethods(Constraint):
+    """An object with the named methods (duck typing: a graph from networkx, say)."""
+
+    methods: tuple[str, ...]
+    description: str = "an object with the right methods"
+
+    def accepts(self, value: Any) -> bool:
+        return all(callable(getattr(value, name, None)) for name in self.methods)
+
+    def shown(self, value: Any) -> str | None:
+        return type(value).__name__
 
 
 @dataclass(frozen=True)

@@ -114,9 +114,7 @@ class ZoneConstraints:
         checked = check_params(given, _RULES)
         low, high = checked["min_size"], checked["max_size"]
         if low is not None and high is not None and low > high:
-            raise parameter_error(
-                "min_size", "<= max_size", low, shown=f"{low:g} > {high:g}"
-            )
+            raise parameter_error("min_size", "<= max_size", low, shown=f"{low:g} > {high:g}")
         pairs = tuple(_checked_pair(pair) for pair in self.keep_links)
         fixed = None
         if self.fixed is not None:
