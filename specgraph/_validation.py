@@ -85,7 +85,7 @@ F = TypeVar("F", bound=Callable[..., Any])
 
 
 def parameter_error(
-    name: str, expected: str, received: Any, *, shown: str | None = None
+    name: str, expected: str, received: Any, *, shown: str | None = None, verb: str = "be"
 ) -> ParameterError:
     """The one refusal: ``<name> must be <expected>; got <shown>.``
 
@@ -103,6 +103,10 @@ def parameter_error(
         by default. Give it where the value itself would say little or too
         much: the shape of an array, the type of an object, a count of
         unknown ids.
+    verb : str, default='be'
+        The verb after "must", where "be" does not read: ``'hold'`` (an
+        array's contents), ``'have'``, ``'not hold'``. The shape of the
+        sentence stays the same.
 
     Examples
     --------
@@ -113,7 +117,7 @@ def parameter_error(
     """
     text = repr(received) if shown is None else shown
     return ParameterError(
-        f"{name} must be {expected}; got {text}.",
+        f"{name} must {verb} {expected}; got {text}.",
         parameter=name,
         expected=expected,
         received=received,
@@ -499,8 +503,12 @@ def _describe(constraints: Sequence[Constraint]) -> str:
     return words[0] if len(words) == 1 else ", ".join(words[:-1]) + " or " + words[-1]
 
 
-def check_param(value: Any, name: str, constraints: Sequence[Constraint]) -> Any:
+def check_param(
+    value: Any, name: str, constraints: Sequence[Constraint], *, verb: str = "be"
+) -> Any:
     """Return ``value`` converted by the first constraint that accepts it.
+
+    ``verb`` follows "must" in the refusal (see :func:`parameter_error`).
 
     Raises
     ------
@@ -513,7 +521,7 @@ def check_param(value: Any, name: str, constraints: Sequence[Constraint]) -> Any
         if parsed is not REFUSED:
             return parsed
     shown = next((s for c in constraints if (s := c.shown(value)) is not None), None)
-    raise parameter_error(name, _describe(constraints), value, shown=shown)
+    raise parameter_error(name, _describe(constraints), value, shown=shown, verb=verb)
 
 
 def check_params(

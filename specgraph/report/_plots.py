@@ -62,7 +62,7 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
-from .._figures import HIGH_GAP, MEDIUM_GAP, LabelWording, check_labels
+from .._figures import HIGH_GAP, MEDIUM_GAP, check_labels
 from .._validation import check_choice, check_int
 from ..exceptions import ParameterError
 from ..network import Network
@@ -191,14 +191,6 @@ def _zone_pairs(network: Network, labels: np.ndarray) -> np.ndarray:
     return np.unique(pairs, axis=0) if pairs.size else pairs.reshape(0, 2)
 
 
-#: Messages of the label check of :func:`zone_colours` (labels are cast to int64 first).
-_COLOUR_WORDING = LabelWording(
-    shape="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-    dtype="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-    minimum="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-)
-
-
 def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     """Colour zones from :data:`PALETTE` so that neighbouring zones differ.
 
@@ -236,9 +228,7 @@ def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     >>> zone_colours(net, np.array([0, 0, 1, 1])).colours == PALETTE[:2]
     True
     """
-    labels = check_labels(
-        np.asarray(labels, dtype=np.int64), n_nodes=network.n_nodes, wording=_COLOUR_WORDING
-    )
+    labels = check_labels(labels, n_nodes=network.n_nodes)
     k = int(labels.max()) + 1 if labels.size else 0
     p = len(PALETTE)
     if k <= p:

@@ -27,9 +27,9 @@ from .._validation import (
     Options,
     check_param,
     check_params,
+    parameter_error,
 )
 from ..eigen import DEFAULT_TOL, METHODS
-from ..exceptions import ParameterError
 from ..walks import DEFAULT_DAMPING
 from ..zones import ASSIGNMENTS, OPERATOR_KINDS, TREE_TREATMENTS, ZoneConstraints
 
@@ -145,13 +145,12 @@ class ZoningOptions:
         allowed = sorted(cls.names())
         for key in options:
             if key in RESERVED_OPTIONS:
-                # Not "must be": the one refusal here that names what is forbidden.
-                raise ParameterError(
-                    f"{argument} must not hold {key!r} ({caller} sets it itself); "
-                    f"got {argument} with keys {sorted(options)}.",
-                    parameter=argument,
-                    expected=f"no {key!r} key",
-                    received=options,
+                raise parameter_error(
+                    argument,
+                    f"{key!r} ({caller} sets it itself)",
+                    options,
+                    shown=f"{argument} with keys {sorted(options)}",
+                    verb="not hold",
                 )
             check_param(key, f"{argument} keys", [Options(allowed, "find_zones options")])
         return cls(**options)

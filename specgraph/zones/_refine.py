@@ -67,7 +67,7 @@ import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
-from .._figures import LabelWording, check_labels, cut_and_volume
+from .._figures import check_labels, cut_and_volume
 from .._figures import normalized_cut as figures_normalized_cut
 from .._validation import check_int, check_rng
 from ..exceptions import ParameterError
@@ -150,17 +150,9 @@ def _csr(adjacency: Any) -> sp.csr_array:
     return as_csr(adjacency)
 
 
-#: Messages of the label check of refinement and :func:`normalized_cut`.
-_WORDING = LabelWording(
-    shape="{name} must have shape ({n},); got shape {shape}.",
-    dtype="{name} must be integers >= 0; got dtype {dtype}.",
-    minimum="{name} must be integers >= 0; got dtype {dtype}.",
-)
-
-
 def _labels(labels: Any, n: int) -> np.ndarray:
     # Always a copy: the input is never modified.
-    return check_labels(labels, n_nodes=n, wording=_WORDING, copy=True)
+    return check_labels(labels, n_nodes=n, copy=True)
 
 
 def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
