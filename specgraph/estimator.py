@@ -291,7 +291,7 @@ class ZoneSplitter(ClusterMixin, BaseEstimator):
         """
         spec = self.n_zones
         if Interval(int, 1, n_samples).accepts(spec):
-            return int(spec)
+            return int(spec)  # type: ignore[arg-type]  # an Integral, just checked
         if isinstance(spec, range):
             return spec
         if isinstance(spec, str):

@@ -30,7 +30,7 @@ from .._validation import (
 )
 from ..network import Network
 
-__all__ = ["NAMES_SHOWN", "SIZE_BY", "ResolvedConstraints", "ZoneConstraints"]
+__all__ = ["NAMES_SHOWN", "SIZE_BY", "ResolvedConstraints", "ZoneConstraints", "check_coverage"]
 
 #: Node ids quoted in a message before "and N more".
 NAMES_SHOWN = 5
@@ -251,3 +251,10 @@ class ResolvedConstraints:
 
     def label_of(self, row: int) -> str:
         return "node " + self.name(row)
+
+
+def check_coverage(constraints: ResolvedConstraints, n: int) -> None:
+    """Refuse constraints resolved for another number of nodes than ``n``."""
+    if constraints.n_nodes != n:
+        shown = str(constraints.n_nodes)
+        raise parameter_error("constraints", f"{n} nodes", constraints, shown=shown, verb="cover")
