@@ -1,11 +1,11 @@
-"""Library refusals in command-line words: option names in front of the same sentence.
+"""Library refusals on the command line: the option's name in front of the same sentence.
 
 The library names its own arguments (``min_size must be <= max_size; got 5 >
 3.``); it never speaks in command-line option names. When such a
 :class:`~specgraph.exceptions.ParameterError` reaches the command line, the
-argument it names (its ``parameter`` attribute) is written as the option that
-sets it, in front of the same words (``--min-size must be <= --max-size; got
-5 > 3.``).
+option that set the argument it names (its ``parameter`` attribute) is written
+in front of the same words (``--min-size: min_size must be <= max_size; got 5
+> 3.``), as argparse writes its own refusals (``argument --zones: ...``).
 
 Which option sets which argument is read from the parser itself: an option's
 argparse ``dest`` is the library keyword it becomes, except for the few listed
@@ -16,7 +16,6 @@ become keyword arguments).
 from __future__ import annotations
 
 import argparse
-import re
 from collections.abc import Mapping
 
 from .exceptions import ParameterError
@@ -68,25 +67,21 @@ def option_names(parser: argparse.ArgumentParser, command: str | None = None) ->
     return names
 
 
-def _other_name(name: str) -> re.Pattern[str]:
-    # A whole word, outside quotes (a quoted 'max_size' is a value, such as a column name).
-    return re.compile(rf"(?<![\w'\"-]){re.escape(name)}(?![\w'\"])")
-
-
 def for_command_line(error: Exception, names: Mapping[str, str]) -> str:
-    """The message of ``error`` with option names in place of the library's argument names.
+    """The message of ``error``, with the option that set the refused argument in front.
 
-    A :class:`ParameterError` whose ``parameter`` an option sets starts with
-    that option instead; other arguments named in the sentence with an
-    underscore (``max_size``: unmistakably a keyword) become their options
-    too. Any other error, or an argument no option sets, reads as it is.
+    A :class:`ParameterError` whose ``parameter`` an option sets reads
+    ``<option>: <the library's sentence>``, the form argparse gives its own
+    refusals (``argument --zones: ...``): the option a user typed, then the
+    same words a Python caller reads. Any other error, or an argument no
+    option sets, reads as it is.
 
     Examples
     --------
     >>> from specgraph._validation import parameter_error
     >>> names = {"min_size": "--min-size", "max_size": "--max-size"}
     >>> for_command_line(parameter_error("min_size", "<= max_size", 5, shown="5 > 3"), names)
-    '--min-size must be <= --max-size; got 5 > 3.'
+    '--min-size: min_size must be <= max_size; got 5 > 3.'
     >>> for_command_line(parameter_error("k", "an integer", "x"), names)
     "k must be an integer; got 'x'."
     """
@@ -94,11 +89,4 @@ def for_command_line(error: Exception, names: Mapping[str, str]) -> str:
     parameter = error.parameter if isinstance(error, ParameterError) else None
     if parameter is None or parameter not in names:
         return message
-    if message.startswith(f"{parameter} "):
-        message = names[parameter] + message[len(parameter) :]
-    else:
-        message = f"{names[parameter]}: {message}"
-    for name, option in names.items():
-        if name != parameter and "_" in name:
-            message = _other_name(name).sub(option, message)
-    return message
+    return f"{names[parameter]}: {message}"

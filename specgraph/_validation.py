@@ -42,6 +42,7 @@ import functools
 import inspect
 import math
 import numbers
+from collections import Counter
 from collections.abc import Callable, Collection, Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal, TypeVar
@@ -360,7 +361,8 @@ class NodeIds(Constraint):
         if isinstance(value, str | bytes) or not isinstance(value, Collection):
             return None
         ids = [str(v) for v in value]
-        twice = sorted({i for i in ids if ids.count(i) > 1}) if self.distinct else []
+        counts = Counter(ids) if self.distinct else Counter()
+        twice = sorted(i for i, count in counts.items() if count > 1)
         if twice:
             return "repeated " + ", ".join(repr(i) for i in twice)
         if len(ids) < self.minimum:

@@ -105,9 +105,8 @@ def _open_unit(text: str) -> float:
 def _zone_spec(text: str) -> Any:
     try:
         return parse_zone_spec(text)
-    except ParameterError as exc:  # the library's words, with the option's name
-        message = for_command_line(exc, {"zones": "--zones"})
-        raise argparse.ArgumentTypeError(message) from None
+    except ParameterError as exc:  # argparse puts "argument --zones:" in front
+        raise argparse.ArgumentTypeError(str(exc)) from None
 
 
 def _caution_epilog(examples: str) -> str:
@@ -620,9 +619,9 @@ def _dispatch(
     Errors raised on purpose (:class:`SpecgraphError`: bad input, parameters or
     constraints, unwritable output, too little memory) exit 2, a missed
     tolerance exits 3, anything else is an internal error (exit 1). The
-    traceback is shown with ``--debug`` only. A refused library argument is
-    named by the option that set it (``options``: library keyword -> option,
-    from :func:`~specgraph._option_names.option_names`), in front of the
+    traceback is shown with ``--debug`` only. The option that set a refused
+    library argument (``options``: library keyword -> option, from
+    :func:`~specgraph._option_names.option_names`) is written in front of the
     library's own words.
     """
     if args.command in CAUTIONED:
