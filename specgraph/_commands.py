@@ -19,6 +19,7 @@ from typing import Any
 
 from ._guard import check_memory
 from ._progress import stage_progress
+from ._validation import parameter_error
 from .diagnostics import (
     compare_frames,
     labels_from_mapping,
@@ -105,10 +106,12 @@ def _read_geojson(args: argparse.Namespace) -> Network:
         ("--directed", args.directed),
     ):
         if value:
-            raise ParameterError(
-                f"{option}: not available for a GeoJSON line network (its nodes are built "
-                "from the line ends, and its lines are read without direction); leave the "
-                f"option out, or convert the lines to an edge table; received {option} {value}"
+            raise parameter_error(
+                option,
+                "left out for a GeoJSON line network (its nodes are built from the line "
+                "ends, and its lines are read without direction), or the lines converted to "
+                "an edge table",
+                value,
             )
     network, report = read_geojson_lines(
         args.edges,
@@ -133,11 +136,15 @@ def _read_geojson(args: argparse.Namespace) -> Network:
 def _check_formats(network: Network, args: argparse.Namespace) -> None:
     """Refuse extra formats that cannot be written, before any work is done."""
     if getattr(args, "geojson", False) and network.coordinates is None:
-        raise ParameterError(
-            "--geojson: GeoJSON features need node coordinates, and this network has none; "
-            "give --nodes with --x-col and --y-col (or read a GeoJSON line network)"
+        raise parameter_error(
+            "--geojson",
+            "given for a network with node coordinates (GeoJSON features need them: give "
+            "--nodes with --x-col and --y-col, or read a GeoJSON line network)",
+            True,
+            shown="a network without them",
         )
     if getattr(args, "parquet", False) and not parquet_available():
+        # Not a value refused but a package missing: said as it is.
         raise ParameterError(
             "--parquet: writing Parquet needs pyarrow, which is not installed; install it "
             "with: pip install 'specgraph[parquet]'"

@@ -24,8 +24,9 @@ counted once at each end). A zone is connected when the links inside it join
 all its nodes: each piece of the network cut along zone changes lies in one
 zone, so counting pieces per zone needs no sort.
 
-This is a shared low-level module: it imports only numpy, scipy, the
-exceptions and the network, never a pipeline stage, so every stage may use it.
+This is a shared low-level module: it imports only numpy, scipy, pandas, the
+validation module and the network, never a pipeline stage, so every stage may
+use it.
 """
 
 from __future__ import annotations
@@ -38,17 +39,15 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from .exceptions import InputError, ParameterError, SpecgraphError
+from ._validation import parameter_error
 
 if TYPE_CHECKING:
     from .network import Network
 
 __all__ = [
     "HIGH_GAP",
-    "LABEL_WORDING",
     "MEDIUM_GAP",
     "UNASSIGNED",
-    "LabelWording",
     "ZoneFigures",
     "boundary_links",
     "check_labels",
@@ -80,52 +79,24 @@ MEDIUM_GAP = 0.3
 
 
 # -------------------------------------------------------------- label check
-@dataclass(frozen=True)
-class LabelWording:
-    """The three refusals of :func:`check_labels`, as :meth:`str.format` templates.
-
-    Fields available to every template: ``name``, ``n`` (expected length or
-    None), ``shape``, ``dtype`` and ``minimum`` (the smallest label, or None
-    before it is known). Callers keep their own wording so that messages stay
-    word for word what their users and tests know.
-
-    Attributes
-    ----------
-    shape : str
-        Wrong shape (or, without an expected length, not one-dimensional).
-    dtype : str
-        Not integers.
-    minimum : str
-        A label below the smallest allowed one.
-    """
-
-    shape: str
-    dtype: str
-    minimum: str
-
-
-#: The wording of :func:`specgraph.diagnostics.score` (the default).
-LABEL_WORDING = LabelWording(
-    shape="{name} must hold one zone per node ({n}); got shape {shape}.",
-    dtype="{name} must be integers; got dtype {dtype}.",
-    minimum=f"{{name}} must be zone numbers >= 0, or {UNASSIGNED} for unassigned; got {{minimum}}.",
-)
-
-
 def check_labels(
     labels: Any,
     *,
     n_nodes: int | None = None,
     name: str = "labels",
     unassigned: bool = False,
-    error: type[SpecgraphError] = ParameterError,
-    wording: LabelWording = LABEL_WORDING,
     copy: bool = False,
 ) -> np.ndarray:
-    """Return ``labels`` as int64 zone numbers, one per node, or raise ``error``.
+    """Return ``labels`` as int64 zone numbers, one per node, or raise a ``ParameterError``.
 
-    The checks, in order: the shape (``(n_nodes,)``, or one-dimensional when
-    ``n_nodes`` is None), integer dtype, and no label below 0 (below
+    The one label check of specgraph: every function that takes labels
+    (scoring, zone tables, comparison, refinement, the constraint steps,
+    zone matching, the report's colours) refuses the same labels with the
+    same :class:`~specgraph.exceptions.ParameterError` and the same words
+    (labels read from a file are checked where the file is read, naming its
+    line). The checks, in order: the shape (``(n_nodes,)``, or
+    one-dimensional when ``n_nodes`` is None), an integer dtype (an empty
+    array passes whatever its dtype), and no label below 0 (below
     :data:`UNASSIGNED` with ``unassigned=True``).
 
     Parameters
@@ -137,11 +108,6 @@ def check_labels(
         Argument name used in the messages.
     unassigned : bool, default=False
         Accept :data:`UNASSIGNED` (``-1``) for a node in no zone.
-    error : type, default=ParameterError
-        Exception class raised (:class:`~specgraph.exceptions.InputError` where
-        labels are data rather than an argument).
-    wording : LabelWording, default=LABEL_WORDING
-        Message templates.
     copy : bool, default=False
         Always return a new array (otherwise int64 input is returned as is).
 
@@ -149,31 +115,35 @@ def check_labels(
     -------
     ndarray of int64
 
+    Raises
+    ------
+    ParameterError
+        Naming ``name``, what was expected and what was received (the
+        shape, the dtype or the smallest label).
+
     Examples
     --------
     >>> check_labels([2, 0, -1], n_nodes=3, unassigned=True).tolist()
     [2, 0, -1]
-    >>> check_labels([0, 1.5], n_nodes=2)
+    >>> check_labels([0, 1], n_nodes=3)
     Traceback (most recent call last):
     ...
-    specgraph.exceptions.ParameterError: labels must be integers; got dtype float64.
+    specgraph.exceptions.ParameterError: labels must hold one zone per node (3); got shape (2,).
     """
     array = np.asarray(labels)
-
-    def refuse(template: str, minimum: int | None = None) -> SpecgraphError:
-        return error(
-            template.format(
-                name=name, n=n_nodes, shape=array.shape, dtype=array.dtype, minimum=minimum
-            )
-        )
-
-    if (array.ndim != 1) if n_nodes is None else (array.shape != (n_nodes,)):
-        raise refuse(wording.shape)
-    if not np.issubdtype(array.dtype, np.integer):
-        raise refuse(wording.dtype)
+    if n_nodes is None and array.ndim != 1:
+        raise parameter_error(name, "one-dimensional", labels, shown=f"shape {array.shape}")
+    if n_nodes is not None and array.shape != (n_nodes,):
+        expected = f"one zone per node ({n_nodes})"
+        raise parameter_error(name, expected, labels, shown=f"shape {array.shape}", verb="hold")
+    if array.size and not np.issubdtype(array.dtype, np.integer):
+        expected = "integers, one zone number per node"
+        raise parameter_error(name, expected, labels, shown=f"dtype {array.dtype}", verb="hold")
     floor = UNASSIGNED if unassigned else 0
     if array.size and array.min() < floor:
-        raise refuse(wording.minimum, int(array.min()))
+        expected = "zone numbers >= 0" + (f", or {UNASSIGNED} for unassigned" if unassigned else "")
+        shown = str(int(array.min()))
+        raise parameter_error(name, expected, labels, shown=shown, verb="hold")
     return array.astype(np.int64, copy=copy)
 
 
@@ -306,21 +276,14 @@ def normalized_cut(adjacency: sp.csr_array, labels: np.ndarray) -> float:
 
 
 # ------------------------------------------------------------ zone tables
-#: Messages of :func:`check_zone_labels` (labels are data there: an ``InputError``).
-_ZONING_WORDING = LabelWording(
-    shape="{name} must hold one zone per node ({n}); got shape {shape}",
-    dtype="{name} must be integers >= 0",
-    minimum="{name} must be integers >= 0",
-)
-
-
 def check_zone_labels(network: Network, labels: np.ndarray) -> np.ndarray:
     """Return ``labels`` as int64 zone numbers 0..k-1, one per node, or raise.
 
     The check of :func:`zone_table` (public as
-    :func:`specgraph.diagnostics.check_labels`): an ``InputError``.
+    :func:`specgraph.diagnostics.check_labels`): :func:`check_labels` with
+    the network's node count.
     """
-    return check_labels(labels, n_nodes=network.n_nodes, error=InputError, wording=_ZONING_WORDING)
+    return check_labels(labels, n_nodes=network.n_nodes)
 
 
 def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:

@@ -12,7 +12,8 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .exceptions import OutputError, ParameterError
+from ._validation import parameter_error
+from .exceptions import OutputError
 from .zones import Zoning
 
 __all__ = [
@@ -97,10 +98,12 @@ def _properties(table: pd.DataFrame) -> list[dict[str, Any]]:
 def _coordinates_of(zoning: Zoning) -> np.ndarray:
     xy = zoning.network.coordinates
     if xy is None:
-        raise ParameterError(
-            "zoning must come from a network with node coordinates for GeoJSON output; "
-            "got a network without them (give a node table with x and y columns, or read "
-            "a GeoJSON line network)."
+        raise parameter_error(
+            "zoning",
+            "a zoning of a network with node coordinates for GeoJSON output (give a node "
+            "table with x and y columns, or read a GeoJSON line network)",
+            zoning,
+            shown="a zoning of a network without them",
         )
     return xy
 

@@ -19,7 +19,8 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .exceptions import InputError, ParameterError
+from ._validation import HasMethods, check_param
+from .exceptions import InputError
 
 if TYPE_CHECKING:
     import networkx as nx
@@ -81,6 +82,10 @@ class GraphLinks:
     renamed: dict[str, str]
 
 
+#: What a graph argument must be: networkx's graph protocol, by duck typing.
+_GRAPH = HasMethods(("edges", "nodes"), "a networkx graph")
+
+
 def read_graph(
     graph: nx.Graph,
     *,
@@ -120,13 +125,7 @@ def read_graph(
         that is not a finite number in range; a node lacks ``size`` or ``pos``, or holds a bad one.
         The message names the edge (its number and ends) or the node.
     """
-    if not hasattr(graph, "edges") or not hasattr(graph, "nodes"):
-        raise ParameterError(
-            f"graph must be a networkx graph; got {type(graph).__name__}.",
-            parameter="graph",
-            expected="a networkx graph",
-            received=type(graph).__name__,
-        )
+    check_param(graph, "graph", [_GRAPH])
     import pandas as pd
 
     source, target, values, rows = [], [], [], []

@@ -17,13 +17,14 @@ import os
 import sys
 import textwrap
 import traceback
-from collections.abc import Iterator, Sequence
+from collections.abc import Iterator, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
 from . import __version__
 from ._commands import CAUTIONED, COMMANDS, REPORT_FILE, holds_nodes
 from ._commands import GEOJSON_FILES as GEOJSON_FILES  # re-exported: tests and users name it
+from ._option_names import for_command_line, option_names
 from ._progress import wants_progress
 from .diagnostics import (
     DEFAULT_TOP,
@@ -104,7 +105,7 @@ def _open_unit(text: str) -> float:
 def _zone_spec(text: str) -> Any:
     try:
         return parse_zone_spec(text)
-    except ParameterError as exc:
+    except ParameterError as exc:  # argparse puts "argument --zones:" in front
         raise argparse.ArgumentTypeError(str(exc)) from None
 
 
@@ -604,19 +605,24 @@ def main(argv: Sequence[str] | None = None) -> int:
         return int(exc.code or 0)
     args.progress = wants_progress(quiet=args.quiet)
     with _messages_to_stderr(args.quiet):
-        code, summary = _dispatch(args, argv)
+        code, summary = _dispatch(args, argv, option_names(parser, args.command))
     if summary is not None and args.json:
         print(json.dumps(summary, indent=2))
     return code
 
 
-def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str, Any] | None]:
+def _dispatch(
+    args: argparse.Namespace, argv: list[str], options: Mapping[str, str] | None = None
+) -> tuple[int, dict[str, Any] | None]:
     """Run one command; map every failure to its exit code and a one-line message.
 
     Errors raised on purpose (:class:`SpecgraphError`: bad input, parameters or
     constraints, unwritable output, too little memory) exit 2, a missed
     tolerance exits 3, anything else is an internal error (exit 1). The
-    traceback is shown with ``--debug`` only.
+    traceback is shown with ``--debug`` only. The option that set a refused
+    library argument (``options``: library keyword -> option, from
+    :func:`~specgraph._option_names.option_names`) is written in front of the
+    library's own words.
     """
     if args.command in CAUTIONED:
         logger.info("caution: %s", CAUTION)
@@ -632,7 +638,7 @@ def _dispatch(args: argparse.Namespace, argv: list[str]) -> tuple[int, dict[str,
         _record_not_converged(args, argv, exc)
         return EXIT_NOT_CONVERGED, None
     except SpecgraphError as exc:
-        logger.error("error: %s", exc)
+        logger.error("error: %s", for_command_line(exc, options or {}))
         _debug_traceback(args)
         return EXIT_INPUT, None
     except Exception as exc:

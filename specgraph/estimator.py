@@ -44,7 +44,7 @@ References
 
 from __future__ import annotations
 
-import numbers
+import contextlib
 from collections.abc import Mapping
 from dataclasses import dataclass, fields
 from typing import Any
@@ -56,7 +56,15 @@ from sklearn.metrics.pairwise import rbf_kernel
 from sklearn.neighbors import kneighbors_graph
 from sklearn.utils.validation import validate_data
 
-from ._validation import check_choice, check_int, check_positive_float
+from ._validation import (
+    POSITIVE,
+    Boolean,
+    Constraint,
+    Interval,
+    Options,
+    check_params,
+    parameter_error,
+)
 from .eigen import DEFAULT_TOL, METHODS
 from .exceptions import InputError, ParameterError
 from .network import Network
@@ -73,6 +81,22 @@ __all__ = ["AFFINITIES", "ZoneSplitter", "expected_failed_checks"]
 
 #: The ways ``X`` becomes an affinity matrix.
 AFFINITIES = ("precomputed", "rbf", "nearest_neighbors")
+
+#: What each parameter of :class:`ZoneSplitter` accepts, checked at fit time as
+#: scikit-learn checks its estimators' ``_parameter_constraints`` (``n_zones``
+#: depends on the number of samples; ``random_state`` is checked as scikit-learn
+#: checks it).
+_PARAMETERS: dict[str, list[Constraint]] = {
+    "affinity": [Options(AFFINITIES)],
+    "operator": [Options(("auto", *OPERATOR_KINDS))],
+    "assign": [Options(("auto", *ASSIGNMENTS))],
+    "trees": [Options(("auto", *TREE_TREATMENTS))],
+    "eigen_method": [Options(METHODS)],
+    "refine": [Boolean()],
+    "gamma": [POSITIVE],
+    "tol": [POSITIVE],
+    "n_neighbors": [Interval(int, 1, None)],
+}
 
 #: Largest seed drawn from a legacy :class:`numpy.random.RandomState` passed
 #: as ``random_state`` (the range of a 32-bit seed, as scikit-learn draws them).
@@ -258,33 +282,23 @@ class ZoneSplitter(ClusterMixin, BaseEstimator):
 
     # ------------------------------------------------------------ validation
     def _check_parameters(self) -> None:
-        check_choice(self.affinity, "affinity", AFFINITIES)
-        check_choice(self.operator, "operator", ("auto", *OPERATOR_KINDS))
-        check_choice(self.assign, "assign", ("auto", *ASSIGNMENTS))
-        check_choice(self.trees, "trees", ("auto", *TREE_TREATMENTS))
-        check_choice(self.eigen_method, "eigen_method", METHODS)
-        if not isinstance(self.refine, bool | np.bool_):
-            raise ParameterError(f"refine must be True or False; got {self.refine!r}.")
-        check_positive_float(self.gamma, "gamma")
-        check_positive_float(self.tol, "tol")
-        check_int(self.n_neighbors, "n_neighbors", minimum=1)
+        check_params(self.get_params(deep=False), _PARAMETERS)
 
     def _zone_spec(self, n_samples: int) -> int | str | range:
-        """``n_zones`` as ``find_zones`` takes it, refused by its own name when out of domain."""
+        """``n_zones`` as ``find_zones`` takes it, refused by its own name when out of domain.
+
+        The bound on an integer count is the number of samples, known only at fit time.
+        """
         spec = self.n_zones
-        expected = f"an int in 1..n_samples={n_samples}, 'auto', a range or text like '8:20'"
-        if isinstance(spec, numbers.Integral) and not isinstance(spec, bool):
-            if not 1 <= int(spec) <= n_samples:
-                raise ParameterError(f"n_zones must be {expected}; got {spec!r}.")
-            return int(spec)
+        if Interval(int, 1, n_samples).accepts(spec):
+            return int(spec)  # type: ignore[arg-type]  # an Integral, just checked
         if isinstance(spec, range):
             return spec
         if isinstance(spec, str):
-            try:
+            with contextlib.suppress(ParameterError):
                 return parse_zone_spec(spec)
-            except ParameterError:
-                raise ParameterError(f"n_zones must be {expected}; got {spec!r}.") from None
-        raise ParameterError(f"n_zones must be {expected}; got {spec!r}.")
+        expected = f"an int in 1..n_samples={n_samples}, 'auto', a range or text like '8:20'"
+        raise parameter_error("n_zones", expected, spec)
 
     def _affinity(self, X: Any) -> sp.csr_array:
         """The affinity matrix of validated ``X`` (diagonal kept; the network drops it)."""

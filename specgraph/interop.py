@@ -26,7 +26,8 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 import pandas as pd
 
-from .exceptions import InputError, ParameterError
+from ._validation import Boolean, InstanceOf, Text, validate_params
+from .exceptions import InputError
 from .network import Network
 from .zones import Zoning
 
@@ -34,6 +35,9 @@ if TYPE_CHECKING:
     import networkx as nx
 
 __all__ = ["annotate_graph", "network_from_graph", "zone_sets", "zones_frame"]
+
+#: What a zoning argument must be (named by its type when refused).
+_ZONING = [InstanceOf((Zoning,), "a specgraph Zoning (from find_zones)", by_type=True)]
 
 
 def network_from_graph(
@@ -99,6 +103,7 @@ def network_from_graph(
     )
 
 
+@validate_params({"zoning": _ZONING})
 def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
     """The zones as node sets: item ``z`` holds the ids of zone ``z``.
 
@@ -120,7 +125,6 @@ def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
     >>> [sorted(s) for s in sets]
     [['0', '1', '2'], ['3', '4', '5']]
     """
-    _check_zoning(zoning)
     ids = zoning.network.node_ids
     order = np.argsort(zoning.labels, kind="stable")
     bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
@@ -129,6 +133,7 @@ def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
     ]
 
 
+@validate_params({"zoning": _ZONING, "attribute": [Text()], "copy": [Boolean()]})
 def annotate_graph(
     graph: nx.Graph, zoning: Zoning, *, attribute: str = "zone", copy: bool = True
 ) -> nx.Graph:
@@ -169,11 +174,6 @@ def annotate_graph(
     >>> "zone" in g.nodes[0]
     False
     """
-    _check_zoning(zoning)
-    if not isinstance(copy, bool):
-        raise ParameterError(f"copy must be True or False; got {copy!r}.")
-    if not isinstance(attribute, str) or not attribute:
-        raise ParameterError(f"attribute must be a non-empty string; got {attribute!r}.")
     index = zoning.network.index_of
     by_id: dict[str, Any] = {}
     for node in graph.nodes:
@@ -196,6 +196,7 @@ def annotate_graph(
     return target
 
 
+@validate_params({"zoning": _ZONING})
 def zones_frame(zoning: Zoning) -> pd.DataFrame:
     """One row per node: ``node``, ``zone``, then ``x``, ``y`` and ``size`` where known.
 
@@ -214,7 +215,6 @@ def zones_frame(zoning: Zoning) -> pd.DataFrame:
     >>> zones_frame(find_zones(gallery.path(4), 2, rng=0)).to_numpy().tolist()
     [['0', 0], ['1', 0], ['2', 1], ['3', 1]]
     """
-    _check_zoning(zoning)
     frame = zoning.to_frame()
     net = zoning.network
     if net.coordinates is not None:
@@ -223,10 +223,3 @@ def zones_frame(zoning: Zoning) -> pd.DataFrame:
     if net.sizes is not None:
         frame["size"] = net.sizes
     return frame
-
-
-def _check_zoning(zoning: Any) -> None:
-    if not isinstance(zoning, Zoning):
-        raise ParameterError(
-            f"zoning must be a specgraph Zoning (from find_zones); got {type(zoning).__name__}."
-        )

@@ -40,7 +40,8 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from ._graph import MISSING_WEIGHT_DEFAULT, read_graph
-from .exceptions import InputError, ParameterError
+from ._validation import check_bool
+from .exceptions import InputError
 
 if TYPE_CHECKING:
     import networkx as nx
@@ -406,8 +407,7 @@ class Network:
             raise InputError("weight must have one value per link")
         if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
             raise InputError("weights must be finite and >= 0")
-        if not isinstance(directed, bool):
-            raise ParameterError(f"directed must be True or False; got {directed!r}.")
+        directed = check_bool(directed, "directed")
         ids, i, j = _index_links(src, dst, node_ids)
         adjacency, counts = _adjacency_from_links(i, j, w, ids.size, directed=directed)
         arcs = None

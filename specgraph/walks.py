@@ -52,7 +52,7 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from ._validation import Interval, check_int, check_param, parameter_error
+from ._validation import OPEN_UNIT, Interval, check_int, check_param, parameter_error
 from .exceptions import ConvergenceError, InputError
 from .network import Network
 
@@ -121,9 +121,6 @@ class StationaryResult:
     error_bound: float
 
 
-#: A damping factor (teleportation keeps the walk ergodic only below 1).
-_OPEN_UNIT = Interval(float, 0.0, 1.0, closed="neither")
-
 #: The walk's stopping bound on the change in 1-norm (a distribution moves by
 #: at most 2 in that norm, so 2 or more would stop before the first step).
 _WALK_TOL = Interval(float, 0.0, 2.0, closed="neither")
@@ -146,8 +143,11 @@ def default_maxiter(damping: float, tol: float) -> int:
 
 
 def check_damping(damping: Any) -> float:
-    """Return ``damping`` as a float in (0, 1), else raise naming ``damping``."""
-    return float(check_param(damping, "damping", [_OPEN_UNIT]))
+    """Return ``damping`` as a float in (0, 1), else raise naming ``damping``.
+
+    Teleportation keeps the walk ergodic only below 1; at 0 there is no walk.
+    """
+    return float(check_param(damping, "damping", [OPEN_UNIT]))
 
 
 def transition_parts(network: Network) -> tuple[sp.csr_array, np.ndarray, np.ndarray]:
@@ -182,14 +182,15 @@ def _personalization(network: Network, personalization: Any) -> np.ndarray:
         v = np.array(personalization, dtype=np.float64).ravel()
         if v.shape != (n,):
             raise parameter_error(
-                "personalization", f"one weight per node ({n})", f"{v.size} values"
+                "personalization", f"one weight per node ({n})", v, shown=f"{v.size} values"
             )
     if not np.all(np.isfinite(v)) or np.any(v < 0) or v.sum() <= 0:
         minimum = float(np.min(v)) if v.size else 0.0
         raise parameter_error(
             "personalization",
             "finite weights >= 0 with a positive sum",
-            f"sum {float(np.sum(v))!r}, minimum {minimum!r}",
+            v,
+            shown=f"sum {float(np.sum(v))!r}, minimum {minimum!r}",
         )
     return v / v.sum()
 
@@ -265,7 +266,9 @@ def stationary_distribution(
     )
     n = network.n_nodes
     if n == 0:
-        raise parameter_error("network", "a network with at least one node", "an empty network")
+        raise parameter_error(
+            "network", "a network with at least one node", network, shown="an empty network"
+        )
     v = _personalization(network, personalization)
     weights_t, inv, dangling = transition_parts(network)
     x = v.copy()

@@ -500,6 +500,58 @@ def test_bad_usage_exits_2(
     assert not out.exists()
 
 
+# ------------------------------------------- library refusals in option names
+@pytest.mark.parametrize(
+    ("argv", "said"),
+    [
+        pytest.param(
+            ["--zones", "eight"],
+            "argument --zones: zones must be a number of zones such as 12",
+            id="zones-text",
+        ),
+        pytest.param(
+            ["--zones", "2", "--min-size", "5", "--max-size", "3"],
+            "error: --min-size: min_size must be <= max_size; got 5 > 3.",
+            id="min-size-above-max-size",
+        ),
+        pytest.param(
+            ["--zones", "9"],
+            "error: --zones: zones must be an integer <= 8; got 9.",
+            id="zones-above-nodes",
+        ),
+    ],
+)
+def test_library_refusals_name_the_option(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], argv: list[str], said: str
+) -> None:
+    # The library names its argument (zones, min_size); the command line puts the
+    # option in front of the same words, as argparse does. Two cliques of 4: 8 nodes.
+    edges = two_cliques_csv(tmp_path)
+    code = main(["zones", str(edges), *argv, "--out", str(tmp_path / "out")])
+    err = capsys.readouterr().err
+    assert code == 2, err
+    assert said in err
+    assert "Traceback" not in err
+
+
+def test_the_same_refusals_in_python_name_the_argument(tmp_path: Path) -> None:
+    net = specgraph.read_edges(two_cliques_csv(tmp_path))
+    for call, words in [
+        (lambda: specgraph.find_zones(net, "eight"), "zones must be a number of zones"),
+        (
+            lambda: specgraph.zones.ZoneConstraints(min_size=5, max_size=3),
+            "min_size must be <= max_size; got 5 > 3.",
+        ),
+        (lambda: specgraph.find_zones(net, 9), "zones must be an integer <= 8; got 9."),
+    ]:
+        with pytest.raises(specgraph.ParameterError) as info:
+            call()
+        message = str(info.value)
+        assert message.startswith(words)
+        assert "--" not in message
+        assert info.value.parameter in ("zones", "min_size")
+
+
 # ------------------------------------------------------------ convergence
 @pytest.mark.parametrize(
     "command",

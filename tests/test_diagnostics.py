@@ -25,7 +25,7 @@ from specgraph.diagnostics import (
     suggest_zone_counts,
     zone_table,
 )
-from specgraph.exceptions import InputError
+from specgraph.exceptions import ParameterError
 
 
 def random_labels(n: int, k: int, seed: int) -> np.ndarray:
@@ -178,8 +178,9 @@ def test_empty_zone_number_gets_a_row_of_zeros() -> None:
     ids=["wrong-length", "negative", "float"],
 )
 def test_bad_labels_are_refused(labels: np.ndarray) -> None:
+    # Labels are an argument: the one label check refuses them as a parameter.
     net = Network.from_networkx(nx.path_graph(4))
-    with pytest.raises(InputError):
+    with pytest.raises(ParameterError, match=r"^labels must"):
         zone_table(net, labels)
 
 

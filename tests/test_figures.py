@@ -14,9 +14,12 @@ import numpy as np
 import pytest
 import scipy.linalg as la
 
+import specgraph
+import specgraph.diagnostics
+import specgraph.studies
+import specgraph.zones
 from specgraph import Network, gallery
 from specgraph._figures import (
-    LabelWording,
     check_labels,
     conductance,
     cut_and_volume,
@@ -26,7 +29,9 @@ from specgraph._figures import (
     relative_gap,
     zone_figures,
 )
-from specgraph.exceptions import InputError, ParameterError
+from specgraph.exceptions import ParameterError
+from specgraph.report._plots import zone_colours
+from specgraph.zones import ZoneConstraints
 
 
 def weighted_random_graph() -> nx.Graph:
@@ -172,25 +177,31 @@ def test_relative_gap_is_undefined_without_a_positive_next_eigenvalue() -> None:
 
 # ------------------------------------------------------------------ label check
 # The contract documented in check_labels (no outside oracle: these are its rules).
-WORDING = LabelWording(
-    shape="S {name} {n} {shape}", dtype="D {name} {dtype}", minimum="M {minimum}"
-)
-
-
 @pytest.mark.parametrize(
-    ("labels", "options", "pattern"),
+    ("labels", "options", "message"),
     [
-        ([0, 1], {"n_nodes": 3}, r"S labels 3 \(2,\)"),
-        ([[0, 1]], {}, r"S labels None \(1, 2\)"),
-        ([0.0, 1.0], {"name": "zones"}, "D zones float64"),
-        ([0, -1], {}, "M -1"),
-        ([0, -2], {"unassigned": True}, "M -2"),
+        ([0, 1], {"n_nodes": 3}, "labels must hold one zone per node (3); got shape (2,)."),
+        ([[0, 1]], {}, "labels must be one-dimensional; got shape (1, 2)."),
+        (
+            [0.0, 1.0],
+            {"name": "zones"},
+            "zones must hold integers, one zone number per node; got dtype float64.",
+        ),
+        ([0, -1], {}, "labels must hold zone numbers >= 0; got -1."),
+        (
+            [0, -2],
+            {"unassigned": True},
+            "labels must hold zone numbers >= 0, or -1 for unassigned; got -2.",
+        ),
     ],
     ids=["length", "two-dimensional", "float", "negative", "below-unassigned"],
 )
-def test_check_labels_refuses(labels: list, options: dict, pattern: str) -> None:
-    with pytest.raises(ParameterError, match=pattern):
-        check_labels(labels, wording=WORDING, **options)
+def test_check_labels_refuses(labels: list, options: dict, message: str) -> None:
+    with pytest.raises(ParameterError) as info:
+        check_labels(labels, **options)
+    assert str(info.value) == message
+    assert info.value.parameter == options.get("name", "labels")
+    assert info.value.received is labels
 
 
 def test_check_labels_accepts_and_converts() -> None:
@@ -201,5 +212,39 @@ def test_check_labels_accepts_and_converts() -> None:
     same = np.array([1, 0], dtype=np.int64)
     assert check_labels(same) is same
     assert check_labels(same, copy=True) is not same
-    with pytest.raises(InputError, match="one zone per node"):
-        check_labels([0], n_nodes=2, error=InputError)
+    assert check_labels(np.array([]), n_nodes=0).dtype == np.int64  # no label, no dtype
+
+
+def _every_label_taker(labels: np.ndarray) -> list:
+    """Each public function that takes labels of the 4-node path, called with ``labels``."""
+    net = gallery.path(4)
+    a = net.adjacency
+    good = np.array([0, 0, 1, 1])
+    return [
+        lambda: specgraph.zone_table(net, labels),
+        lambda: specgraph.score(net, labels, eigengap=False),
+        lambda: specgraph.diagnostics.check_labels(net, labels),
+        lambda: specgraph.diagnostics.robustness(net, labels=labels),
+        lambda: specgraph.compare(good, labels),
+        lambda: specgraph.zones.normalized_cut(a, labels),
+        lambda: specgraph.zones.refine_boundary(a, labels),
+        lambda: specgraph.zones.balance_sizes(a, labels, max_size=3),
+        lambda: specgraph.zones.enforce_constraints(a, labels, ZoneConstraints().resolve(net)),
+        lambda: specgraph.zones.constraint_violations(a, labels, ZoneConstraints().resolve(net)),
+        lambda: specgraph.studies.match_zones(good, labels),
+        lambda: zone_colours(net, labels),
+    ]
+
+
+@pytest.mark.parametrize(
+    "labels",
+    [np.array([0, 1, 1]), np.array([[0, 0, 1, 1]]), np.array([0.0, 0.0, 1.0, 1.0])],
+    ids=["short", "two-dimensional", "float"],
+)
+def test_every_function_refuses_bad_labels_alike(labels: np.ndarray) -> None:
+    # The same wrong labels meet the same check everywhere: one class, one argument.
+    for call in _every_label_taker(labels):
+        with pytest.raises(ParameterError) as info:
+            call()
+        assert info.value.parameter in ("labels", "labels_b")
+        assert info.value.received is labels

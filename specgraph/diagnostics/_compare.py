@@ -21,8 +21,8 @@ from scipy.sparse.csgraph import connected_components, min_weight_full_bipartite
 from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 
 from .. import _figures
-from .._figures import UNASSIGNED
-from ..exceptions import InputError, ParameterError
+from .._validation import Array, check_param, parameter_error
+from ..exceptions import InputError
 from ._score import EXAMPLES_SHOWN
 
 __all__ = [
@@ -174,17 +174,12 @@ def variation_of_information(counts: np.ndarray) -> float:
     return vi if vi > 0 else 0.0  # rounding can leave -0.0 or -1e-17 for identical zonings
 
 
-#: Messages of the label check of :func:`compare` (labels of any length).
-_WORDING = _figures.LabelWording(
-    shape="{name} must be one-dimensional; got shape {shape}.",
-    dtype="{name} must hold integer zone numbers; got dtype {dtype}.",
-    minimum=f"{{name}} must hold zone numbers >= 0, or {UNASSIGNED} for unassigned; "
-    "got {minimum}.",
-)
+#: What weights of :func:`compare` hold, after their count.
+_PER_NODE = "finite numbers >= 0, one per node"
 
 
 def _check_labels(labels: Any, name: str) -> np.ndarray:
-    return _figures.check_labels(labels, name=name, unassigned=True, wording=_WORDING)
+    return _figures.check_labels(labels, name=name, unassigned=True)
 
 
 def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
@@ -245,16 +240,13 @@ def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
     """
     a = _check_labels(labels_a, "labels_a")
     b = _check_labels(labels_b, "labels_b")
-    if a.shape != b.shape:
-        raise ParameterError(f"labels_b must have the length of labels_a ({a.size}); got {b.size}.")
+    if b.size != a.size:
+        expected = f"the length of labels_a ({a.size})"
+        raise parameter_error("labels_b", expected, labels_b, shown=str(b.size), verb="have")
     w = None
     if weights is not None:
-        w = np.asarray(weights, dtype=np.float64)
-        if w.shape != a.shape or not np.all(np.isfinite(w)) or (w.size and w.min() < 0):
-            raise ParameterError(
-                f"weights must hold {a.size} finite numbers >= 0, one per node; "
-                f"got shape {w.shape}."
-            )
+        one_per_node = Array("float", (a.size,), low=0, description=f"{a.size} {_PER_NODE}")
+        w = check_param(weights, "weights", [one_per_node], verb="hold")
     in_a, in_b = a >= 0, b >= 0
     return _compare_common(
         a[in_a & in_b],

@@ -48,9 +48,8 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
-from .._validation import check_choice, check_int, check_positive_float, check_rng
+from .._validation import check_choice, check_int, check_positive_float, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, smallest_eigenpairs
-from ..exceptions import ParameterError
 from ..network import Network
 from ..operators import laplacian
 from ._cuts import CutStructure, cut_structure
@@ -193,11 +192,11 @@ class Robustness:
             When an id is not a node, or the two ids are not linked.
         """
         index = {node: i for i, node in enumerate(self.node_ids.tolist())}
-        ends = [source] if target is None else [source, target]
-        missing = [str(e) for e in ends if str(e) not in index]
-        if missing:
-            raise ParameterError(f"node ids must be nodes of the network; got {missing!r}.")
-        rows = sorted(index[str(e)] for e in ends)
+        ends = {"source": source} if target is None else {"source": source, "target": target}
+        for name, end in ends.items():
+            if str(end) not in index:
+                raise parameter_error(name, "one of the network's node ids", end)
+        rows = sorted(index[str(e)] for e in ends.values())
         cuts = self.structure
         if target is None:
             return self.node_ids[cuts.node_cut_off(rows[0])]
@@ -205,8 +204,11 @@ class Robustness:
         keys = cuts.link_source * n + cuts.link_target
         where = int(np.searchsorted(keys, rows[0] * n + rows[1]))
         if where >= keys.size or keys[where] != rows[0] * n + rows[1]:
-            raise ParameterError(
-                f"source and target must be the ends of a link; got {source!r} and {target!r}."
+            raise parameter_error(
+                "source and target",
+                "the ends of a link",
+                (source, target),
+                shown=f"{source!r} and {target!r}",
             )
         return self.node_ids[cuts.link_cut_off(where)]
 
@@ -251,7 +253,7 @@ def robustness(
     ------
     ConvergenceError
         When an eigen-solve or a sketch solve misses its tolerance.
-    ParameterError, InputError
+    ParameterError
         For an option outside its domain or labels that do not fit.
 
     Notes

@@ -28,7 +28,18 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
-from .._validation import check_choice, check_int, check_positive_float, check_rng
+from .._validation import (
+    POSITIVE,
+    Constraint,
+    Interval,
+    NoneOk,
+    Options,
+    RandomState,
+    check_int,
+    check_param,
+    check_rng,
+    validate_params,
+)
 from ..exceptions import ConvergenceError
 from ..operators import GraphOperator
 from ._dense import solve_dense
@@ -150,6 +161,16 @@ def _auto_method(operator: GraphOperator, n: int, k: int) -> str:
     return chosen if chosen in _allowed_methods(operator) else "lanczos_flip"
 
 
+#: What the options of :func:`smallest_eigenpairs` accept (``k`` depends on the operator).
+_SOLVE_OPTIONS: dict[str, list[Constraint]] = {
+    "method": [Options(METHODS)],
+    "tol": [POSITIVE],
+    "maxiter": [Interval(int, 1, None), NoneOk()],
+    "rng": [RandomState()],
+}
+
+
+@validate_params(_SOLVE_OPTIONS)
 def smallest_eigenpairs(
     operator: GraphOperator,
     k: int,
@@ -212,11 +233,11 @@ def smallest_eigenpairs(
     """
     n = operator.shape[0]
     k = check_int(k, "k", minimum=1, maximum=n)
-    check_choice(method, "method", METHODS)
     if method != "auto":
-        check_choice(method, f"method for a {operator.kind!r} operator", _allowed_methods(operator))
-    tol = check_positive_float(tol, "tol")
-    maxiter = None if maxiter is None else check_int(maxiter, "maxiter", minimum=1)
+        allowed = Options(_allowed_methods(operator), f"a method for a {operator.kind!r} operator")
+        check_param(method, "method", [allowed])
+    tol = float(tol)
+    maxiter = None if maxiter is None else int(maxiter)
     generator = check_rng(rng)
     values, vectors, used, matvecs, iterations = _solve_components(
         operator, k, method, tol, maxiter, generator

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from .._validation import Boolean, Constraint, InstanceOf, NoneOk, check_params, parameter_error
 from ..exceptions import InputError, ParameterError
 from ..network import Network, affinity_from_distance
 
@@ -124,6 +125,10 @@ _SIZE = _Rule(
 )
 
 
+#: A frame argument (named by its type when refused).
+_FRAME = InstanceOf((pd.DataFrame,), "a pandas DataFrame", by_type=True)
+
+
 def _shown(value: Any) -> str:
     text = value if isinstance(value, str) else repr(value)
     if len(text) > MAX_SHOWN_CHARACTERS:
@@ -132,32 +137,35 @@ def _shown(value: Any) -> str:
 
 
 # ------------------------------------------------------------------ checks
+#: What the frames and the distance flag of :func:`network_from_frames` accept.
+_FRAMES: dict[str, list[Constraint]] = {
+    "edges": [_FRAME],
+    "nodes": [_FRAME, NoneOk()],
+    "distance": [Boolean()],
+}
+
+
 def _check_options(edges: Any, nodes: Any, columns: Columns) -> None:
-    if not isinstance(edges, pd.DataFrame):
-        raise ParameterError(f"edges must be a pandas DataFrame; got {type(edges).__name__}.")
-    if nodes is not None and not isinstance(nodes, pd.DataFrame):
-        raise ParameterError(f"nodes must be a pandas DataFrame; got {type(nodes).__name__}.")
-    if not isinstance(columns.distance, bool | np.bool_):
-        raise ParameterError(f"distance must be True or False; got {columns.distance!r}.")
-    if columns.source is None or columns.target is None or columns.node is None:
-        raise ParameterError("source, target and node must name columns; got None.")
+    """The frames and options, each alone, then the column names together."""
+    check_params({"edges": edges, "nodes": nodes, "distance": columns.distance}, _FRAMES)
+    for name in ("source", "target", "node"):
+        if getattr(columns, name) is None:
+            raise parameter_error(name, "a column name", None)
     if columns.source == columns.target:
-        raise ParameterError(
-            f"source and target must name two different columns; got {columns.source!r} twice."
-        )
+        expected = f"a column other than source ({columns.source!r})"
+        raise parameter_error("target", expected, columns.target)
     if columns.weight is not None and columns.weight in (columns.source, columns.target):
-        raise ParameterError(f"weight must not be a node id column; got {columns.weight!r}.")
+        expected = "a column other than the node id columns (source and target)"
+        raise parameter_error("weight", expected, columns.weight)
     node_columns = {"x": columns.x, "y": columns.y, "size": columns.size}
     given = [name for name, value in node_columns.items() if value is not None]
     if nodes is None and given:
-        raise ParameterError(
-            f"{given[0]} names a node-table column, so nodes must be given; got nodes=None."
-        )
+        expected = f"a node table when {given[0]} names one of its columns"
+        raise parameter_error("nodes", expected, None)
     if (columns.x is None) != (columns.y is None):
-        raise ParameterError(
-            f"x and y must be given together (both or neither); got x={columns.x!r}, "
-            f"y={columns.y!r}."
-        )
+        missing, other = ("y", "x") if columns.y is None else ("x", "y")
+        expected = f"a column name when {other} is given (coordinates need both x and y)"
+        raise parameter_error(missing, expected, None)
 
 
 def _require(frame: pd.DataFrame, origin: Origin, wanted: Mapping[str, Hashable | None]) -> None:

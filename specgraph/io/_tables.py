@@ -23,7 +23,8 @@ from typing import Any, Literal, TextIO
 
 import pandas as pd
 
-from ..exceptions import InputError, ParameterError
+from .._validation import Constraint, InstanceOf, NoneOk, check_param, parameter_error
+from ..exceptions import InputError
 from ..network import Network
 from ._frames import Columns, Origin, build_network
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
@@ -148,10 +149,22 @@ def _is_blank(line: str, delimiter: str) -> bool:
 
 
 # ----------------------------------------------------------------- files
+#: A file name argument.
+_PATH = InstanceOf((str, os.PathLike), "a str or os.PathLike")
+
+
+@dataclass(frozen=True)
+class _Delimiter(Constraint):
+    """One character that can separate fields (a quote or line break cannot)."""
+
+    description: str = "one character other than a quote or line break"
+
+    def accepts(self, value: Any) -> bool:
+        return isinstance(value, str) and len(value) == 1 and value not in '"\r\n'
+
+
 def _checked_path(path: Any) -> Path:
-    if not isinstance(path, str | os.PathLike):
-        raise ParameterError(f"path must be a str or os.PathLike; got {path!r}.")
-    path = Path(path)
+    path = Path(check_param(path, "path", [_PATH]))
     if not path.exists():
         raise InputError(_NO_FILE, path=path)
     if path.is_dir():
@@ -160,14 +173,7 @@ def _checked_path(path: Any) -> Path:
 
 
 def _checked_delimiter(delimiter: Any) -> str | None:
-    if delimiter is None:
-        return None
-    if not isinstance(delimiter, str) or len(delimiter) != 1 or delimiter in '"\r\n':
-        raise ParameterError(
-            f"delimiter must be None or one character other than a quote or line break; "
-            f"got {delimiter!r}."
-        )
-    return delimiter
+    return check_param(delimiter, "delimiter", [NoneOk(), _Delimiter()])
 
 
 def _unreadable(path: Path, exc: OSError) -> InputError:
@@ -386,9 +392,12 @@ def _load_graphml(path: Any, nodes: Any) -> tuple[_Table, _Table | None]:
     """The edge and node tables of a GraphML file (which holds both)."""
     checked = _checked_path(path)
     if nodes is not None:
-        raise ParameterError(
-            f"nodes: a GraphML file holds its own nodes, so no separate node table can be "
-            f"given; received nodes={str(nodes)!r} with the GraphML file {str(checked)!r}"
+        raise parameter_error(
+            "nodes",
+            "left out with a GraphML file (it holds its own nodes, so no separate node "
+            "table can be given)",
+            nodes,
+            shown=f"{str(nodes)!r} with the GraphML file {str(checked)!r}",
         )
     try:
         tables = read_graphml(checked)

@@ -62,9 +62,8 @@ from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch
 
-from .._figures import HIGH_GAP, MEDIUM_GAP, LabelWording, check_labels
-from .._validation import check_choice, check_int
-from ..exceptions import ParameterError
+from .._figures import HIGH_GAP, MEDIUM_GAP, check_labels
+from .._validation import NodeIds, check_choice, check_int, check_param, parameter_error
 from ..network import Network
 
 if TYPE_CHECKING:
@@ -191,14 +190,6 @@ def _zone_pairs(network: Network, labels: np.ndarray) -> np.ndarray:
     return np.unique(pairs, axis=0) if pairs.size else pairs.reshape(0, 2)
 
 
-#: Messages of the label check of :func:`zone_colours` (labels are cast to int64 first).
-_COLOUR_WORDING = LabelWording(
-    shape="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-    dtype="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-    minimum="{name} must hold one zone number >= 0 per node ({n}); got shape {shape}.",
-)
-
-
 def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     """Colour zones from :data:`PALETTE` so that neighbouring zones differ.
 
@@ -236,9 +227,7 @@ def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     >>> zone_colours(net, np.array([0, 0, 1, 1])).colours == PALETTE[:2]
     True
     """
-    labels = check_labels(
-        np.asarray(labels, dtype=np.int64), n_nodes=network.n_nodes, wording=_COLOUR_WORDING
-    )
+    labels = check_labels(labels, n_nodes=network.n_nodes)
     k = int(labels.max()) + 1 if labels.size else 0
     p = len(PALETTE)
     if k <= p:
@@ -528,9 +517,11 @@ def _draw_sources(axes: Axes, network: Network, sources: Sequence[str]) -> int:
     rows = [index[s] for s in sources if s in index]
     unknown = [s for s in sources if s not in index]
     if unknown:
-        raise ParameterError(
-            f"sources must be node ids of the network; got {len(unknown)} unknown, "
-            f"for example {unknown[0]!r}."
+        raise parameter_error(
+            "sources",
+            "node ids of the network",
+            unknown,
+            shown=f"{len(unknown)} unknown, for example {unknown[0]!r}",
         )
     xy = network.coordinates
     assert xy is not None
@@ -549,9 +540,12 @@ def _draw_sources(axes: Axes, network: Network, sources: Sequence[str]) -> int:
 
 def _coordinates(network: Network) -> np.ndarray:
     if network.coordinates is None:
-        raise ParameterError(
-            "network must have node coordinates for a map; got a network without them "
-            "(read a node table with x and y columns)."
+        raise parameter_error(
+            "zoning",
+            "a zoning of a network with node coordinates for a map (read a node table with "
+            "x and y columns)",
+            network,
+            shown="a zoning of a network without them",
         )
     return network.coordinates
 
@@ -607,6 +601,7 @@ def zone_map_figure(
     :data:`LABEL_ZONES_MAX` zones) to tell apart distant zones of one colour.
     """
     network = zoning.network
+    sources = check_param(sources, "sources", [NodeIds()])
     xy = _coordinates(network)
     cells = check_int(cells, "cells", minimum=1)
     detail = _detail(network, raster_above, aggregate_above)
@@ -802,8 +797,9 @@ def stability_figure(
     network = zoning.network
     nodes = stability.nodes
     if len(nodes) != network.n_nodes:
-        raise ParameterError(
-            f"stability must have one row per node ({network.n_nodes}); got {len(nodes)} rows."
+        expected = f"one row per node ({network.n_nodes})"
+        raise parameter_error(
+            "stability", expected, stability, shown=f"{len(nodes)} rows", verb="have"
         )
     if network.coordinates is None:
         return _stability_bars(stability.zones)

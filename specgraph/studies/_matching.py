@@ -12,7 +12,7 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.optimize import linear_sum_assignment
 
-from ..exceptions import ParameterError
+from .._figures import check_labels
 
 __all__ = ["ZoneMatch", "match_zones"]
 
@@ -59,21 +59,20 @@ def match_zones(reference: np.ndarray, labels: np.ndarray) -> ZoneMatch:
     -------
     ZoneMatch
 
+    Raises
+    ------
+    ParameterError
+        From the one label check (:func:`specgraph._figures.check_labels`):
+        labels that are not one integer zone ``>= 0`` per node of ``reference``.
+
     Examples
     --------
     >>> m = match_zones(np.array([0, 0, 0, 1, 1, 2]), np.array([1, 1, 0, 0, 0, 0]))
     >>> m.mapping.tolist(), m.stayed.tolist()
     ([1, 0, -1], [True, True, False, True, True, False])
     """
-    reference = np.asarray(reference, dtype=np.int64)
-    labels = np.asarray(labels, dtype=np.int64)
-    if reference.shape != labels.shape or reference.ndim != 1:
-        raise ParameterError(
-            f"labels must have the shape of reference {reference.shape}; got {labels.shape}."
-        )
-    for name, values in (("reference", reference), ("labels", labels)):
-        if values.size and values.min() < 0:
-            raise ParameterError(f"{name} must hold zones >= 0; got {values.min()}.")
+    reference = check_labels(reference, name="reference")
+    labels = check_labels(labels, n_nodes=reference.size)
     k_ref = int(reference.max()) + 1 if reference.size else 0
     k_run = int(labels.max()) + 1 if labels.size else 0
     table = np.bincount(reference * k_run + labels, minlength=k_ref * k_run)

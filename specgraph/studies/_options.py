@@ -15,17 +15,47 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass, fields
 from typing import Any
 
-from .._validation import check_choice, check_int, check_positive_float
+from .._validation import (
+    OPEN_UNIT,
+    POSITIVE,
+    Boolean,
+    Constraint,
+    InstanceOf,
+    Interval,
+    IsCallable,
+    NoneOk,
+    Options,
+    check_param,
+    check_params,
+    parameter_error,
+)
 from ..eigen import DEFAULT_TOL, METHODS
-from ..exceptions import ParameterError
-from ..walks import DEFAULT_DAMPING, check_damping
+from ..walks import DEFAULT_DAMPING
 from ..zones import ASSIGNMENTS, OPERATOR_KINDS, TREE_TREATMENTS, ZoneConstraints
 
-__all__ = ["RESERVED_OPTIONS", "ZoningOptions"]
+__all__ = ["RESERVED_OPTIONS", "ZONING_CONSTRAINTS", "ZoningOptions"]
 
 #: ``find_zones`` arguments a study sets itself for every run; a mapping of
 #: options may not hold them.
 RESERVED_OPTIONS = ("network", "zones", "rng")
+
+#: What each keyword option of :func:`~specgraph.find_zones` accepts, as a
+#: table: the checks :func:`~specgraph.find_zones` makes, word for word.
+ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
+    "operator": [Options(("auto", *OPERATOR_KINDS))],
+    "assign": [Options(("auto", *ASSIGNMENTS))],
+    "trees": [Options(("auto", *TREE_TREATMENTS))],
+    "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
+    "refine": [Boolean()],
+    "eigen_method": [Options(METHODS)],
+    "tol": [POSITIVE],
+    "maxiter": [Interval(int, 1, None), NoneOk()],
+    "damping": [OPEN_UNIT],
+    "progress": [IsCallable(), NoneOk()],
+}
+
+#: What a study's options argument may be.
+_MAPPING = InstanceOf((Mapping,), "a ZoningOptions or a dict of find_zones options")
 
 
 @dataclass(frozen=True)
@@ -75,22 +105,7 @@ class ZoningOptions:
 
     def __post_init__(self) -> None:
         # The values are checked, not converted: find_zones receives them as given.
-        check_choice(self.operator, "operator", ("auto", *OPERATOR_KINDS))
-        check_choice(self.assign, "assign", ("auto", *ASSIGNMENTS))
-        check_choice(self.trees, "trees", ("auto", *TREE_TREATMENTS))
-        check_choice(self.eigen_method, "eigen_method", METHODS)
-        if not isinstance(self.refine, bool):
-            raise ParameterError(f"refine must be True or False; got {self.refine!r}.")
-        if self.constraints is not None and not isinstance(self.constraints, ZoneConstraints):
-            raise ParameterError(
-                f"constraints must be a ZoneConstraints or None; got {self.constraints!r}."
-            )
-        check_positive_float(self.tol, "tol")
-        if self.maxiter is not None:
-            check_int(self.maxiter, "maxiter", minimum=1)
-        check_damping(self.damping)
-        if self.progress is not None and not callable(self.progress):
-            raise ParameterError(f"progress must be callable or None; got {self.progress!r}.")
+        check_params({name: getattr(self, name) for name in self.names()}, ZONING_CONSTRAINTS)
 
     @classmethod
     def names(cls) -> tuple[str, ...]:
@@ -126,23 +141,18 @@ class ZoningOptions:
             return cls()
         if isinstance(options, ZoningOptions):
             return options
-        if not isinstance(options, Mapping):
-            raise ParameterError(
-                f"{argument} must be a ZoningOptions or a dict of find_zones options; "
-                f"got {options!r}."
-            )
+        check_param(options, argument, [_MAPPING])
         allowed = sorted(cls.names())
         for key in options:
             if key in RESERVED_OPTIONS:
-                raise ParameterError(
-                    f"{argument} must not hold {key!r} ({caller} sets it itself); "
-                    f"got {argument} with keys {sorted(options)}."
+                raise parameter_error(
+                    argument,
+                    f"{key!r} ({caller} sets it itself)",
+                    options,
+                    shown=f"{argument} with keys {sorted(options)}",
+                    verb="not hold",
                 )
-            if key not in allowed:
-                raise ParameterError(
-                    f"{argument} keys must be find_zones options ({', '.join(allowed)}); "
-                    f"got {key!r}."
-                )
+            check_param(key, f"{argument} keys", [Options(allowed, "find_zones options")])
         return cls(**options)
 
     def keywords(self) -> dict[str, Any]:

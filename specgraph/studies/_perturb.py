@@ -15,8 +15,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.linalg import ArpackNoConvergence, LinearOperator, eigsh
 
-from .._validation import check_positive_float, check_rng
-from ..exceptions import ConvergenceError, ParameterError
+from .._validation import check_positive_float, check_rng, parameter_error
+from ..exceptions import ConvergenceError
 from ..network import Network
 from ..operators import laplacian
 
@@ -151,10 +151,9 @@ def perturbation_norm(
     0.0
     """
     if perturbed.n_nodes != network.n_nodes:
-        raise ParameterError(
-            f"perturbed must have the {network.n_nodes} nodes of network; "
-            f"got {perturbed.n_nodes} nodes."
-        )
+        expected = f"the {network.n_nodes} nodes of network"
+        shown = f"{perturbed.n_nodes} nodes"
+        raise parameter_error("perturbed", expected, perturbed, shown=shown, verb="have")
     before = laplacian(network, kind=kind)  # type: ignore[arg-type]
     after = laplacian(perturbed, kind=kind)  # type: ignore[arg-type]
     n = network.n_nodes

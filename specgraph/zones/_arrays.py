@@ -12,7 +12,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.optimize import linear_sum_assignment
 
-from ..exceptions import ParameterError
+from .._figures import check_labels
+from .._validation import SquareMatrix, check_param
 
 __all__ = [
     "DIRECT_COUNT_FACTOR",
@@ -37,21 +38,12 @@ DIRECT_COUNT_FACTOR = 8
 
 def as_csr(adjacency: Any) -> sp.csr_array:
     """The adjacency as a float64 CSR array, after checking it is square."""
-    matrix = sp.csr_array(adjacency, dtype=np.float64)
-    if matrix.shape[0] != matrix.shape[1]:
-        raise ParameterError(f"adjacency must be square; got shape {matrix.shape}.")
-    return matrix
+    return check_param(adjacency, "adjacency", [SquareMatrix(sparse_only=False)])
 
 
 def checked_labels(labels: Any, n: int) -> np.ndarray:
-    """Labels as int64, after checking there are ``n`` of them, integers ``>= 0``."""
-    array = np.asarray(labels)
-    if array.shape != (n,) or (n and (array.dtype.kind not in "iu" or array.min() < 0)):
-        raise ParameterError(
-            f"labels must be {n} integers >= 0, one per node; got shape {array.shape}, "
-            f"dtype {array.dtype}."
-        )
-    return array.astype(np.int64)
+    """Labels as int64, after the one label check: ``n`` of them, integers ``>= 0``."""
+    return check_labels(labels, n_nodes=n, copy=True)
 
 
 def first_of_groups(keys: np.ndarray) -> np.ndarray:

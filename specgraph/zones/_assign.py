@@ -21,9 +21,8 @@ import numpy as np
 import pandas as pd
 import scipy.linalg as sla
 
-from .._validation import check_int, check_rng
+from .._validation import Array, NoneOk, check_int, check_param, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, smallest_eigenpairs
-from ..exceptions import ParameterError
 from ..network import Network
 from ..operators import laplacian
 from ._sweep import sweep_cut
@@ -114,17 +113,19 @@ def kmeans_labels(points: np.ndarray, k: int, rng: np.random.Generator) -> np.nd
 
 
 # --------------------------------------------------------------- pivoted QR
+#: The embedding columns an assignment reads.
+_FINITE = Array("float", description="finite numbers")
+
+
 def _checked_block(vectors: Any, k: Any) -> tuple[np.ndarray, int]:
     block = np.asarray(vectors, dtype=np.float64)
     if block.ndim != 2 or block.shape[0] < 1:
-        raise ParameterError(
-            f"vectors must be a 2-d array of shape (n, m) with n >= 1; got shape {block.shape}."
-        )
+        expected = "a 2-d array of shape (n, m) with n >= 1"
+        raise parameter_error("vectors", expected, vectors, shown=f"shape {block.shape}")
     n, m = block.shape
     k = check_int(k, "k", minimum=1, maximum=min(n, m))
-    if not np.all(np.isfinite(block[:, :k])):
-        raise ParameterError("vectors must hold finite numbers; got NaN or infinity.")
-    return block[:, :k], k
+    # Only the k columns used must be finite.
+    return check_param(block[:, :k], "vectors", [_FINITE], verb="hold"), k
 
 
 def _sampled_rows(block: np.ndarray, rng: Any) -> np.ndarray:
@@ -136,7 +137,8 @@ def _sampled_rows(block: np.ndarray, rng: Any) -> np.ndarray:
     weight = np.einsum("ij,ij->i", block, block)
     total = float(weight.sum())
     if total <= 0:
-        raise ParameterError("vectors must have at least one non-zero row; got all zeros.")
+        expected = "at least one non-zero row"
+        raise parameter_error("vectors", expected, block, shown="all zeros", verb="have")
     picked = check_rng(rng).choice(n, size=draws, replace=True, p=weight / total)
     return np.unique(picked)
 
@@ -468,15 +470,12 @@ def recursive_bisection(
     n = network.n_nodes
     k = check_int(k, "k", minimum=1, maximum=max(n, 1))
     if n == 0:
-        raise ParameterError("network must have at least one node; got an empty network.")
-    if sizes is None:
+        raise parameter_error(
+            "network", "at least one node", network, shown="an empty network", verb="have"
+        )
+    weights = check_param(sizes, "sizes", [Array("float", (n,), low=0), NoneOk()])
+    if weights is None:
         weights = np.asarray(network.node_weights, dtype=np.float64)
-    else:
-        weights = np.asarray(sizes, dtype=np.float64)
-        if weights.shape != (n,) or not np.all(np.isfinite(weights)) or np.any(weights < 0):
-            raise ParameterError(
-                f"sizes must be {n} finite numbers >= 0; got an array of shape {weights.shape}."
-            )
     generator = check_rng(rng)
     groups = [np.arange(n, dtype=np.int64)]
     cuts = []
@@ -663,9 +662,8 @@ def choose_assignment(
     k = check_int(k, "k", minimum=2)
     spectrum = np.asarray(values, dtype=np.float64).ravel()
     if spectrum.size <= k:
-        raise ParameterError(
-            f"values must hold at least k + 1 = {k + 1} eigenvalues; got {spectrum.size}."
-        )
+        expected = f"at least k + 1 = {k + 1} eigenvalues"
+        raise parameter_error("values", expected, values, shown=str(spectrum.size), verb="hold")
     following = float(spectrum[k])
     if k == 2:
         reason = (

@@ -11,11 +11,10 @@ from typing import Any
 import numpy as np
 from scipy.sparse.csgraph import connected_components
 
-from ..exceptions import ParameterError
 from ._arrays import as_csr, checked_labels, pair_totals
 from ._balance import SIZE_RTOL
 from ._connectivity import pieces_per_zone
-from ._rules import ResolvedConstraints
+from ._rules import ResolvedConstraints, check_coverage
 
 __all__ = ["constraint_violations"]
 
@@ -43,8 +42,7 @@ def constraint_violations(
     matrix = as_csr(adjacency)
     c = constraints
     labels = checked_labels(labels, matrix.shape[0])
-    if c.n_nodes != labels.size:
-        raise ParameterError(f"constraints must cover {labels.size} nodes; got {c.n_nodes}.")
+    check_coverage(c, labels.size)
     out: list[str] = []
     k = int(labels.max()) + 1 if labels.size else 0
     pieces = pieces_per_zone(matrix, labels, k) if c.connected else None

@@ -76,8 +76,20 @@ import scipy.sparse as sp
 from scipy.optimize import linprog
 from scipy.sparse.csgraph import connected_components
 
-from .._validation import check_int
-from ..exceptions import ParameterError
+from .._figures import check_labels
+from .._validation import (
+    NON_NEGATIVE,
+    Array,
+    Boolean,
+    Constraint,
+    Interval,
+    IsCallable,
+    NoneOk,
+    SquareMatrix,
+    check_param,
+    parameter_error,
+    validate_params,
+)
 from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, edge_rows
 from ._transfers import TOO_BIG, WHY, realize
 
@@ -313,39 +325,23 @@ def _infeasible(
 def _checked(
     adjacency: Any, labels: Any, sizes: Any, movable: Any
 ) -> tuple[sp.csr_array, np.ndarray, np.ndarray, np.ndarray]:
-    if not sp.issparse(adjacency) or adjacency.shape[0] != adjacency.shape[1]:
-        raise ParameterError(
-            "adjacency must be a square scipy sparse matrix; got "
-            f"{type(adjacency).__name__} of shape {getattr(adjacency, 'shape', None)}."
-        )
-    a = sp.csr_array(adjacency, dtype=np.float64)
+    """The arrays of :func:`balance_sizes`, checked against the node count."""
+    a = check_param(adjacency, "adjacency", [SquareMatrix()])
     n = a.shape[0]
-    zones = np.asarray(labels)
-    if zones.shape != (n,) or (n and (zones.dtype.kind not in "iu" or zones.min() < 0)):
-        raise ParameterError(
-            f"labels must be {n} integers >= 0; got shape {zones.shape}, dtype {zones.dtype}."
-        )
-    node_sizes = np.ones(n) if sizes is None else np.asarray(sizes, dtype=np.float64)
-    if node_sizes.shape != (n,) or not np.all(np.isfinite(node_sizes)) or np.any(node_sizes < 0):
-        raise ParameterError(
-            f"sizes must be {n} finite numbers >= 0; got shape {node_sizes.shape}."
-        )
-    free = np.ones(n, dtype=bool) if movable is None else np.asarray(movable)
-    if free.shape != (n,) or free.dtype != np.bool_:
-        raise ParameterError(
-            f"movable must be {n} booleans; got shape {free.shape}, dtype {free.dtype}."
-        )
-    return a, zones.astype(np.int64), node_sizes, free
+    zones = check_labels(labels, n_nodes=n, copy=True)  # moves change the copy only
+    node_sizes = check_param(sizes, "sizes", [Array("float", (n,), low=0), NoneOk()])
+    free = check_param(movable, "movable", [Array("bool", (n,)), NoneOk()])
+    node_sizes = np.ones(n) if node_sizes is None else node_sizes
+    free = np.ones(n, dtype=bool) if free is None else free
+    return a, zones, node_sizes, free
 
 
 def _targets(sizes: np.ndarray, low: Any, high: Any) -> tuple[float, float, bool]:
     """Bounds of the plan; whole numbers when every node size is one (exact transfers)."""
     lo = 0.0 if low is None else float(low)
     hi = math.inf if high is None else float(high)
-    if not lo <= hi or lo < 0:
-        raise ParameterError(
-            f"min_size and max_size must satisfy 0 <= min_size <= max_size; got {low!r}, {high!r}."
-        )
+    if lo > hi:
+        raise parameter_error("min_size", "<= max_size", low, shown=f"{lo:g} > {hi:g}")
     exact = bool(np.all(sizes == np.round(sizes)))
     if exact:
         lo = float(math.ceil(lo * (1 - SIZE_RTOL)))
@@ -366,6 +362,18 @@ def _margin(sizes: np.ndarray, low: float, high: float) -> float:
     return min(largest, PLAN_MARGIN_SHARE * (high - low))
 
 
+#: What the options of :func:`balance_sizes` accept (its arrays are checked
+#: against the node count in the body).
+_BALANCE_OPTIONS: dict[str, list[Constraint]] = {
+    "min_size": [NON_NEGATIVE, NoneOk()],
+    "max_size": [NON_NEGATIVE, NoneOk()],
+    "connected": [Boolean()],
+    "max_rounds": [Interval(int, 0, None)],
+    "name": [IsCallable(), NoneOk()],
+}
+
+
+@validate_params(_BALANCE_OPTIONS)
 def balance_sizes(
     adjacency: Any,
     labels: Any,
@@ -441,7 +449,7 @@ def balance_sizes(
     """
     a, current, node_sizes, free = _checked(adjacency, labels, sizes, movable)
     low, high, exact = _targets(node_sizes, min_size, max_size)
-    max_rounds = check_int(max_rounds, "max_rounds", minimum=0)
+    max_rounds = int(max_rounds)
     label = name if name is not None else (lambda z: f"zone {z}")
     n = current.size
     k = int(current.max()) + 1 if n else 0

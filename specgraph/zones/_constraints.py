@@ -50,7 +50,7 @@ from typing import Any
 import numpy as np
 
 from .._validation import check_rng
-from ..exceptions import ConstraintError, ParameterError
+from ..exceptions import ConstraintError
 from ._arrays import (
     DIRECT_COUNT_FACTOR,
     MATCH_MAX_CELLS,
@@ -66,7 +66,7 @@ from ._balance import SIZE_RTOL
 from ._contract import Contraction, contract_constraints, contract_links
 from ._feasible import check_feasible
 from ._repair import force_pinned, repair
-from ._rules import NAMES_SHOWN, ResolvedConstraints, ZoneConstraints
+from ._rules import NAMES_SHOWN, ResolvedConstraints, ZoneConstraints, check_coverage
 from ._sizes import (
     FIEDLER_LANCZOS_NODES,
     FIEDLER_TOL,
@@ -164,8 +164,7 @@ def enforce_constraints(
     matrix = as_csr(adjacency)
     n = matrix.shape[0]
     start = checked_labels(labels, n)
-    if constraints.n_nodes != n:
-        raise ParameterError(f"constraints must cover {n} nodes; got {constraints.n_nodes}.")
+    check_coverage(constraints, n)
     if n == 0:
         return Enforcement(start, (), 0)
     contraction = contract_links(matrix, constraints.keep_pairs)

@@ -15,7 +15,8 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import breadth_first_order, connected_components
 
-from ..exceptions import ConstraintError, ParameterError
+from .._validation import parameter_error
+from ..exceptions import ConstraintError
 from ._arrays import as_csr
 from ._rules import ResolvedConstraints
 
@@ -70,7 +71,7 @@ def contract_links(adjacency: Any, pairs: Any) -> Contraction:
     n = matrix.shape[0]
     pairs = np.asarray(pairs, dtype=np.int64).reshape(-1, 2)
     if pairs.size and (pairs.min() < 0 or pairs.max() >= n):
-        raise ParameterError(f"pairs must hold row indices in [0, {n}); got {pairs.tolist()}.")
+        raise parameter_error("pairs", f"row indices in [0, {n})", pairs.tolist(), verb="hold")
     if pairs.size == 0:
         return Contraction(np.arange(n, dtype=np.int64), matrix)
     count, groups = connected_components(_pair_graph(pairs, n), directed=False)

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from .._figures import HIGH_GAP, MEDIUM_GAP, relative_gap
-from .._validation import check_int
+from .._validation import Array, Constraint, check_int, check_param, parameter_error
 from ..exceptions import ParameterError
 
 __all__ = [
@@ -189,19 +189,33 @@ def _confidence(table: pd.DataFrame, best: int) -> str:
     return "low"
 
 
+@dataclass(frozen=True)
+class _CountRange(Constraint):
+    """Zone counts to choose among: a non-empty range of counts >= 1."""
+
+    description: str = "a non-empty range of zone counts >= 1"
+
+    def accepts(self, value: Any) -> bool:
+        return isinstance(value, range) and len(value) > 0 and min(value) >= 1
+
+
+_COUNTS = _CountRange()
+
+#: The spectrum a count is read from.
+_SPECTRUM = Array("float", (None,), description="a 1-d array of at least 2 finite eigenvalues")
+
+
 def _checked_candidates(candidates: Any, values: np.ndarray, c: int) -> list[int]:
     if candidates is None:
         top = min(DEFAULT_MAX_ZONES, values.size - 1)
         return list(range(c + 1, top + 1))
-    if not isinstance(candidates, range) or len(candidates) == 0 or min(candidates) < 1:
-        raise ParameterError(
-            f"candidates must be a non-empty range of zone counts >= 1; got {candidates!r}."
-        )
+    check_param(candidates, "candidates", [_COUNTS])
     if max(candidates) >= values.size:
-        raise ParameterError(
-            f"values must hold at least {max(candidates) + 1} eigenvalues to rank counts up to "
-            f"{max(candidates)} (each needs the next eigenvalue); got {values.size}."
+        expected = (
+            f"at least {max(candidates) + 1} eigenvalues to rank counts up to "
+            f"{max(candidates)} (each needs the next eigenvalue)"
         )
+        raise parameter_error("values", expected, values, shown=str(values.size), verb="hold")
     return sorted(k for k in candidates if k > c)
 
 
@@ -283,12 +297,10 @@ def choose_zone_count(
     >>> count.evidence[["zones", "relative_gap"]].round(2).to_numpy().tolist()
     [[2.0, 0.33], [3.0, 0.25], [4.0, 0.92], [5.0, 0.09], [6.0, 0.08]]
     """
-    spectrum = np.asarray(values, dtype=np.float64)
-    if spectrum.ndim != 1 or spectrum.size < 2 or not np.all(np.isfinite(spectrum)):
-        raise ParameterError(
-            "values must be a 1-d array of at least 2 finite eigenvalues; "
-            f"got shape {spectrum.shape}."
-        )
+    spectrum = check_param(values, "values", [_SPECTRUM])
+    if spectrum.size < 2:
+        shown = f"shape {spectrum.shape}"
+        raise parameter_error("values", _SPECTRUM.description, values, shown=shown)
     spectrum = np.sort(spectrum)
     c = check_int(n_components, "n_components", minimum=1, maximum=spectrum.size)
     ks = _checked_candidates(candidates, spectrum, c)
@@ -339,7 +351,7 @@ def choose_zone_count(
     return ZoneCount(ks[best], table, confidence, reason)
 
 
-#: What ``--zones`` accepts, for the error message.
+#: What a zone count written as text may be, for the error message.
 _ZONE_SPEC = (
     "a number of zones such as 12, 'auto', or a range LOW:HIGH such as 8:20 "
     "(inclusive, 2 <= LOW <= HIGH)"
@@ -347,7 +359,10 @@ _ZONE_SPEC = (
 
 
 def parse_zone_spec(text: str) -> int | Literal["auto"] | range:
-    """Read the ``--zones`` option: ``"12"``, ``"auto"`` or ``"8:20"``.
+    """Read a zone count written as text: ``"12"``, ``"auto"`` or ``"8:20"``.
+
+    The text form of the ``zones`` argument of :func:`~specgraph.find_zones`
+    (the command line's option takes the same text).
 
     Returns
     -------
@@ -357,7 +372,8 @@ def parse_zone_spec(text: str) -> int | Literal["auto"] | range:
     Raises
     ------
     ParameterError
-        Naming ``--zones``, what it accepts and what it received.
+        Naming ``zones``, what it accepts and what it received (the command
+        line puts its option name in front of the same words).
 
     Examples
     --------
@@ -366,7 +382,7 @@ def parse_zone_spec(text: str) -> int | Literal["auto"] | range:
     """
 
     def fail(detail: str = "") -> ParameterError:
-        return ParameterError(f"--zones must be {_ZONE_SPEC}{detail}; got {text!r}.")
+        return parameter_error("zones", f"{_ZONE_SPEC}{detail}", text)
 
     if not isinstance(text, str):
         raise fail()

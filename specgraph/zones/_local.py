@@ -42,8 +42,17 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._validation import check_positive_float
-from ..exceptions import InputError, ParameterError
+from .._validation import (
+    OPEN_UNIT,
+    POSITIVE,
+    Constraint,
+    NodeIds,
+    NoneOk,
+    check_param,
+    parameter_error,
+    validate_params,
+)
+from ..exceptions import InputError
 from ..network import Network
 
 __all__ = [
@@ -207,6 +216,7 @@ def _row(network: Network, u: int) -> tuple[np.ndarray, np.ndarray]:
     return adjacency.indices[a:b], adjacency.data[a:b]
 
 
+@validate_params({"alpha": [OPEN_UNIT], "epsilon": [POSITIVE]})
 def personalized_push(
     network: Network, seeds: Iterable[int], *, alpha: float, epsilon: float
 ) -> PushResult:
@@ -283,12 +293,9 @@ def acl_sweep_bound(alpha: float, delta: float, n_links: int) -> float:
 
 
 def _seed_rows(network: Network, around: Any) -> list[int]:
-    ids = [around] if isinstance(around, (str, int, np.integer)) else list(around)
-    if not ids:
-        raise ParameterError("around must name at least one node; got an empty list.")
     rows = []
-    for node in ids:
-        index = network.index_of.get(str(node))
+    for node in check_param(around, "around", [_AROUND]):
+        index = network.index_of.get(node)
         if index is None:
             raise InputError(
                 f"around names node {str(node)!r}, which is not in the network; "
@@ -309,6 +316,20 @@ def _epsilon(network: Network, size_limit: float | None, alpha: float) -> float:
     return 1.0 / (EPSILON_VOLUME_FACTOR * max(nodes, 1.0) * mean_degree)
 
 
+#: The assets a local zone grows around: one id, or several.
+_AROUND = NodeIds(single=True, minimum=1)
+
+#: What the arguments of :func:`local_zone` accept (whether the ids are nodes
+#: with links depends on the network: checked in the body).
+_LOCAL_OPTIONS: dict[str, list[Constraint]] = {
+    "around": [_AROUND],
+    "size_limit": [POSITIVE, NoneOk()],
+    "alpha": [OPEN_UNIT],
+    "epsilon": [POSITIVE, NoneOk()],
+}
+
+
+@validate_params(_LOCAL_OPTIONS)
 def local_zone(
     network: Network,
     around: Any,
@@ -394,19 +415,18 @@ def local_zone(
     >>> sorted(zone.nodes.tolist()), round(zone.conductance, 4)
     (['0', '1', '2', '3', '4'], 0.0476)
     """
-    alpha = check_positive_float(alpha, "alpha")
-    if not alpha < 1.0:
-        raise ParameterError(f"alpha must be a number in (0, 1); got {alpha!r}.")
-    if size_limit is not None:
-        size_limit = check_positive_float(size_limit, "size_limit")
-    if epsilon is not None:
-        epsilon = check_positive_float(epsilon, "epsilon")
+    alpha = float(alpha)
+    size_limit = None if size_limit is None else float(size_limit)
+    epsilon = None if epsilon is None else float(epsilon)
     seeds = _seed_rows(network, around)
     for u in seeds:
         if network.adjacency.indptr[u + 1] == network.adjacency.indptr[u]:
-            raise ParameterError(
-                f"around: node {network.node_ids[u]!r} has no links, so no zone can grow "
-                "around it; choose a connected asset"
+            raise parameter_error(
+                "around",
+                "ids of nodes with links (no zone can grow around a node without any; "
+                "choose a connected asset)",
+                around,
+                shown=f"node {network.node_ids[u]!r}, which has none",
             )
     eps = _epsilon(network, size_limit, alpha) if epsilon is None else epsilon
     push = personalized_push(network, seeds, alpha=alpha, epsilon=eps)
@@ -414,11 +434,12 @@ def local_zone(
     profile = _sweep(network, push, seeds, size_limit, total_volume)
     eligible = profile[profile["eligible"]]
     if eligible.empty:
-        raise ParameterError(
-            f"size_limit={size_limit!r} is smaller than any zone holding every asset of "
-            f"around (the smallest along the sweep has size "
-            f"{float(profile.loc[profile['seeded'], 'size'].min()):g})"
+        smallest = float(profile.loc[profile["seeded"], "size"].min())
+        expected = (
+            "at least the size of some zone holding every asset of around (the smallest "
+            f"along the sweep has size {smallest:g})"
         )
+        raise parameter_error("size_limit", expected, size_limit)
     best = int(eligible["conductance"].to_numpy().argmin())
     row = eligible.iloc[best]
     stop = int(eligible.index[best]) + 1

@@ -61,17 +61,27 @@ from __future__ import annotations
 
 import logging
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
-from .._figures import LabelWording, check_labels, cut_and_volume
+from .._figures import check_labels, cut_and_volume
 from .._figures import normalized_cut as figures_normalized_cut
-from .._validation import check_int, check_rng
-from ..exceptions import ParameterError
-from ._arrays import as_csr
+from .._validation import (
+    NON_NEGATIVE,
+    Array,
+    Constraint,
+    Interval,
+    NoneOk,
+    RandomState,
+    SquareMatrix,
+    check_param,
+    check_rng,
+    parameter_error,
+    validate_params,
+)
 from ._connectivity import CONNECTIVITY_SEARCH_LIMIT, stays_connected, two_zone_weights
 from ._heap import HEAP_START, heap_pop, heap_push
 
@@ -143,24 +153,12 @@ class Refinement:
 
 
 def _csr(adjacency: Any) -> sp.csr_array:
-    if not sp.issparse(adjacency):
-        raise ParameterError(
-            f"adjacency must be a scipy sparse matrix; got {type(adjacency).__name__}."
-        )
-    return as_csr(adjacency)
-
-
-#: Messages of the label check of refinement and :func:`normalized_cut`.
-_WORDING = LabelWording(
-    shape="{name} must have shape ({n},); got shape {shape}.",
-    dtype="{name} must be integers >= 0; got dtype {dtype}.",
-    minimum="{name} must be integers >= 0; got dtype {dtype}.",
-)
+    return check_param(adjacency, "adjacency", [SquareMatrix()])
 
 
 def _labels(labels: Any, n: int) -> np.ndarray:
     # Always a copy: the input is never modified.
-    return check_labels(labels, n_nodes=n, wording=_WORDING, copy=True)
+    return check_labels(labels, n_nodes=n, copy=True)
 
 
 def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
@@ -397,42 +395,36 @@ def _refine_pass(
 # ------------------------------------------------------------------ driver
 
 
-def _node_array(value: Any, n: int, name: str, dtype: type, default: Any) -> np.ndarray:
-    if value is None:
-        return np.full(n, default, dtype=dtype)
-    array = np.asarray(value)
-    if array.shape != (n,):
-        raise ParameterError(f"{name} must have shape ({n},); got shape {array.shape}.")
-    if dtype is np.bool_:
-        if array.dtype != np.bool_:
-            raise ParameterError(f"{name} must be a boolean array; got dtype {array.dtype}.")
-        return array
-    array = array.astype(np.float64)
-    if not np.all(np.isfinite(array)) or (array.size and array.min() < 0):
-        raise ParameterError(f"{name} must be finite and >= 0; got min {array.min()!r}.")
-    return array
+def _node_array(
+    value: Any, n: int, name: str, kind: Literal["float", "bool"], default: Any
+) -> np.ndarray:
+    """A per-node array (sizes >= 0, or movable flags), or the default everywhere."""
+    low = 0 if kind == "float" else None
+    array = check_param(value, name, [Array(kind, (n,), low=low), NoneOk()])
+    dtype = bool if kind == "bool" else np.float64
+    return np.full(n, default, dtype=dtype) if array is None else array
 
 
 def _size_bounds(min_size: Any, max_size: Any) -> tuple[float, float]:
-    bounds = []
-    for name, value, default in (("min_size", min_size, -np.inf), ("max_size", max_size, np.inf)):
-        if value is None:
-            bounds.append(default)
-            continue
-        try:
-            number = float(value)
-        except (TypeError, ValueError):
-            number = np.nan
-        if isinstance(value, bool) or not np.isfinite(number) or number < 0:
-            raise ParameterError(f"{name} must be None or a finite number >= 0; got {value!r}.")
-        bounds.append(number)
-    if bounds[0] > bounds[1]:
-        raise ParameterError(
-            f"min_size must be <= max_size; got min_size={min_size!r}, max_size={max_size!r}."
-        )
-    return bounds[0], bounds[1]
+    low = -np.inf if min_size is None else float(min_size)
+    high = np.inf if max_size is None else float(max_size)
+    if low > high:
+        raise parameter_error("min_size", "<= max_size", min_size, shown=f"{low:g} > {high:g}")
+    return low, high
 
 
+#: What the options of :func:`refine_boundary` accept (its arrays are checked
+#: against the node count in the body).
+_REFINE_OPTIONS: dict[str, list[Constraint]] = {
+    "min_size": [NON_NEGATIVE, NoneOk()],
+    "max_size": [NON_NEGATIVE, NoneOk()],
+    "max_passes": [Interval(int, 0, None)],
+    "uphill_moves": [Interval(int, 0, None)],
+    "rng": [RandomState()],
+}
+
+
+@validate_params(_REFINE_OPTIONS)
 def refine_boundary(
     adjacency: Any,
     labels: np.ndarray,
@@ -542,11 +534,10 @@ def refine_boundary(
     a = _csr(adjacency)
     n = a.shape[0]
     start = _labels(labels, n)
-    node_sizes = _node_array(sizes, n, "sizes", np.float64, 1.0)
-    free = _node_array(movable, n, "movable", np.bool_, True)
+    node_sizes = _node_array(sizes, n, "sizes", "float", 1.0)
+    free = _node_array(movable, n, "movable", "bool", True)
     lo, hi = _size_bounds(min_size, max_size)
-    max_passes = check_int(max_passes, "max_passes", minimum=0)
-    uphill_moves = check_int(uphill_moves, "uphill_moves", minimum=0)
+    max_passes, uphill_moves = int(max_passes), int(uphill_moves)
     rank = check_rng(rng).permutation(n).astype(np.int64)
 
     k = int(start.max()) + 1 if n else 0

@@ -14,11 +14,23 @@ from typing import Any, Literal
 
 import numpy as np
 
-from .._validation import check_choice, check_int, check_positive_float
-from ..exceptions import ParameterError
+from .._validation import (
+    POSITIVE,
+    REFUSED,
+    Array,
+    Boolean,
+    Constraint,
+    NodeIds,
+    NoneOk,
+    Options,
+    check_int,
+    check_param,
+    check_params,
+    parameter_error,
+)
 from ..network import Network
 
-__all__ = ["NAMES_SHOWN", "SIZE_BY", "ResolvedConstraints", "ZoneConstraints"]
+__all__ = ["NAMES_SHOWN", "SIZE_BY", "ResolvedConstraints", "ZoneConstraints", "check_coverage"]
 
 #: Node ids quoted in a message before "and N more".
 NAMES_SHOWN = 5
@@ -37,6 +49,27 @@ def _quote(ids: Any, total: int | None = None) -> str:
 
 
 # ---------------------------------------------------------------- user level
+#: What each rule of :class:`ZoneConstraints` accepts (``keep_links`` and
+#: ``fixed`` are checked pair by pair and label by label).
+_RULES: dict[str, list[Constraint]] = {
+    "min_size": [POSITIVE, NoneOk()],
+    "max_size": [POSITIVE, NoneOk()],
+    "size_by": [Options(SIZE_BY)],
+    "sources": [NodeIds(distinct=True)],
+    "connected": [Boolean()],
+}
+
+#: A link that must not be cut: two node ids, not the same.
+_PAIR = NodeIds(minimum=2, distinct=True)
+
+
+def _checked_pair(pair: Any) -> tuple[str, str]:
+    ends = _PAIR.parse(pair)
+    if ends is REFUSED or len(ends) != 2:
+        raise parameter_error("keep_links", "pairs of two different node ids", pair)
+    return ends[0], ends[1]
+
+
 @dataclass(frozen=True)
 class ZoneConstraints:
     """Rules a zoning must obey, in the user's node ids.
@@ -77,36 +110,21 @@ class ZoneConstraints:
     connected: bool = True
 
     def __post_init__(self) -> None:
-        low = None if self.min_size is None else check_positive_float(self.min_size, "min_size")
-        high = None if self.max_size is None else check_positive_float(self.max_size, "max_size")
+        given = {name: getattr(self, name) for name in _RULES}
+        checked = check_params(given, _RULES)
+        low, high = checked["min_size"], checked["max_size"]
         if low is not None and high is not None and low > high:
-            raise ParameterError(f"min_size must be <= max_size; got {low:g} > {high:g}.")
-        check_choice(self.size_by, "size_by", SIZE_BY)
-        if isinstance(self.sources, str):
-            raise ParameterError(f"sources must be a sequence of node ids; got {self.sources!r}.")
-        sources = tuple(str(s) for s in self.sources)
-        twice = sorted({s for s in sources if sources.count(s) > 1})
-        if twice:
-            raise ParameterError(f"sources must be distinct; got repeated {_quote(twice)}.")
-        pairs = []
-        for pair in self.keep_links:
-            ends = tuple(str(e) for e in pair)
-            if len(ends) != 2 or ends[0] == ends[1]:
-                raise ParameterError(
-                    f"keep_links must hold pairs of two different node ids; got {pair!r}."
-                )
-            pairs.append((ends[0], ends[1]))
+            raise parameter_error("min_size", "<= max_size", low, shown=f"{low:g} > {high:g}")
+        pairs = tuple(_checked_pair(pair) for pair in self.keep_links)
         fixed = None
         if self.fixed is not None:
             fixed = MappingProxyType(
                 {str(k): check_int(v, f"fixed[{k!r}]", minimum=0) for k, v in self.fixed.items()}
             )
-        if not isinstance(self.connected, bool):
-            raise ParameterError(f"connected must be True or False; got {self.connected!r}.")
         object.__setattr__(self, "min_size", low)
         object.__setattr__(self, "max_size", high)
-        object.__setattr__(self, "sources", sources)
-        object.__setattr__(self, "keep_links", tuple(pairs))
+        object.__setattr__(self, "sources", checked["sources"])
+        object.__setattr__(self, "keep_links", pairs)
         object.__setattr__(self, "fixed", fixed)
 
     def resolve(self, network: Network) -> ResolvedConstraints:
@@ -121,9 +139,11 @@ class ZoneConstraints:
         n = network.n_nodes
         if self.size_by == "weight":
             if network.sizes is None:
-                raise ParameterError(
-                    "size_by='weight' needs node sizes; the network has none "
-                    "(read a node table with a size column, or use size_by='nodes')."
+                raise parameter_error(
+                    "size_by",
+                    "'nodes' on a network without node sizes (size_by='weight' needs them: "
+                    "read a node table with a size column)",
+                    self.size_by,
                 )
             sizes = np.array(network.sizes, dtype=np.float64)
         else:
@@ -138,9 +158,11 @@ class ZoneConstraints:
                 bad = [
                     f"{a}-{b}" for (a, b), ok in zip(self.keep_links, linked, strict=True) if not ok
                 ]
-                raise ParameterError(
-                    f"keep_links must be links of the network; {len(bad)} pairs are not "
-                    f"({_quote(bad)})."
+                raise parameter_error(
+                    "keep_links",
+                    "links of the network",
+                    bad,
+                    shown=f"{len(bad)} pairs that are not ({_quote(bad)})",
                 )
         pinned = np.full(n, -1, dtype=np.int64)
         if self.fixed:
@@ -162,9 +184,11 @@ def _rows_of(index: Mapping[str, int], ids: Any, name: str) -> np.ndarray:
     ids = list(ids)
     unknown = [i for i in ids if i not in index]
     if unknown:
-        raise ParameterError(
-            f"{name} must name nodes of the network; {len(unknown)} unknown "
-            f"node ids ({_quote(unknown)})."
+        raise parameter_error(
+            name,
+            "node ids of the network",
+            unknown,
+            shown=f"{len(unknown)} unknown node ids ({_quote(unknown)})",
         )
     return np.fromiter((index[i] for i in ids), dtype=np.int64, count=len(ids))
 
@@ -199,21 +223,17 @@ class ResolvedConstraints:
     node_ids: np.ndarray | None = None
 
     def __post_init__(self) -> None:
-        sizes = np.asarray(self.sizes, dtype=np.float64)
+        sizes = check_param(self.sizes, "sizes", [Array("float", (None,), low=0)])
         n = sizes.size
-        if sizes.ndim != 1 or not np.all(np.isfinite(sizes)) or np.any(sizes < 0):
-            raise ParameterError("sizes must be a 1-D array of finite numbers >= 0.")
         sources = np.asarray(self.sources, dtype=np.int64).ravel()
         keep = np.asarray(self.keep_pairs, dtype=np.int64).reshape(-1, 2)
         pinned = np.full(n, -1, dtype=np.int64) if self.pinned is None else self.pinned
-        pinned = np.asarray(pinned, dtype=np.int64)
+        pinned = check_param(pinned, "pinned", [Array("int", (n,), low=-1)])
         for name, rows in (("sources", sources), ("keep_pairs", keep.ravel())):
             if rows.size and (rows.min() < 0 or rows.max() >= n):
-                raise ParameterError(f"{name} must hold row indices in [0, {n}); got {rows}.")
+                raise parameter_error(name, f"row indices in [0, {n})", rows)
         if np.unique(sources).size != sources.size:
-            raise ParameterError("sources must be distinct rows.")
-        if pinned.shape != (n,) or np.any(pinned < -1):
-            raise ParameterError(f"pinned must hold {n} labels >= -1 (-1 = free).")
+            raise parameter_error("sources", "distinct rows", sources)
         object.__setattr__(self, "sizes", sizes)
         object.__setattr__(self, "sources", sources)
         object.__setattr__(self, "keep_pairs", keep)
@@ -231,3 +251,10 @@ class ResolvedConstraints:
 
     def label_of(self, row: int) -> str:
         return "node " + self.name(row)
+
+
+def check_coverage(constraints: ResolvedConstraints, n: int) -> None:
+    """Refuse constraints resolved for another number of nodes than ``n``."""
+    if constraints.n_nodes != n:
+        shown = str(constraints.n_nodes)
+        raise parameter_error("constraints", f"{n} nodes", constraints, shown=shown, verb="cover")

@@ -38,8 +38,7 @@ import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
-from .._validation import check_int, check_positive_float
-from ..exceptions import ParameterError
+from .._validation import UNIT, Array, SquareMatrix, check_int, check_param
 
 __all__ = [
     "MIN_TREE_SHARE",
@@ -167,6 +166,10 @@ def _roots(removed, parent, order, n):  # pragma: no cover - compiled
     return root, depth
 
 
+#: A network's adjacency, sparse or dense.
+_SQUARE = SquareMatrix(sparse_only=False)
+
+
 def core_and_trees(adjacency: sp.sparray | sp.spmatrix) -> TreeSplit:
     """Split a network into its 2-core and the dangling trees, with roots and depths.
 
@@ -200,10 +203,8 @@ def core_and_trees(adjacency: sp.sparray | sp.spmatrix) -> TreeSplit:
     >>> split.core.tolist(), split.root.tolist(), split.depth.tolist()
     ([True, True, True, True, False, False], [0, 1, 2, 3, 0, 0], [0, 0, 0, 0, 1, 2])
     """
-    matrix = sp.csr_array(adjacency)
+    matrix = check_param(adjacency, "adjacency", [_SQUARE])
     n = matrix.shape[0]
-    if matrix.shape != (n, n):
-        raise ParameterError(f"adjacency must be square; got shape {matrix.shape}.")
     links = matrix.tocoo()
     off = (links.row != links.col) & (links.data != 0)
     ones = np.ones(int(off.sum()), dtype=np.int8)
@@ -247,12 +248,8 @@ def attach_trees(split: TreeSplit, core_labels: np.ndarray) -> np.ndarray:
     >>> attach_trees(split, [5, 5, 7]).tolist()
     [5, 5, 7, 8, 8, 8, 5]
     """
-    labels = np.asarray(core_labels)
-    if labels.shape != (split.n_core,) or not np.issubdtype(labels.dtype, np.integer):
-        raise ParameterError(
-            f"core_labels must hold {split.n_core} integer labels, one per core node; "
-            f"got shape {labels.shape} of dtype {labels.dtype}."
-        )
+    per_core_node = Array("int", (split.n_core,), description=f"{split.n_core} integer labels")
+    labels = check_param(core_labels, "core_labels", [per_core_node], verb="hold")
     full = np.full(split.core.size, -1, dtype=np.int64)
     full[split.core] = labels
     free = ~split.core[split.root]  # nodes of tree components
@@ -296,9 +293,7 @@ def trees_worth_stripping(
     (0.2, True)
     """
     zones = check_int(zones, "zones", minimum=1)
-    min_share = check_positive_float(min_share, "min_share", allow_zero=True)
-    if min_share > 1:
-        raise ParameterError(f"min_share must be a number in [0, 1]; got {min_share!r}.")
+    min_share = float(check_param(min_share, "min_share", [UNIT]))
     n = split.core.size
     return bool(
         n > 0
