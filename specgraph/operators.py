@@ -321,7 +321,8 @@ def directed_flow(
             "network",
             "a directed network for kind='directed' (one read with directed=True, "
             "which keeps its arcs)",
-            "an undirected network",
+            network,
+            shown="an undirected network",
         )
     walk = stationary_distribution(network, damping=DEFAULT_DAMPING if damping is None else damping)
     _, inv, _ = _walk_parts(network)
@@ -551,7 +552,10 @@ def _check_parameters_of(kind: str, given: dict[str, float | None]) -> None:
     for name, value in given.items():
         if value is not None and name != own:
             raise parameter_error(
-                name, f"None unless kind={_kind_of(name)!r}", f"{value!r} with kind={kind!r}"
+                name,
+                f"None unless kind={_kind_of(name)!r}",
+                value,
+                shown=f"{value!r} with kind={kind!r}",
             )
 
 

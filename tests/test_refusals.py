@@ -49,8 +49,14 @@ CASES: dict[str, tuple[Callable[[], Any], str, Any]] = {
     "directed operator, undirected network": (
         lambda: find_zones(gallery.ring(8), 2, operator="directed"),
         "network",
-        "an undirected network",
+        None,
     ),
+    "constraints not a ZoneConstraints": (
+        lambda: find_zones(gallery.ring(8), 2, constraints={"min_size": 2}),
+        "constraints",
+        {"min_size": 2},
+    ),
+    "progress not callable": (lambda: find_zones(gallery.ring(8), 2, progress=3), "progress", 3),
     "sources as one string": (
         lambda: score(gallery.path(4), [0, 0, 1, 1], sources="0", eigengap=False),
         "sources",
@@ -87,6 +93,13 @@ def test_refusal_names_its_parameter_in_one_shape(case: str) -> None:
     if received is not None:
         assert error.received == received
         assert match["received"] == repr(received)
+
+
+def test_undirected_network_is_shown_in_words_and_kept_as_received() -> None:
+    ring = gallery.ring(8)
+    with pytest.raises(ParameterError, match=r"; got an undirected network\.$") as info:
+        find_zones(ring, 2, operator="directed")
+    assert info.value.received is ring
 
 
 def test_reference_of_another_network_is_refused_by_name() -> None:

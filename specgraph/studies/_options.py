@@ -16,43 +16,21 @@ from dataclasses import dataclass, fields
 from typing import Any
 
 from .._validation import (
-    OPEN_UNIT,
-    POSITIVE,
-    Boolean,
-    Constraint,
     InstanceOf,
-    Interval,
-    IsCallable,
-    NoneOk,
     Options,
     check_param,
     check_params,
     parameter_error,
 )
-from ..eigen import DEFAULT_TOL, METHODS
+from ..eigen import DEFAULT_TOL
 from ..walks import DEFAULT_DAMPING
-from ..zones import ASSIGNMENTS, OPERATOR_KINDS, TREE_TREATMENTS, ZoneConstraints
+from ..zones import ZONING_CONSTRAINTS, ZoneConstraints
 
 __all__ = ["RESERVED_OPTIONS", "ZONING_CONSTRAINTS", "ZoningOptions"]
 
 #: ``find_zones`` arguments a study sets itself for every run; a mapping of
 #: options may not hold them.
 RESERVED_OPTIONS = ("network", "zones", "rng")
-
-#: What each keyword option of :func:`~specgraph.find_zones` accepts, as a
-#: table: the checks :func:`~specgraph.find_zones` makes, word for word.
-ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
-    "operator": [Options(("auto", *OPERATOR_KINDS))],
-    "assign": [Options(("auto", *ASSIGNMENTS))],
-    "trees": [Options(("auto", *TREE_TREATMENTS))],
-    "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
-    "refine": [Boolean()],
-    "eigen_method": [Options(METHODS)],
-    "tol": [POSITIVE],
-    "maxiter": [Interval(int, 1, None), NoneOk()],
-    "damping": [OPEN_UNIT],
-    "progress": [IsCallable(), NoneOk()],
-}
 
 #: What a study's options argument may be.
 _MAPPING = InstanceOf((Mapping,), "a ZoningOptions or a dict of find_zones options")

@@ -32,10 +32,24 @@ import numpy as np
 import pandas as pd
 
 from .._figures import boundary_links, eigengaps, overall_scores, zone_table
-from .._validation import check_bool, check_choice, check_int, check_rng, parameter_error
+from .._validation import (
+    OPEN_UNIT,
+    POSITIVE,
+    Boolean,
+    Constraint,
+    InstanceOf,
+    Interval,
+    IsCallable,
+    NoneOk,
+    Options,
+    check_int,
+    check_params,
+    check_rng,
+    parameter_error,
+)
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult
 from ..network import Network
-from ..walks import DEFAULT_DAMPING, check_damping
+from ..walks import DEFAULT_DAMPING
 from ._constraints import ResolvedConstraints, ZoneConstraints
 from ._count import parse_zone_spec
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
@@ -60,6 +74,7 @@ __all__ = [
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
+    "ZONING_CONSTRAINTS",
     "ComponentSolve",
     "Zoning",
     "find_zones",
@@ -72,6 +87,22 @@ logger = logging.getLogger(__name__)
 ASSIGNMENTS = tuple(_ASSIGNERS)
 #: Treatments of dangling trees (besides ``"auto"``).
 TREE_TREATMENTS = ("attach", "keep")
+
+#: What each keyword option of :func:`find_zones` accepts, as a table (the
+#: declarative checks of :mod:`specgraph._validation`); studies that re-run
+#: zoning check their options against the same table.
+ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
+    "operator": [Options(("auto", *OPERATOR_KINDS))],
+    "assign": [Options(("auto", *ASSIGNMENTS))],
+    "trees": [Options(("auto", *TREE_TREATMENTS))],
+    "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
+    "refine": [Boolean()],
+    "eigen_method": [Options(METHODS)],
+    "tol": [POSITIVE],
+    "maxiter": [Interval(int, 1, None), NoneOk()],
+    "damping": [OPEN_UNIT],
+    "progress": [IsCallable(), NoneOk()],
+}
 
 
 @dataclass(frozen=True, eq=False)
@@ -341,6 +372,8 @@ def find_zones(
         tol=tol,
         maxiter=maxiter,
         damping=damping,
+        constraints=constraints,
+        progress=progress,
         rng=rng,
     )
     stage = progress if progress is not None else _no_progress
@@ -405,39 +438,31 @@ class _Options:
         }
 
 
-def _checked_options(
-    network: Network,
-    zones: Any,
-    *,
-    operator: str,
-    assign: str,
-    trees: str,
-    refine: Any,
-    eigen_method: str,
-    tol: float,
-    maxiter: int | None,
-    damping: float,
-    rng: Any,
-) -> _Options:
-    """Step 1 of :func:`find_zones`: every option checked, in the order of the signature."""
+def _checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) -> _Options:
+    """Step 1 of :func:`find_zones`: every option checked against :data:`ZONING_CONSTRAINTS`."""
     if network.n_nodes == 0:
         raise parameter_error("network", "a network of at least one node", network)
     spec = _check_spec(zones, network.n_nodes)
-    check_choice(operator, "operator", ("auto", *OPERATOR_KINDS))
-    check_choice(assign, "assign", ("auto", *ASSIGNMENTS))
-    check_choice(trees, "trees", ("auto", *TREE_TREATMENTS))
-    check_choice(eigen_method, "eigen_method", METHODS)
-    refine = check_bool(refine, "refine")
-    damping = check_damping(damping)
-    if operator == "directed" and not network.directed:
+    checked = check_params(given, ZONING_CONSTRAINTS)
+    if checked["operator"] == "directed" and not network.directed:
         raise parameter_error(
             "network",
             "a directed network for operator='directed' (one read with directed=True, which "
             "keeps its arcs)",
-            "an undirected network",
+            network,
+            shown="an undirected network",
         )
     return _Options(
-        spec, operator, assign, trees, refine, eigen_method, tol, maxiter, damping, check_rng(rng)
+        spec,
+        checked["operator"],
+        checked["assign"],
+        checked["trees"],
+        checked["refine"],
+        checked["eigen_method"],
+        checked["tol"],
+        checked["maxiter"],
+        checked["damping"],
+        check_rng(rng),
     )
 
 
