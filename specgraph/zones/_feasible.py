@@ -228,7 +228,8 @@ def _check_source_reach(work: Work) -> None:
     walls = np.union1d(beside[is_source[beside]], src[np.isin(pieces, own) & (src != s)])
     nodes = int(work.members[s] + piece_nodes[own].sum())
     if walls.size and c.coordinates is not None:
-        walls = walls[np.argsort([c.distance(s, int(w)) for w in walls.tolist()], kind="stable")]
+        gaps = np.hypot(*(c.coordinates[walls] - c.coordinates[s]).T)
+        walls = walls[np.argsort(gaps, kind="stable")]  # the nearest first
     twins = {v for pair in _twins(work, np.array([s, *walls.tolist()])) for v in pair[:2]}
     if walls.size and int(walls[0]) in twins:
         w = int(walls[0])
