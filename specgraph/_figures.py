@@ -24,6 +24,14 @@ counted once at each end). A zone is connected when the links inside it join
 all its nodes: each piece of the network cut along zone changes lies in one
 zone, so counting pieces per zone needs no sort.
 
+Boundary links are **physical links**: the rows of the network's link table
+(:attr:`Network.link_table`, one per input link) whose two ends lie in
+different zones, so parallel links (two pipes or lines between the same two
+nodes, which the adjacency sums into one entry) count as what they are and
+every count equals the rows of :func:`boundary_links` (``boundary.csv``). The
+count of distinct node pairs across zones, what the summed adjacency sees, is
+kept beside it under its own name, ``boundary_node_pairs``.
+
 This is a shared low-level module: it imports only numpy, scipy, pandas, the
 validation module and the network, never a pipeline stage, so every stage may
 use it.
@@ -58,6 +66,7 @@ __all__ = [
     "ncut_terms",
     "normalized_cut",
     "overall_scores",
+    "physical_boundary_links",
     "relative_gap",
     "zone_figures",
     "zone_table",
@@ -165,7 +174,11 @@ class ZoneFigures:
     boundary_weight : ndarray of float
         Weight of the links with one end in the zone (the cut).
     boundary_links : ndarray of int
-        Number of such links.
+        Number of physical links (rows of the network's link table) with one
+        end in the zone: parallel links count one each.
+    boundary_node_pairs : ndarray of int
+        Number of distinct node pairs with one end in the zone and a link
+        between them (parallel links merged, as in the adjacency).
     connected : ndarray of bool
         The links inside the zone join all its nodes (False for an empty zone).
     """
@@ -177,6 +190,7 @@ class ZoneFigures:
     boundary_weight: np.ndarray
     boundary_links: np.ndarray
     connected: np.ndarray
+    boundary_node_pairs: np.ndarray
 
 
 def cut_and_volume(
@@ -225,9 +239,42 @@ def zone_figures(network: Network, labels: np.ndarray, count: int) -> ZoneFigure
         volume=np.bincount(labels, weights=network.degrees, minlength=count),
         internal_weight=np.bincount(zi[inside], weights=data[inside], minlength=count) / 2.0,
         boundary_weight=np.bincount(zi[~inside], weights=data[~inside], minlength=count),
-        boundary_links=np.bincount(zi[~inside], minlength=count),
+        boundary_links=physical_boundary_links(network, labels, count),
         connected=(np.bincount(piece_label, minlength=count) == 1) & (nodes > 0),
+        boundary_node_pairs=np.bincount(zi[~inside], minlength=count),
     )
+
+
+def _crossing_rows(network: Network, labels: np.ndarray) -> tuple[np.ndarray, ...]:
+    """Rows of the link table joining two zones, and the row indices of their two ends.
+
+    A row naming a node the network does not hold (possible only in a table
+    handed to the constructor by hand) joins nothing and is left out.
+    """
+    src, dst = network.link_ends
+    known = (src >= 0) & (dst >= 0)
+    crossing = np.zeros(src.size, dtype=bool)
+    crossing[known] = labels[src[known]] != labels[dst[known]]
+    return crossing, src[crossing], dst[crossing]
+
+
+def physical_boundary_links(network: Network, labels: np.ndarray, count: int) -> np.ndarray:
+    """Physical links (rows of the link table) leaving each zone ``0..count-1``.
+
+    The per-zone count behind every boundary-link figure (module notes): a
+    link between zones ``a`` and ``b`` counts once in each, so the zones'
+    sum is twice the rows of :func:`boundary_links`.
+
+    Examples
+    --------
+    >>> from specgraph import Network
+    >>> net = Network.from_links(["a", "a", "b"], ["b", "b", "c"])  # two parallel a-b links
+    >>> physical_boundary_links(net, np.array([0, 1, 1]), 2).tolist()
+    [2, 2]
+    """
+    _, a, b = _crossing_rows(network, labels)
+    ends = np.concatenate([labels[a], labels[b]])
+    return np.bincount(ends, minlength=count)
 
 
 def conductance(cut: np.ndarray, volume: np.ndarray, total_volume: float) -> np.ndarray:
@@ -301,8 +348,10 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
         One row per zone ``0..k-1`` with columns ``zone``, ``nodes``, ``size``
         (sum of node sizes, or nodes when the network has none),
         ``internal_weight``, ``boundary_weight``, ``conductance``,
-        ``connected``, then ``volume`` and ``boundary_links``. A zone number
-        with no node gets a row of zeros and ``connected=False``.
+        ``connected``, then ``volume`` and ``boundary_links`` (physical
+        links leaving the zone, parallel links one each, as in
+        :func:`boundary_links`). A zone number with no node gets a row of
+        zeros and ``connected=False``.
 
     Examples
     --------
@@ -343,15 +392,15 @@ def boundary_links(network: Network, labels: np.ndarray) -> pd.DataFrame:
         ``zone_b`` (zones of source and target), then any columns carried
         from the input link table (for example a pipe id), in input order.
         Repeated input links appear once per input row, so every asset on
-        the boundary can be joined back.
+        the boundary can be joined back; the ``boundary_links`` of
+        :func:`zone_table` and :func:`overall_scores` count these rows.
     """
     labels = check_zone_labels(network, labels)
     table = network.link_table
-    src, dst = network.link_ends
-    crossing = labels[src] != labels[dst]
+    crossing, src, dst = _crossing_rows(network, labels)
     out = table.loc[crossing, ["source", "target", "weight"]].copy()
-    out["zone_a"] = labels[src[crossing]]
-    out["zone_b"] = labels[dst[crossing]]
+    out["zone_a"] = labels[src]
+    out["zone_b"] = labels[dst]
     rest = [c for c in table.columns if c not in ("source", "target", "weight")]
     return pd.concat([out, table.loc[crossing, rest]], axis=1).reset_index(drop=True)
 
@@ -360,7 +409,9 @@ def overall_scores(table: pd.DataFrame) -> dict[str, float | int | bool]:
     """Whole-zoning figures from a :func:`zone_table`.
 
     ``normalized_cut`` is :math:`\\sum_z w(S_z, \\bar S_z)/\\operatorname{vol} S_z`;
-    ``boundary_weight`` counts each crossing link once.
+    ``boundary_weight`` counts each crossing link once; ``boundary_links`` is
+    the number of physical links between zones, the rows of
+    :func:`boundary_links` (``boundary.csv``), parallel links counted one each.
     """
     vol = table["volume"].to_numpy()
     cut = table["boundary_weight"].to_numpy()

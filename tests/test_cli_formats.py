@@ -96,3 +96,42 @@ def test_geojson_input_refuses_a_node_table(
     assert main(["zones", str(lines), "--nodes", str(nodes), "--out", str(out)]) == 2
     assert "--nodes" in capsys.readouterr().err
     assert not out.exists()
+
+
+# ------------------------------------------------------- parallel links on the boundary
+def _twin_mains_csv(path: Path) -> None:
+    """Two rings of six junctions joined by a main laid twice (QM-M1, and QM-M2 listed in
+    the other direction) and one single main (QM-M3): three physical links, two node pairs."""
+    rows = ["source,target,pipe_id"]
+    for tag in ("W", "E"):
+        rows += [f"QM-{tag}{i},QM-{tag}{(i + 1) % 6},QM-{tag}P{i}" for i in range(6)]
+    rows += ["QM-W0,QM-E0,QM-M1", "QM-E0,QM-W0,QM-M2", "QM-W3,QM-E3,QM-M3"]
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+
+
+def test_boundary_links_count_parallel_links_on_the_command_line(
+    tmp_path: Path, capsys: pytest.CaptureFixture
+) -> None:
+    import networkx as nx
+
+    edges = tmp_path / "mains.csv"
+    _twin_mains_csv(edges)
+    out = tmp_path / "out"
+    assert main(["zones", str(edges), "--zones", "2", "--out", str(out)]) == 0
+    err = capsys.readouterr().err
+    boundary = pd.read_csv(out / "boundary.csv")
+    summary = pd.read_csv(out / "zone_summary.csv")
+    record = json.loads((out / "run.json").read_text(encoding="utf-8"))
+    zone_of = dict(pd.read_csv(out / "zones.csv", dtype={"node": str}).to_numpy().tolist())
+    # networkx MultiGraph of the file's rows: edge_boundary yields each parallel edge.
+    table = pd.read_csv(edges)
+    graph = nx.MultiGraph()
+    graph.add_edges_from(table[["source", "target"]].to_numpy().tolist())
+    crossing = [(u, v) for u, v in graph.edges() if zone_of[u] != zone_of[v]]
+    for zone, members in pd.Series(zone_of).groupby(pd.Series(zone_of)):
+        row = summary.loc[summary["zone"] == zone].iloc[0]
+        assert row["boundary_links"] == len(list(nx.edge_boundary(graph, set(members.index))))
+    assert record["scores"]["boundary_links"] == len(boundary) == len(crossing)
+    assert f"{len(crossing)} boundary links" in err
+    assert len(crossing) == 3  # the two rings are the zones: QM-M1, QM-M2 and QM-M3
+    assert sorted(boundary["pipe_id"]) == ["QM-M1", "QM-M2", "QM-M3"]

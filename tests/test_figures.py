@@ -4,7 +4,10 @@ Oracles: networkx's cut functions (``nx.algorithms.cuts``: ``cut_size``, ``volum
 ``conductance``, ``normalized_cut_size``) and ``is_connected`` on the subgraph of each zone;
 closed-form values of two cliques joined by one link (arithmetic in the comments); the
 closed-form normalized-Laplacian spectrum of the path (Chung 1997, ch. 1, from memory; also
-tabulated in CHECKS.md) through scipy's dense ``eigh``.
+tabulated in CHECKS.md) through scipy's dense ``eigh``. Boundary links on a network with
+parallel links: networkx ``edge_boundary`` on the ``MultiGraph`` (one edge per parallel
+link, ``keys=True``) for the physical count, ``cut_size`` on the simple ``Graph`` for the
+node pairs.
 """
 
 from __future__ import annotations
@@ -20,14 +23,17 @@ import specgraph.studies
 import specgraph.zones
 from specgraph import Network, gallery
 from specgraph._figures import (
+    boundary_links,
     check_labels,
     conductance,
     cut_and_volume,
     eigengaps,
     ncut_terms,
     normalized_cut,
+    overall_scores,
     relative_gap,
     zone_figures,
+    zone_table,
 )
 from specgraph.exceptions import ParameterError
 from specgraph.report._plots import zone_colours
@@ -114,6 +120,57 @@ def test_k_way_normalized_cut_is_sum_of_networkx_ratios(name: str) -> None:
     cut, volume = cut_and_volume(net.adjacency, labels, 5)
     assert cut.tolist() == pytest.approx([nx.cut_size(graph, s, weight="weight") for s in zones])
     assert volume.tolist() == pytest.approx([nx.volume(graph, s, weight="weight") for s in zones])
+
+
+def parallel_multigraph() -> nx.MultiGraph:
+    """A G(n, m) multigraph (fixed seed) in which a third of the links are laid twice or
+    three times, each copy with its own pipe id and affinity."""
+    simple = nx.gnm_random_graph(40, 90, seed=3)
+    rng = np.random.default_rng(3)
+    graph = nx.MultiGraph()
+    graph.add_nodes_from(simple.nodes)
+    for n_pipe, (u, v) in enumerate(simple.edges):
+        copies = int(rng.choice([1, 1, 2, 3]))
+        for copy in range(copies):
+            graph.add_edge(u, v, weight=float(rng.uniform(0.5, 2.0)), pipe=f"QM-P{n_pipe}-{copy}")
+    return graph
+
+
+@pytest.mark.parametrize("k", [2, 4])
+def test_boundary_links_count_parallel_links_as_networkx_multigraph(k: int) -> None:
+    graph = parallel_multigraph()
+    net, labels, zones = zoning_of(graph, k, seed=k)
+    figures = zone_figures(net, labels, k)
+    table = zone_table(net, labels)
+    simple = nx.Graph(graph)
+    for z, members in enumerate(zones):
+        # networkx edge_boundary on a MultiGraph yields each parallel edge (keys=True).
+        physical = len(list(nx.edge_boundary(graph, members, keys=True)))
+        assert figures.boundary_links[z] == physical
+        assert table["boundary_links"][z] == physical
+        # networkx cut_size on the simple graph counts node pairs.
+        assert figures.boundary_node_pairs[z] == nx.cut_size(simple, members)
+    # The count differs from the node pairs on this network, so the check can fail.
+    assert not np.array_equal(figures.boundary_links, figures.boundary_node_pairs)
+    rows = boundary_links(net, labels)
+    between = [
+        (u, v, key)
+        for u, v, key in graph.edges(keys=True)
+        if labels[net.index_of[str(u)]] != labels[net.index_of[str(v)]]
+    ]
+    assert overall_scores(table)["boundary_links"] == len(rows) == len(between)
+    assert sorted(rows["pipe"]) == sorted(graph.edges[e]["pipe"] for e in between)
+
+
+def test_boundary_links_count_every_physical_link_of_a_zoning() -> None:
+    # find_zones on the multigraph: the headline figure is the rows of the boundary table.
+    graph = parallel_multigraph()
+    zoning = specgraph.find_zones(Network.from_networkx(graph), 3, rng=0)
+    expected = sum(
+        len(list(nx.edge_boundary(graph, {int(v) for v in zone["node"]}, keys=True)))
+        for _, zone in zoning.to_frame().groupby("zone")
+    )
+    assert zoning.scores["boundary_links"] == len(zoning.boundary) == expected // 2
 
 
 def test_two_cliques_joined_by_one_link_closed_form() -> None:

@@ -70,8 +70,15 @@ def constraint_violations(
         for bad, what in ((present & (held == 0), "no source"), (held > 1, "several sources")):
             if bad.any():
                 z = int(np.argmax(bad))
+                inside = c.sources[labels[c.sources] == z]
+                named = (
+                    c.name(inside)
+                    if inside.size
+                    else "e.g. " + c.label_of(int(np.argmax(labels == z)))
+                )
                 out.append(
-                    f"sources: {int(bad.sum())} zones hold {what} (zone {z} holds {held[z]})"
+                    f"sources: {int(bad.sum())} zones hold {what} "
+                    f"(zone {z} holds {held[z]}: {named})"
                 )
     cut = labels[c.keep_pairs[:, 0]] != labels[c.keep_pairs[:, 1]]
     if cut.any():

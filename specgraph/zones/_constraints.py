@@ -64,7 +64,7 @@ from ._arrays import (
 from ._audit import constraint_violations
 from ._balance import SIZE_RTOL
 from ._contract import Contraction, contract_constraints, contract_links
-from ._feasible import check_feasible
+from ._feasible import TWIN_SHARE, check_feasible, refuse_infeasible
 from ._repair import force_pinned, repair
 from ._rules import NAMES_SHOWN, ResolvedConstraints, ZoneConstraints, check_coverage
 from ._sizes import (
@@ -86,6 +86,7 @@ __all__ = [
     "MATCH_MAX_CELLS",
     "NAMES_SHOWN",
     "SIZE_RTOL",
+    "TWIN_SHARE",
     "Contraction",
     "Enforcement",
     "ResolvedConstraints",
@@ -94,6 +95,7 @@ __all__ = [
     "contract_constraints",
     "contract_links",
     "enforce_constraints",
+    "refuse_infeasible",
 ]
 
 _STEPS: tuple[Callable[[Work], None], ...] = (

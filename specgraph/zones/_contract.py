@@ -123,8 +123,9 @@ def contract_constraints(
     if twice.size:
         a, b = c.sources[order[twice[0]]], c.sources[order[twice[0] + 1]]
         raise ConstraintError(
-            f"sources: {c.name([a, b])} are both sources, but keep_links tie them into one "
-            f"zone through the chain {chain(int(a), int(b))}; a zone holds exactly one source."
+            f"sources: {c.name([a, b])}{c.apart(int(a), int(b))} are both sources, but "
+            f"keep_links tie them into one zone through the chain {chain(int(a), int(b))}; "
+            "a zone holds exactly one source."
         )
     assert c.pinned is not None
     rows = np.flatnonzero(c.pinned >= 0)
@@ -151,4 +152,5 @@ def contract_constraints(
         pinned=super_pinned,
         connected=c.connected,
         node_ids=None if c.node_ids is None else c.node_ids[first],
+        coordinates=None if c.coordinates is None else c.coordinates[first],
     )

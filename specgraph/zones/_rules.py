@@ -177,6 +177,7 @@ class ZoneConstraints:
             pinned=pinned,
             connected=self.connected,
             node_ids=network.node_ids,
+            coordinates=network.coordinates,
         )
 
 
@@ -211,6 +212,8 @@ class ResolvedConstraints:
     connected : bool
     node_ids : ndarray of str, optional
         Only used to name nodes in messages (rows are named otherwise).
+    coordinates : ndarray of float, shape (n, 2), optional
+        Only used in messages: the distance between two nodes a refusal names.
     """
 
     min_size: float | None
@@ -221,6 +224,7 @@ class ResolvedConstraints:
     pinned: np.ndarray | None = None
     connected: bool = True
     node_ids: np.ndarray | None = None
+    coordinates: np.ndarray | None = None
 
     def __post_init__(self) -> None:
         sizes = check_param(self.sizes, "sizes", [Array("float", (None,), low=0)])
@@ -238,6 +242,9 @@ class ResolvedConstraints:
         object.__setattr__(self, "sources", sources)
         object.__setattr__(self, "keep_pairs", keep)
         object.__setattr__(self, "pinned", pinned)
+        if self.coordinates is not None:
+            xy = check_param(self.coordinates, "coordinates", [Array("float", (n, 2))])
+            object.__setattr__(self, "coordinates", xy)
 
     @property
     def n_nodes(self) -> int:
@@ -251,6 +258,17 @@ class ResolvedConstraints:
 
     def label_of(self, row: int) -> str:
         return "node " + self.name(row)
+
+    def distance(self, a: int, b: int) -> float | None:
+        """Straight-line distance between rows ``a`` and ``b``, None without coordinates."""
+        if self.coordinates is None:
+            return None
+        return float(np.hypot(*(self.coordinates[a] - self.coordinates[b])))
+
+    def apart(self, a: int, b: int) -> str:
+        """``' (0.2 apart)'`` for two nodes a message names, ``''`` without coordinates."""
+        d = self.distance(a, b)
+        return "" if d is None else f" ({d:.3g} apart)"
 
 
 def check_coverage(constraints: ResolvedConstraints, n: int) -> None:

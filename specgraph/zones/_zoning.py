@@ -50,7 +50,7 @@ from .._validation import (
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult
 from ..network import Network
 from ..walks import DEFAULT_DAMPING
-from ._constraints import ResolvedConstraints, ZoneConstraints
+from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
 from ._count import parse_zone_spec
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
 from ._readonly import read_only
@@ -378,6 +378,7 @@ def find_zones(
     )
     stage = progress if progress is not None else _no_progress
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
+    refuse_infeasible(network.adjacency, rules)  # what arithmetic decides, before any solve
     stage("solving")
 
     # Steps 2-3: merge what must stay together, choose the operator and the count.
