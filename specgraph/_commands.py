@@ -53,7 +53,6 @@ from .io import (
 )
 from .network import Network
 from .operators import laplacian
-from .report import build_report
 from .studies import stability
 from .zones import (
     NORMALIZED_LIKE,
@@ -304,6 +303,8 @@ def _zoning_files(
     tables = zoning_tables(zoning)
     files: dict[str, Any] = {**tables, "run.json": record}
     if args.report:
+        from .report import build_report  # matplotlib: loaded only for a report
+
         files[REPORT_FILE] = build_report(
             zoning,
             command=shlex.join(["specgraph", *argv]),
@@ -566,6 +567,8 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "run.json": record,
     }
     if args.report:
+        from .report import build_report  # matplotlib: loaded only for a report
+
         files[REPORT_FILE] = build_report(
             reference,
             command=shlex.join(["specgraph", *argv]),
