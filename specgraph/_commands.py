@@ -53,7 +53,6 @@ from .io import (
 )
 from .network import Network
 from .operators import laplacian
-from .report import build_report
 from .studies import stability
 from .zones import (
     NORMALIZED_LIKE,
@@ -229,6 +228,7 @@ def _zone_options(args: argparse.Namespace, constraints: ZoneConstraints) -> dic
         "refine": not args.no_refine,
         "tol": args.tol,
         "damping": args.damping,
+        "eigen_method": args.solver,
     }
 
 
@@ -304,6 +304,8 @@ def _zoning_files(
     tables = zoning_tables(zoning)
     files: dict[str, Any] = {**tables, "run.json": record}
     if args.report:
+        from .report import build_report  # matplotlib: loaded only for a report
+
         files[REPORT_FILE] = build_report(
             zoning,
             command=shlex.join(["specgraph", *argv]),
@@ -354,7 +356,7 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     network, inputs = _read(args)
     choice = choose_operator(args.operator, directed=network.directed)
     damping = args.damping if choice.kind == "directed" else None
-    options = {"tol": args.tol, "rng": args.seed}
+    options = {"tol": args.tol, "rng": args.seed, "method": args.solver}
     operator = laplacian(network, kind=choice.kind, damping=damping)  # type: ignore[arg-type]
     result = smallest_eigenpairs(operator, min(args.count, network.n_nodes), **options)
     # Eigengap suggestions read the normalized Laplacian's spectrum (Cheeger);
@@ -390,6 +392,7 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "rng": args.seed,
         "tol": args.tol,
         "damping": args.damping,
+        "eigen_method": args.solver,
     }
     card = score(network, labels, sources=sources or None, **options)
     warnings = []
@@ -488,7 +491,7 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
                 path=args.zones_file,
             )
         inputs.append(input_record("zones", args.zones_file))
-    options = {"top": args.top, "rng": args.seed, "tol": args.tol}
+    options = {"top": args.top, "rng": args.seed, "tol": args.tol, "eigen_method": args.solver}
     result = robustness(network, labels=labels, **options)
     files: dict[str, Any] = {
         "links.csv": result.links,
@@ -566,6 +569,8 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "run.json": record,
     }
     if args.report:
+        from .report import build_report  # matplotlib: loaded only for a report
+
         files[REPORT_FILE] = build_report(
             reference,
             command=shlex.join(["specgraph", *argv]),

@@ -31,6 +31,8 @@ KEYWORD_OPTIONS = {
     "size": "--size-col",
     "node": "--node-col",
     "snap_tolerance": "--snap",
+    "eigen_method": "--solver",
+    "method": "--solver",
 }
 
 

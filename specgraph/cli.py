@@ -29,7 +29,7 @@ from ._progress import wants_progress
 from .diagnostics import (
     DEFAULT_TOP,
 )
-from .eigen import DEFAULT_TOL
+from .eigen import DEFAULT_TOL, METHODS
 from .exceptions import ConvergenceError, ParameterError, SpecgraphError
 from .export import (
     CAUTION,
@@ -174,6 +174,19 @@ def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
     parser.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
 
 
+#: Help of ``--solver``, the same on every command that solves.
+_SOLVER_HELP = (
+    "eigen-solver: 'auto' picks one from the network's size, 'dense' (LAPACK, small "
+    "networks), 'lanczos' or 'lanczos_flip' (Krylov), 'multilevel' (coarsened "
+    "hierarchy, large networks); recorded in run.json (default auto)"
+)
+
+
+def _add_solver(group: Any) -> None:
+    """The ``--solver`` option: the eigen-solver every eigen-solve of the command uses."""
+    group.add_argument("--solver", choices=METHODS, default="auto", help=_SOLVER_HELP)
+
+
 def _add_solving(parser: argparse.ArgumentParser, *, auto: bool) -> None:
     group = parser.add_argument_group("solving")
     kinds = (("auto",) if auto else ()) + OPERATOR_KINDS
@@ -190,6 +203,7 @@ def _add_solving(parser: argparse.ArgumentParser, *, auto: bool) -> None:
         default=DEFAULT_TOL,
         help=f"eigen residual bound (default {DEFAULT_TOL})",
     )
+    _add_solver(group)
     group.add_argument(
         "--damping",
         type=_open_unit,
@@ -375,6 +389,7 @@ def _add_score_command(commands: Any) -> None:
         action="store_true",
         help="skip the eigen-solve for the eigengap at the zone count (large networks)",
     )
+    _add_solver(score)
     score.add_argument("--tol", type=_positive_float, default=DEFAULT_TOL, help=argparse.SUPPRESS)
     score.add_argument(
         "--damping",
@@ -436,6 +451,7 @@ def _add_robustness_command(commands: Any) -> None:
         help=f"bottleneck links listed (default {DEFAULT_TOP})",
     )
     robust.add_argument("--tol", type=_positive_float, default=DEFAULT_TOL, help=argparse.SUPPRESS)
+    _add_solver(robust)
     robust.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
     _add_common(robust, out="specgraph-robustness")
 

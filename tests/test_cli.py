@@ -758,3 +758,79 @@ def test_debug_adds_the_traceback_and_keeps_the_exit_code(
     assert code == 2, err
     assert "Traceback" in err
     assert "no such file" in err
+
+
+# ------------------------------------------------------------ --solver
+#: Commands that solve eigenproblems, each with the options that make it run on a
+#: cycle; all take --solver.
+SOLVING_COMMANDS = ("zones", "spectrum", "score", "robustness", "stability", "demo")
+
+
+def cycle_csv(folder: Path, nodes: int = 30) -> Path:
+    """A cycle Q0..Q{n-1}: one component larger than robustness's stacked dense groups."""
+    rows = "".join(f"Q{i},Q{(i + 1) % nodes}\n" for i in range(nodes))
+    return write(folder, "cycle.csv", "source,target\n" + rows)
+
+
+def solver_argv(folder: Path, command: str) -> list[str]:
+    edges = str(cycle_csv(folder))
+    halves = write(
+        folder, "cycle_zones.csv", "node,zone\n" + "".join(f"Q{i},{i // 15}\n" for i in range(30))
+    )
+    return {
+        "zones": ["zones", edges, "--zones", "3"],
+        "spectrum": ["spectrum", edges, "--count", "4"],
+        "score": ["score", edges, str(halves)],
+        "robustness": ["robustness", edges],
+        "stability": ["stability", edges, "--zones", "3", "--repeats", "1"],
+        "demo": ["demo"],
+    }[command]
+
+
+@pytest.mark.parametrize("command", SOLVING_COMMANDS)
+def test_solver_refuses_an_unknown_method(
+    command: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    argv = [*solver_argv(tmp_path, command), "--solver", "cholesky", "--out", str(tmp_path / "o")]
+    assert main(argv) == 2
+    assert "--solver" in capsys.readouterr().err
+    assert not (tmp_path / "o").exists()
+
+
+@pytest.mark.parametrize("command", SOLVING_COMMANDS[:-1])
+def test_solver_reaches_the_library_and_the_record(
+    command: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # On 30 nodes 'auto' takes the dense solver (specgraph.eigen), so 'lanczos'
+    # in the solves shows that the option reached every eigen-solve.
+    from specgraph.eigen import _api
+
+    asked: list[str] = []
+    solve = _api.smallest_eigenpairs
+
+    def spy(*args: object, **kwargs: object) -> object:
+        asked.append(str(kwargs.get("method", "auto")))
+        return solve(*args, **kwargs)  # type: ignore[arg-type]
+
+    for module in ("_commands", "zones._stages", "diagnostics._score", "diagnostics._robustness"):
+        monkeypatch.setattr(f"specgraph.{module}.smallest_eigenpairs", spy)
+    out = tmp_path / "out"
+    assert main([*solver_argv(tmp_path, command), "--solver", "lanczos", "--out", str(out)]) == 0
+    assert asked
+    assert set(asked) == {"lanczos"}, asked
+    record = load_run(out)
+    keyword = "method" if command == "spectrum" else "eigen_method"
+    assert record["parameters"][keyword] == "lanczos"
+    if command == "zones":
+        assert {s["method"] for s in record["eigen_solves"]} == {"lanczos"}
+    if command == "spectrum":
+        assert record["eigen_solve"]["method"] == "lanczos"
+    if command == "robustness":
+        assert record["summary"]["eigen_methods"] == ["lanczos"]
+
+
+def test_solver_default_is_auto_in_the_record(records: dict[str, dict]) -> None:
+    assert records["zones"]["parameters"]["eigen_method"] == "auto"
+    assert records["spectrum"]["parameters"]["method"] == "auto"
+    assert records["score"]["parameters"]["eigen_method"] == "auto"
+    assert records["robustness"]["parameters"]["eigen_method"] == "auto"

@@ -18,7 +18,9 @@ from specgraph.zones._count import (
     DEFAULT_MAX_ZONES,
     NCUT_CHECKED,
     choose_zone_count,
+    count_decided,
     default_candidates,
+    next_pair_count,
     parse_zone_spec,
 )
 
@@ -171,3 +173,44 @@ def test_default_candidates() -> None:
     assert default_candidates(30, n_components=4) == range(5, 16)
     with pytest.raises(ParameterError, match="n_components"):
         default_candidates(3, n_components=4)
+
+
+# ------------------------------------------------ pairs the auto count asks for
+#: Networks with a planted count: networkx's planted partition (Condon and Karp's
+#: model) and ring of cliques; the count is read as before with fewer pairs.
+PLANTED = [
+    pytest.param(lambda: nx.planted_partition_graph(4, 250, 0.05, 0.002, seed=1), 4, id="pp4"),
+    pytest.param(lambda: nx.planted_partition_graph(6, 150, 0.08, 0.002, seed=2), 6, id="pp6"),
+    pytest.param(lambda: nx.ring_of_cliques(8, 10), 8, id="ring8"),
+]
+
+
+@pytest.mark.parametrize(("build", "planted"), PLANTED)
+def test_auto_count_grows_pairs_only_while_undecided(
+    build: object, planted: int, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    from specgraph.zones import _stages
+
+    network = Network.from_networkx(build())  # type: ignore[operator]
+    grown = find_zones(network, "auto", rng=0).decisions["zone_count"]
+    monkeypatch.setattr(_stages, "count_decided", lambda *args, **kwargs: False)
+    full = find_zones(network, "auto", rng=0).decisions["zone_count"]
+    assert grown["choice"] == full["choice"] == planted
+    assert grown["eigenpairs"] < full["eigenpairs"]
+    # At most the count plus 10 pairs, or the reason why more were needed.
+    if grown["eigenpairs"] > grown["choice"] + 10:
+        assert "no count above" in grown["eigenpairs_reason"]
+    assert f"{grown['eigenpairs']} eigenpairs computed" in grown["eigenpairs_reason"]
+
+
+def test_count_decided_follows_the_ceiling_of_the_spectrum() -> None:
+    # Normalized-Laplacian eigenvalues are at most 2 (Chung, Spectral Graph Theory,
+    # Lemma 1.7): a later ratio is at most 2 / lambda_m.
+    values = np.array([0.0, 0.01, 0.012, 0.013, 0.9, 0.95, 1.0])
+    assert count_decided(values, range(2, 30))  # 0.9 / 0.013 >= 2 / 1.0
+    assert not count_decided(values, range(2, 30), checked=3)  # 0.012 / 0.01 < 2
+    flat = np.array([0.0, 0.1, 0.12, 0.14, 0.16, 0.18])
+    assert not count_decided(flat, range(2, 30))  # 0.1 / ... ratios near 1.2 < 2 / 0.18
+    assert count_decided(flat, range(2, 5))  # every candidate computed
+    assert next_pair_count(12, 51) == 24
+    assert next_pair_count(24, 51) == 51  # 48 >= 0.75 * 51: the full solve at once

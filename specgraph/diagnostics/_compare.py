@@ -16,9 +16,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 import scipy.sparse as sp
-from scipy.optimize import linear_sum_assignment
 from scipy.sparse.csgraph import connected_components, min_weight_full_bipartite_matching
-from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
 
 from .. import _figures
 from .._validation import Array, check_param, parameter_error
@@ -338,6 +336,8 @@ def _compare_common(
     overlap["share_of_a"] = share_a
     overlap["share_of_b"] = share_b
 
+    from sklearn.metrics import adjusted_rand_score, normalized_mutual_info_score
+
     vi = variation_of_information(np.column_stack([row, col, nodes]))
     n = int(a.size)
     pairs = _best_pairs(row, col, amount, zones_a.size, zones_b.size)
@@ -425,6 +425,8 @@ def _assign(cells: np.ndarray, row: np.ndarray, col: np.ndarray, amount: np.ndar
     rows, r = np.unique(row, return_inverse=True)
     cols, c = np.unique(col, return_inverse=True)
     if rows.size * cols.size <= MATCH_DENSE_CELLS:
+        from scipy.optimize import linear_sum_assignment
+
         dense = np.zeros((rows.size, cols.size))
         dense[r, c] = amount
         picked_r, picked_c = linear_sum_assignment(dense, maximize=True)

@@ -49,7 +49,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from .._validation import check_choice, check_int, check_positive_float, check_rng, parameter_error
-from ..eigen import DEFAULT_TOL, smallest_eigenpairs
+from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
 from ._cuts import CutStructure, cut_structure
@@ -82,6 +82,7 @@ def _group_spectra(
     kind: str,
     tol: float,
     rng: np.random.Generator,
+    method: str = "auto",
 ) -> _Spectra:
     """Second smallest eigenpair of ``kind``'s Laplacian on each connected group of nodes.
 
@@ -109,7 +110,8 @@ def _group_spectra(
             sub = network
         else:
             sub = Network(adjacency[rows][:, rows], network.node_ids[rows])
-        result = smallest_eigenpairs(laplacian(sub, kind=kind), 2, tol=tol, rng=rng)  # type: ignore[arg-type]
+        operator = laplacian(sub, kind=kind)  # type: ignore[arg-type]
+        result = smallest_eigenpairs(operator, 2, method=method, tol=tol, rng=rng)
         values[group] = result.values[1]
         vector[rows] = result.vectors[:, 1]
         methods.add(result.method)
@@ -222,6 +224,7 @@ def robustness(
     tol: float = DEFAULT_TOL,
     resistance: str = "auto",
     sketch_rows: int = SKETCH_ROWS,
+    eigen_method: str = "auto",
 ) -> Robustness:
     """Algebraic connectivity, bridges, articulation nodes and bottleneck links of a network.
 
@@ -248,6 +251,10 @@ def robustness(
         How resistances are computed (see :func:`effective_resistances`).
     sketch_rows : int, default=SKETCH_ROWS
         Rows of the resistance sketch.
+    eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
+        Solver of the eigen-solves on groups of more than ``STACKED_LIMIT``
+        nodes (the ``method`` of :func:`~specgraph.smallest_eigenpairs`;
+        smaller groups are solved densely, stacked).
 
     Raises
     ------
@@ -278,6 +285,7 @@ def robustness(
     top = check_int(top, "top", minimum=0)
     tol = check_positive_float(tol, "tol")
     check_choice(resistance, "resistance", RESISTANCE_METHODS)
+    check_choice(eigen_method, "eigen_method", METHODS)
     sketch_rows = check_int(sketch_rows, "sketch_rows", minimum=1)
     generator = check_rng(rng)
     zone_labels = None if labels is None else check_labels(network, labels)
@@ -285,14 +293,16 @@ def robustness(
     cuts = cut_structure(network)
     groups = _Groups.of(network.component_labels, network.n_components)
     combinatorial = _group_spectra(
-        network, network.adjacency, groups, "combinatorial", tol, generator
+        network, network.adjacency, groups, "combinatorial", tol, generator, eigen_method
     )
-    normalized = _group_spectra(network, network.adjacency, groups, "normalized", tol, generator)
+    normalized = _group_spectra(
+        network, network.adjacency, groups, "normalized", tol, generator, eigen_method
+    )
     resistances = _resistances(network, cuts, resistance, sketch_rows, generator)
     zones = None
     zone_spectra: list[_Spectra] = []
     if zone_labels is not None:
-        zones, zone_spectra = _zone_table(network, zone_labels, tol, generator)
+        zones, zone_spectra = _zone_table(network, zone_labels, tol, generator, eigen_method)
 
     ids = network.node_ids
     record = {
@@ -357,7 +367,11 @@ def _component_table(
 
 
 def _zone_table(
-    network: Network, labels: np.ndarray, tol: float, rng: np.random.Generator
+    network: Network,
+    labels: np.ndarray,
+    tol: float,
+    rng: np.random.Generator,
+    method: str = "auto",
 ) -> tuple[pd.DataFrame, list[_Spectra]]:
     """Per zone: connected pieces of its induced sub-network and their algebraic connectivity."""
     k = int(labels.max()) + 1 if labels.size else 0
@@ -368,7 +382,7 @@ def _zone_table(
     count, piece = connected_components(inner, directed=False)
     groups = _Groups.of(piece.astype(np.int64), count)
     spectra = [
-        _group_spectra(network, inner, groups, kind, tol, rng)
+        _group_spectra(network, inner, groups, kind, tol, rng, method)
         for kind in ("combinatorial", "normalized")
     ]
     zone_of_piece = np.zeros(count, dtype=np.int64)

@@ -30,8 +30,8 @@ import pandas as pd
 
 from .. import _figures
 from .._figures import UNASSIGNED
-from .._validation import check_positive_float, check_rng, parameter_error
-from ..eigen import DEFAULT_TOL, smallest_eigenpairs
+from .._validation import check_choice, check_positive_float, check_rng, parameter_error
+from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..exceptions import InputError
 from ..network import Network
 from ..operators import laplacian
@@ -294,13 +294,14 @@ def _source_rows(network: Network, sources: Sequence[str]) -> np.ndarray:
 
 
 def _eigengap(
-    network: Network, k: int, rng: Any, tol: float
+    network: Network, k: int, rng: Any, tol: float, method: str = "auto"
 ) -> tuple[np.ndarray | None, dict[str, float | None]]:
     """The ``k+1`` smallest normalized-Laplacian eigenvalues and the gap after the ``k``-th."""
     empty: dict[str, float | None] = dict.fromkeys(_GAP_KEYS)
     if k + 1 > network.n_nodes:
         return None, empty
-    values = smallest_eigenpairs(laplacian(network, kind="normalized"), k + 1, rng=rng, tol=tol)
+    operator = laplacian(network, kind="normalized")
+    values = smallest_eigenpairs(operator, k + 1, method=method, rng=rng, tol=tol)
     lam, nxt = float(values.values[k - 1]), float(values.values[k])
     relative = _figures.relative_gap(lam, nxt)
     return values.values.copy(), {
@@ -323,6 +324,7 @@ def score(
     tol: float = DEFAULT_TOL,
     importance: bool = True,
     damping: float = DEFAULT_DAMPING,
+    eigen_method: str = "auto",
 ) -> Scorecard:
     """Score a zoning: per-zone and overall figures, outliers and the eigengap.
 
@@ -370,6 +372,9 @@ def score(
         Seeds the eigen-solver's start vectors.
     tol : float, default=DEFAULT_TOL
         Scaled residual bound of the eigen-solve.
+    eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
+        Solver of the eigengap's eigen-solve (the ``method`` of
+        :func:`specgraph.smallest_eigenpairs`).
 
     Notes
     -----
@@ -415,6 +420,7 @@ def score(
     """
     labels = _check_user_labels(network, labels)
     tol = check_positive_float(tol, "tol")
+    check_choice(eigen_method, "eigen_method", METHODS)
     generator = check_rng(rng)
     assigned = labels >= 0
     numbers, coded = _with_outside_set(labels, assigned)
@@ -426,7 +432,9 @@ def score(
     node_importance, importance_figures = (
         _importance(network, coded, zones, damping) if importance else (None, {})
     )
-    eigenvalues, gap = _eigengap(network, k, generator, tol) if eigengap else (None, {})
+    eigenvalues, gap = (
+        _eigengap(network, k, generator, tol, eigen_method) if eigengap else (None, {})
+    )
     overall = {
         **_overall(network, zones, figures, terms, assigned),
         **source_figures,

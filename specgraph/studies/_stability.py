@@ -39,7 +39,6 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from sklearn.metrics import adjusted_rand_score
 
 from .. import _figures
 from .._progress import count_progress
@@ -390,6 +389,8 @@ class _Tally:
         return cls(reference, stays, np.zeros(int(reference.max()) + 1))
 
     def add(self, kind: str, run: Zoning) -> None:
+        from sklearn.metrics import adjusted_rand_score
+
         match = match_zones(self.reference, run.labels)
         self.stays[kind] += match.stayed
         self.jaccard += match.jaccard

@@ -29,15 +29,19 @@ from ..exceptions import ParameterError
 
 __all__ = [
     "DEFAULT_MAX_ZONES",
+    "FIRST_PAIRS",
     "HIGH_GAP",
     "MEDIUM_GAP",
     "NCUT_CHECKED",
     "NCUT_OVERRULE",
     "SEPARATION",
     "SEPARATION_MEDIUM",
+    "SPECTRUM_CEILING",
     "ZoneCount",
     "choose_zone_count",
+    "count_decided",
     "default_candidates",
+    "next_pair_count",
     "parse_zone_spec",
 ]
 
@@ -75,6 +79,23 @@ NCUT_CHECKED = 3
 #: other candidates of the same networks and 0.97 to 1.44 on a road-like
 #: network of 600 nodes (k = 2..12).
 NCUT_OVERRULE = 2.0
+
+#: Eigenpairs the zone-count search asks for first. Their eigenvalues decide
+#: the count whenever :func:`count_decided` says so; otherwise the search asks
+#: for twice as many, up to what the candidates need. Twelve pairs rank counts
+#: up to 11, so a count they decide costs at most the count plus 10 pairs.
+FIRST_PAIRS = 12
+
+#: Upper bound on every eigenvalue of the normalized Laplacian (and of Chung's
+#: directed Laplacian): :math:`\lambda \le 2`, with equality only for a
+#: bipartite component (F. Chung, Spectral Graph Theory, AMS 1997, Lemma 1.7;
+#: F. Chung, Annals of Combinatorics 9, 2005, for the directed one).
+SPECTRUM_CEILING = 2.0
+
+#: The search asks for all the pairs the candidates need at once when doubling
+#: would reach at least this share of them: a nearly full second solve is no
+#: cheaper than the full one.
+FULL_SOLVE_SHARE = 0.75
 
 _COLUMNS = [
     "zones",
@@ -349,6 +370,53 @@ def choose_zone_count(
         else:
             reason += f"; the normalized cut per zone jumps {jumps[best]:.2g} times after it"
     return ZoneCount(ks[best], table, confidence, reason)
+
+
+def count_decided(values: np.ndarray, candidates: range, *, checked: int = 1) -> bool:
+    """Whether the first eigenvalues already decide :func:`choose_zone_count` over ``candidates``.
+
+    ``values`` are the ``m`` smallest eigenvalues computed so far; they rank
+    the candidates ``k <= m - 1``. Every later candidate ``k >= m`` has ratio
+    :math:`\\lambda_{k+1}/\\lambda_k \\le` :data:`SPECTRUM_CEILING` :math:`/
+    \\lambda_m`, since eigenvalues ascend and never exceed the ceiling. When the
+    ``checked`` largest ratios among the computed candidates all reach that
+    bound, no later candidate can enter them. With ``checked=1`` (what
+    :func:`~specgraph.find_zones` uses) the count with the largest gap is the
+    full spectrum's; the runner-up behind the confidence and the
+    normalized-cut check (:data:`NCUT_CHECKED` candidates) are then read among
+    the computed counts. ``checked=NCUT_CHECKED`` would make the whole choice
+    that of the full spectrum, but on real spectra the runners-up are small
+    ratios (1.1 to 1.5) that the bound, at least 1, rarely clears. Decided
+    also when every candidate is computed.
+
+    Examples
+    --------
+    >>> values = np.array([0.0, 0.01, 0.012, 0.013, 0.9, 0.95, 1.0])
+    >>> count_decided(values, range(2, 30), checked=1)  # 0.9/0.013 >= 2/1.0
+    True
+    >>> count_decided(values, range(2, 30), checked=3)  # 0.012/0.01 < 2
+    False
+    """
+    m = int(values.size)
+    ks = [k for k in candidates if k <= m - 1]
+    if len(ks) == len(candidates):
+        return True
+    if not ks or values[-1] <= 0:
+        return False
+    lam = values[np.asarray(ks) - 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratios = np.where(lam > 0, values[np.asarray(ks)] / lam, np.inf)
+    top = np.sort(ratios)[::-1][: min(checked, len(candidates))]
+    return top.size == min(checked, len(candidates)) and bool(
+        top.min() >= SPECTRUM_CEILING / values[-1]
+    )
+
+
+def next_pair_count(pairs: int, needed: int) -> int:
+    """Pairs to ask for after ``pairs`` left the count undecided: twice as many, at most
+    ``needed`` (all the candidates' pairs), and ``needed`` once doubling comes close to it."""
+    doubled = 2 * pairs
+    return needed if doubled >= FULL_SOLVE_SHARE * needed else doubled
 
 
 #: What a zone count written as text may be, for the error message.

@@ -35,7 +35,13 @@ from ._constraints import (
     contract_links,
     enforce_constraints,
 )
-from ._count import choose_zone_count, default_candidates
+from ._count import (
+    FIRST_PAIRS,
+    choose_zone_count,
+    count_decided,
+    default_candidates,
+    next_pair_count,
+)
 from ._embedding import normalized_rows
 from ._operator import NORMALIZED_LIKE
 from ._refine import normalized_cut, refine_boundary
@@ -195,21 +201,41 @@ def choose_count(
         return only, {"choice": only, "reason": f"the only count {bounded}"}, None
     count_kind = "directed" if solver.kind == "directed" else "normalized"
     normalized = replace(solver, kind=count_kind) if solver.kind != count_kind else solver
-    result = normalized.solve(work, max(candidates) + 1)
+    # Ask for few pairs first and double them only while a later count could still
+    # have one of the largest gaps (count_decided); at most what the candidates need.
+    needed = max(candidates) + 1
+    ranked = range(max(candidates.start, c + 1), candidates.stop)
+    pairs = min(needed, max(FIRST_PAIRS, ranked.start + 1))
+    solves = []
+    while True:
+        result = normalized.solve(work, pairs)
+        solves.append(pairs)
+        if pairs >= needed or count_decided(result.values, ranked):
+            break
+        pairs = next_pair_count(pairs, needed)
+    searched = range(candidates.start, min(candidates.stop, result.k))
     vectors = result.vectors
 
     def curve(k: int) -> float:
         labels = qr_labels(vectors[:, :k], k)
         return normalized_cut(work.adjacency, labels)
 
-    choice = choose_zone_count(
-        result.values, candidates=candidates, n_components=c, ncut_curve=curve
+    choice = choose_zone_count(result.values, candidates=searched, n_components=c, ncut_curve=curve)
+    decided = (
+        "all the candidates' pairs computed"
+        if result.k >= needed
+        else f"no count above {searched.stop - 1} can reach the largest gaps (eigenvalues "
+        "are at most 2)"
     )
     record = {
         "choice": choice.zones,
         "confidence": choice.confidence,
         "reason": choice.reason + (f" (counts {bounded})" if bounded else ""),
         "evidence": choice.evidence.to_dict(orient="records"),
+        "eigenpairs": int(result.k),
+        "eigenpairs_reason": (
+            f"{result.k} eigenpairs computed (solves of {', '.join(map(str, solves))}): {decided}"
+        ),
     }
     return choice.zones, record, result if c == 1 and solver.kind == count_kind else None
 
