@@ -252,6 +252,11 @@ def network_rows(net: RealNetwork, args: argparse.Namespace, work: Path) -> list
 
 
 def pairs_computed(record: dict[str, Any]) -> int:
+    """Eigenpairs a run computed: the zone-count search's (which the zoning reuses), else
+    the sum over the recorded solves."""
+    counted = record.get("decisions", {}).get("zone_count", {}).get("eigenpairs")
+    if counted is not None:
+        return int(counted)
     return sum(int(s.get("pairs", 0)) for s in record.get("eigen_solves", []))
 
 

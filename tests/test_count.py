@@ -212,5 +212,16 @@ def test_count_decided_follows_the_ceiling_of_the_spectrum() -> None:
     flat = np.array([0.0, 0.1, 0.12, 0.14, 0.16, 0.18])
     assert not count_decided(flat, range(2, 30))  # 0.1 / ... ratios near 1.2 < 2 / 0.18
     assert count_decided(flat, range(2, 5))  # every candidate computed
-    assert next_pair_count(12, 51) == 24
-    assert next_pair_count(24, 51) == 51  # 48 >= 0.75 * 51: the full solve at once
+    assert next_pair_count(flat, 51, range(2, 51)) == 51  # 1.2 * 4 * 0.18 < 2: cannot decide
+    assert next_pair_count(values, 51, range(2, 51)) == 14  # 0.9/0.013 may clear 2/(4*1.0)
+    assert next_pair_count(values, 9, range(2, 9)) == 9  # 14 >= 0.75 * 9: the full solve at once
+
+
+def test_a_mesh_spectrum_goes_straight_to_the_full_solve() -> None:
+    # The path P_n's normalized-Laplacian spectrum 1 - cos(pi k/(n-1)) (closed form,
+    # Chung 1997, ch. 1 (from memory)): gap ratios near 1 + 2/k, never decided early, and
+    # doubling 12 pairs could not change that, so the next solve is the full one.
+    n = 400
+    values = 1 - np.cos(np.pi * np.arange(12) / (n - 1))
+    assert not count_decided(values, range(2, 51))
+    assert next_pair_count(values, 51, range(2, 51)) == 51

@@ -37,6 +37,7 @@ __all__ = [
     "SEPARATION",
     "SEPARATION_MEDIUM",
     "SPECTRUM_CEILING",
+    "SPECTRUM_GROWTH",
     "ZoneCount",
     "choose_zone_count",
     "count_decided",
@@ -91,6 +92,15 @@ FIRST_PAIRS = 12
 #: bipartite component (F. Chung, Spectral Graph Theory, AMS 1997, Lemma 1.7;
 #: F. Chung, Annals of Combinatorics 9, 2005, for the directed one).
 SPECTRUM_CEILING = 2.0
+
+#: How much doubling the number of pairs raises the last eigenvalue computed,
+#: at most, on mesh-like networks (the ones without a clear count): the path
+#: P_n's spectrum :math:`2 - 2\\cos(\\pi k/n) \\approx (\\pi k/n)^2` grows as
+#: :math:`k^2`, so doubling ``k`` multiplies it by 4 (closed form, Brouwer and
+#: Haemers, *Spectra of Graphs*, 2012, ch. 1 (from memory)); on two-dimensional
+#: meshes it grows as ``k`` (Weyl's law), by 2. With 4 the search goes straight
+#: to the full solve only where doubling could not have decided.
+SPECTRUM_GROWTH = 4.0
 
 #: The search asks for all the pairs the candidates need at once when doubling
 #: would reach at least this share of them: a nearly full second solve is no
@@ -397,26 +407,60 @@ def count_decided(values: np.ndarray, candidates: range, *, checked: int = 1) ->
     >>> count_decided(values, range(2, 30), checked=3)  # 0.012/0.01 < 2
     False
     """
-    m = int(values.size)
-    ks = [k for k in candidates if k <= m - 1]
-    if len(ks) == len(candidates):
+    ratios = _computed_ratios(values, candidates)
+    if ratios.size == len(candidates):
         return True
-    if not ks or values[-1] <= 0:
+    if not ratios.size or values[-1] <= 0:
         return False
-    lam = values[np.asarray(ks) - 1]
-    with np.errstate(divide="ignore", invalid="ignore"):
-        ratios = np.where(lam > 0, values[np.asarray(ks)] / lam, np.inf)
     top = np.sort(ratios)[::-1][: min(checked, len(candidates))]
     return top.size == min(checked, len(candidates)) and bool(
         top.min() >= SPECTRUM_CEILING / values[-1]
     )
 
 
-def next_pair_count(pairs: int, needed: int) -> int:
-    """Pairs to ask for after ``pairs`` left the count undecided: twice as many, at most
-    ``needed`` (all the candidates' pairs), and ``needed`` once doubling comes close to it."""
-    doubled = 2 * pairs
-    return needed if doubled >= FULL_SOLVE_SHARE * needed else doubled
+def _computed_ratios(values: np.ndarray, candidates: range) -> np.ndarray:
+    """Gap ratios :math:`\\lambda_{k+1}/\\lambda_k` of the candidates ``values`` can rank."""
+    ks = np.asarray([k for k in candidates if k <= values.size - 1], dtype=np.int64)
+    if not ks.size:
+        return np.empty(0)
+    lam = values[ks - 1]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(lam > 0, values[ks] / lam, np.inf)
+
+
+def next_pair_count(values: np.ndarray, needed: int, candidates: range) -> int:
+    """Pairs to ask for after ``values`` (the pairs computed) left the count undecided.
+
+    Twice as many, at most ``needed`` (all the candidates' pairs), with two
+    shortcuts to the full solve, since each solve starts afresh and a solve
+    that cannot decide only adds work:
+
+    * doubling would reach :data:`FULL_SOLVE_SHARE` of ``needed``;
+    * doubling cannot be expected to decide: deciding needs the largest gap
+      ratio found so far to reach :data:`SPECTRUM_CEILING` over the last
+      eigenvalue computed, and doubling the pairs raises that eigenvalue by at
+      most about :data:`SPECTRUM_GROWTH` on mesh-like networks (the ones
+      without a clear count), so a ratio below
+      ``SPECTRUM_CEILING / (SPECTRUM_GROWTH * values[-1])`` will still fall
+      short.
+
+    Examples
+    --------
+    >>> clear = np.array([0.0, 1e-3, 2e-3, 3e-3, 0.5, *np.linspace(0.6, 0.7, 7)])
+    >>> next_pair_count(clear, 51, range(2, 51))  # 0.5 / 3e-3 may clear 2 / (4 * 0.7)
+    24
+    >>> mesh = np.array([0.0, *np.linspace(1e-3, 1.1e-2, 11)])
+    >>> next_pair_count(mesh, 51, range(2, 51))  # ratios near 1.1 < 2 / (4 * 0.011)
+    51
+    """
+    doubled = 2 * int(values.size)
+    if doubled >= FULL_SOLVE_SHARE * needed:
+        return needed
+    ratios = _computed_ratios(values, candidates)
+    best = float(ratios.max()) if ratios.size else 0.0
+    if best * SPECTRUM_GROWTH * float(values[-1]) < SPECTRUM_CEILING:
+        return needed
+    return min(doubled, needed)
 
 
 #: What a zone count written as text may be, for the error message.

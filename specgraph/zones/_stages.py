@@ -212,7 +212,7 @@ def choose_count(
         solves.append(pairs)
         if pairs >= needed or count_decided(result.values, ranked):
             break
-        pairs = next_pair_count(pairs, needed)
+        pairs = next_pair_count(result.values, needed, ranked)
     searched = range(candidates.start, min(candidates.stop, result.k))
     vectors = result.vectors
 
