@@ -23,6 +23,7 @@ the one asked for, with the reason.
 
 from __future__ import annotations
 
+import logging
 import time
 from dataclasses import dataclass, field
 from typing import Any
@@ -46,6 +47,8 @@ __all__ = [
     "comparison_order",
     "zone_warnings",
 ]
+
+logger = logging.getLogger(__name__)
 
 #: Largest ``n * k`` (nodes of the network zoned, after merging, times zones)
 #: at which ``assign="auto"`` compares every assignment; above it the rule of
@@ -204,10 +207,15 @@ def best_assignment(
     if best is None:
         assert tried[0].error is not None
         raise tried[0].error
-    alternatives = [
-        {"method": c.method, **c.figures, **({"error": str(c.error)} if c.error else {})}
-        for c in tried
-    ]
+    alternatives = []
+    for c in tried:
+        figures = {key: value for key, value in c.figures.items() if key != "seconds"}
+        alternatives.append(
+            {"method": c.method, **figures, **({"error": str(c.error)} if c.error else {})}
+        )
+        # Seconds go to the log, not to the record: run.json stays the same, byte
+        # for byte, for the same seed.
+        logger.debug("assign=auto: %s took %.3f s", c.method, c.figures["seconds"])
     said = ", ".join(
         f"{c.method} {c.figures['ncut']:.4g}"
         if c.labels is not None
