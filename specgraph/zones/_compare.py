@@ -52,15 +52,17 @@ logger = logging.getLogger(__name__)
 
 #: Largest ``n * k`` (nodes of the network zoned, after merging, times zones)
 #: at which ``assign="auto"`` compares every assignment; above it the rule of
-#: :func:`choose_assignment` picks one. The comparison costs about the three
+#: :func:`choose_assignment` picks one. The comparison costs the three
 #: assignments plus three enforcements and refinements; recursive bisection
-#: solves ``k - 1`` eigenproblems of its own. Measured on the 2-core test
-#: machine (see docs/zones.md): the whole comparison took 0.3 s at
-#: ``n * k`` = 7,700 (964 nodes, 8 zones), 1.7 s at 46,000 (3,815 nodes,
-#: 12 zones) and 6 s at 111,000 (9,241 nodes, 12 zones), growing about
-#: linearly; 2,000,000 bounds it near two minutes, and keeps it on every
-#: network of the real-network benchmark at 4 to 50 zones below 40,000 nodes.
-COMPARE_MAX_WORK = 2_000_000
+#: solves ``k - 1`` eigenproblems of its own and dominates. Measured with
+#: ``find_zones(net, k, rng=0)`` on the real-network benchmark's files, on the
+#: shared 2-core test machine under load (seconds of the three alternatives,
+#: bisection's share in brackets): ky4 (964 nodes) at 8 zones 0.60 s (0.20);
+#: backbone-world (3,815) at 12 zones 1.19 s (0.83); case9241pegase (9,241)
+#: at 12 zones 4.25 s (3.37) -- about 40 microseconds per unit of ``n * k``.
+#: 500,000 bounds the comparison near 20 s (10,000 nodes at 50 zones, or
+#: 50,000 at 10).
+COMPARE_MAX_WORK = 500_000
 
 #: Relative margin by which an alternative's normalized cut must beat the
 #: one before it in :func:`comparison_order` to win: differences below it
