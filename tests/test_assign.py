@@ -1,9 +1,13 @@
-"""Zone assignments: pivoted-QR labels, recursive bisection, the ``auto`` rule.
+"""Zone assignments: pivoted-QR labels, recursive bisection, the ``auto`` rule and comparison.
 
 Truths come from networkx generators (planted partition and stochastic block
 model carry their blocks); partitions are compared up to relabelling with
 scikit-learn's ``adjusted_rand_score``; conductances with networkx's
-``conductance``; minimum conductances by brute force over all node subsets.
+``conductance``; minimum conductances by brute force over all node subsets;
+normalized cuts by the k-way formula of Shi and Malik (2000), checked against
+networkx's ``normalized_cut_size`` for two zones and a closed form for rings of
+cliques; anchors are scikit-learn's ``SpectralClustering`` (precomputed
+affinity, both ``assign_labels``).
 """
 
 from __future__ import annotations
@@ -17,7 +21,15 @@ from scipy.sparse.csgraph import connected_components
 from scipy.stats import ortho_group
 from sklearn.metrics import adjusted_rand_score
 
-from specgraph import Network, ParameterError, gallery, laplacian, smallest_eigenpairs
+from specgraph import (
+    Network,
+    ParameterError,
+    find_zones,
+    gallery,
+    laplacian,
+    smallest_eigenpairs,
+)
+from specgraph.zones import ZoneConstraints
 from specgraph.zones._assign import (
     CONCENTRATION_QR,
     MESH_EIGENVALUE,
@@ -284,3 +296,148 @@ def test_auto_takes_kmeans_on_a_loose_embedding_with_structure() -> None:
 def test_auto_needs_the_eigenvalue_after_k() -> None:
     with pytest.raises(ParameterError, match="values"):
         choose_assignment(np.array([0.0, 0.1, 0.2]), np.ones((10, 3)), 3)
+
+
+# ------------------------------------------------- auto: compare and keep the best
+def ncut(adjacency: object, labels: np.ndarray) -> float:
+    """k-way normalized cut sum_z cut(z) / vol(z) (Shi and Malik 2000), dense, from scratch."""
+    a = np.asarray(adjacency.toarray() if hasattr(adjacency, "toarray") else adjacency)  # type: ignore[union-attr]
+    degree = a.sum(axis=1)
+    total = 0.0
+    for z in np.unique(labels):
+        inside = labels == z
+        total += a[inside][:, ~inside].sum() / degree[inside].sum()
+    return float(total)
+
+
+def ring_of_cliques(m: int, s: int) -> Network:
+    """networkx ``ring_of_cliques``: m cliques of s nodes, neighbours joined by one link."""
+    return Network.from_networkx(nx.ring_of_cliques(m, s), weight=None)
+
+
+def weighted_grid(rows: int, cols: int, seed: int) -> Network:
+    graph = nx.grid_2d_graph(rows, cols)
+    rng = np.random.default_rng(seed)
+    for u, v in graph.edges:
+        graph.edges[u, v]["weight"] = float(rng.uniform(0.2, 5.0))
+    return Network.from_networkx(nx.convert_node_labels_to_integers(graph))
+
+
+def test_auto_keeps_the_lowest_cut_of_the_alternatives() -> None:
+    net, _ = planted(4, 30, seed=5)
+    zoning = find_zones(net, 4, rng=0)
+    record = zoning.decisions["assign"]
+    figures = {alt["method"]: alt for alt in record["alternatives"]}
+    assert set(figures) == {"kmeans", "qr", "bisection"}
+    achieved = ncut(net.adjacency, zoning.labels)
+    # The recorded figure of the winner is the normalized cut of the labels delivered.
+    assert figures[record["choice"]]["ncut"] == pytest.approx(achieved, rel=1e-9)
+    for alt in figures.values():
+        assert achieved <= alt["ncut"] * (1 + 1e-9)
+        assert alt["connected_zones"] == alt["zones"] == 4
+        assert "seconds" not in alt  # run.json must not change between runs of one seed
+    assert record["rule_choice"] in figures
+
+
+def test_auto_two_zone_cut_matches_networkx() -> None:
+    # For two zones the k-way normalized cut is networkx's normalized_cut_size.
+    net = gallery.two_zone(40, seed=3)
+    zoning = find_zones(net, 2, rng=0)
+    graph = nx.from_scipy_sparse_array(net.adjacency)
+    side = set(np.flatnonzero(zoning.labels == 0).tolist())
+    expected = nx.normalized_cut_size(graph, side, weight="weight")
+    assert ncut(net.adjacency, zoning.labels) == pytest.approx(expected, rel=1e-12)
+    best = min(alt["ncut"] for alt in zoning.decisions["assign"]["alternatives"])
+    assert expected == pytest.approx(best, rel=1e-9)
+
+
+@pytest.mark.parametrize(("m", "s"), [(6, 5), (8, 6)])
+def test_auto_finds_the_cliques_of_a_ring_of_cliques(m: int, s: int) -> None:
+    # One zone per clique: each clique has 2 cut links and volume s(s-1) + 2, so the
+    # normalized cut is m * 2 / (s (s - 1) + 2) (closed form of the clique partition).
+    net = ring_of_cliques(m, s)
+    zoning = find_zones(net, m, rng=0)
+    assert ncut(net.adjacency, zoning.labels) == pytest.approx(m * 2 / (s * (s - 1) + 2))
+    cliques = np.repeat(np.arange(m), s)  # networkx numbers the cliques' nodes in a row
+    assert adjusted_rand_score(cliques, zoning.labels) == 1.0
+
+
+def sklearn_ncut(net: Network, k: int, assign_labels: str) -> float:
+    from sklearn.cluster import SpectralClustering
+
+    model = SpectralClustering(
+        n_clusters=k, affinity="precomputed", assign_labels=assign_labels, random_state=0
+    )
+    return ncut(net.adjacency, model.fit_predict(net.adjacency.toarray()))
+
+
+@pytest.mark.parametrize(
+    ("name", "k"),
+    [("planted", 4), ("planted", 6), ("grid", 4), ("grid", 6)],
+)
+def test_auto_is_never_worse_than_scikit_learn(name: str, k: int) -> None:
+    if name == "planted":
+        graph = nx.planted_partition_graph(k, 25, 0.3, 0.02, seed=11)
+        assert nx.is_connected(graph)
+        net = Network.from_networkx(graph, weight=None)
+    else:
+        net = weighted_grid(12, 14, seed=k)
+    zoning = find_zones(net, k, rng=0)
+    ours = ncut(net.adjacency, zoning.labels)
+    theirs = min(sklearn_ncut(net, k, "kmeans"), sklearn_ncut(net, k, "cluster_qr"))
+    assert ours <= theirs * (1 + 1e-9)
+    # Every zone connected (scipy connected_components of each zone's links).
+    for z in range(zoning.n_zones):
+        rows = np.flatnonzero(zoning.labels == z)
+        pieces, _ = connected_components(net.adjacency[rows][:, rows], directed=False)
+        assert pieces == 1
+
+
+def test_auto_is_deterministic_for_a_seed() -> None:
+    net = weighted_grid(10, 11, seed=2)
+    first = find_zones(net, 5, rng=42)
+    second = find_zones(net, 5, rng=np.random.default_rng(42))
+    assert np.array_equal(first.labels, second.labels)
+    assert first.decisions["assign"]["choice"] == second.decisions["assign"]["choice"]
+
+
+def test_named_assignment_is_not_compared() -> None:
+    zoning = find_zones(weighted_grid(8, 9, seed=1), 3, assign="qr", rng=0)
+    assert dict(zoning.decisions["assign"]) == {"choice": "qr", "reason": "asked"}
+
+
+def test_auto_falls_back_to_the_rule_above_the_limit(monkeypatch: pytest.MonkeyPatch) -> None:
+    import specgraph.zones._compare as compare
+
+    net = weighted_grid(8, 9, seed=1)
+    monkeypatch.setattr(compare, "COMPARE_MAX_WORK", 8 * 9 * 3 - 1)
+    zoning = find_zones(net, 3, rng=0)
+    record = zoning.decisions["assign"]
+    assert "alternatives" not in record
+    assert "not compared" in record["reason"]
+    values, vectors = eigenvectors(net, 3)
+    assert record["choice"] == choose_assignment(values, vectors, 3).method
+
+
+def test_warns_of_a_zone_under_one_percent() -> None:
+    # Two cliques of 120 nodes and a separate pair: the pair is its own zone,
+    # 2 of 242 nodes (0.8 %, under SMALL_ZONE_SHARE).
+    graph = nx.disjoint_union(nx.barbell_graph(120, 0), nx.path_graph(2))
+    zoning = find_zones(Network.from_networkx(graph, weight=None), 3, rng=0)
+    assert zoning.n_zones == 3
+    assert sum(1 for w in zoning.warnings if "under 1%" in w) == 1
+    # No warning when every zone is large (the barbell alone).
+    alone = find_zones(Network.from_networkx(nx.barbell_graph(120, 0), weight=None), 2, rng=0)
+    assert not any("under 1%" in w for w in alone.warnings)
+
+
+def test_warns_when_size_bounds_change_the_count() -> None:
+    net = gallery.grid(10, 12)  # 120 nodes: at most 6 zones of 20
+    zoning = find_zones(net, 12, rng=0, constraints=ZoneConstraints(min_size=20))
+    assert zoning.n_zones <= 6
+    said = [w for w in zoning.warnings if "were asked" in w]
+    assert len(said) == 1
+    assert f"{zoning.n_zones} zones delivered where 12 were asked" in said[0]
+    assert "min_size" in said[0]
+    exact = find_zones(net, 4, rng=0)
+    assert not any("were asked" in w for w in exact.warnings)

@@ -52,11 +52,14 @@ __all__ = [
     "Merged",
     "SolveOptions",
     "assign_component",
+    "assign_with",
     "choose_count",
     "directed_record",
     "enforce_rules",
     "merge_together",
     "refine_zones",
+    "rule_choice",
+    "solve_component",
     "summarize_methods",
     "tree_pairs",
     "zones_per_component",
@@ -285,18 +288,43 @@ def zones_per_component(work: Network, k: int) -> tuple[np.ndarray, list[str]]:
     return allocate_zones(weight, nodes, k), notes
 
 
+def solve_component(
+    sub: Network, k: int, solver: SolveOptions, known: EigenResult | None
+) -> EigenResult:
+    """The ``k + 1`` smallest pairs of one connected component (reusing ``known``)."""
+    return _slice(known, k + 1) if known is not None and known.k > k else solver.solve(sub, k + 1)
+
+
+def assign_with(
+    sub: Network, k: int, assign: str, solver: SolveOptions, eig: EigenResult
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Zones ``0..k-1`` of one component from its eigen-solve, by ``assign`` or its rule."""
+    if k >= sub.n_nodes:
+        # As many zones as nodes: one node per zone, nothing to choose.
+        labels = np.arange(sub.n_nodes, dtype=np.int64)
+        return labels, {"choice": "one node per zone", "reason": "as many zones as nodes"}
+    method, reason = _assignment_method(sub, k, assign, solver, eig)
+    labels = _ASSIGNERS[method](sub, eig.vectors[:, :k], k, solver)
+    return np.asarray(labels, dtype=np.int64), {"choice": method, "reason": reason}
+
+
 def assign_component(
     sub: Network, k: int, assign: str, solver: SolveOptions, known: EigenResult | None
 ) -> tuple[np.ndarray, EigenResult, dict[str, Any]]:
     """Zones ``0..k-1`` of one connected component, its eigen-solve, the method's reason."""
-    eig = _slice(known, k + 1) if known is not None and known.k > k else solver.solve(sub, k + 1)
+    eig = solve_component(sub, k, solver, known)
+    labels, record = assign_with(sub, k, assign, solver, eig)
+    return labels, eig, record
+
+
+def rule_choice(
+    sub: Network, k: int, assign: str, solver: SolveOptions, eig: EigenResult
+) -> dict[str, Any]:
+    """The assignment asked for, or the ``auto`` rule's pick, as a decision record."""
     if k >= sub.n_nodes:
-        # As many zones as nodes: one node per zone, nothing to choose.
-        labels = np.arange(sub.n_nodes, dtype=np.int64)
-        return labels, eig, {"choice": "one node per zone", "reason": "as many zones as nodes"}
+        return {"choice": "one node per zone", "reason": "as many zones as nodes"}
     method, reason = _assignment_method(sub, k, assign, solver, eig)
-    labels = _ASSIGNERS[method](sub, eig.vectors[:, :k], k, solver)
-    return np.asarray(labels, dtype=np.int64), eig, {"choice": method, "reason": reason}
+    return {"choice": method, "reason": reason}
 
 
 def _assignment_method(

@@ -24,6 +24,7 @@ Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 from __future__ import annotations
 
 import logging
+import time
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from typing import Any
@@ -50,6 +51,13 @@ from .._validation import (
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult
 from ..network import Network
 from ..walks import DEFAULT_DAMPING
+from ._compare import (
+    COMPARE_MAX_WORK,
+    best_assignment,
+    comparison_affordable,
+    comparison_order,
+    zone_warnings,
+)
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
 from ._count import parse_zone_spec
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
@@ -58,12 +66,14 @@ from ._stages import (
     _ASSIGNERS,
     Merged,
     SolveOptions,
-    assign_component,
+    assign_with,
     choose_count,
     directed_record,
     enforce_rules,
     merge_together,
     refine_zones,
+    rule_choice,
+    solve_component,
     summarize_methods,
     tree_pairs,
     zones_per_component,
@@ -390,20 +400,42 @@ def find_zones(
     k, decisions["zone_count"], known = choose_count(work, options.spec, merged.rules, solver)
 
     # Step 4: share the zones among components; solve, embed and assign each.
-    raw, solves, notes, assigned = _zone_components(work, k, options.assign, solver, known)
-    decisions.update(assigned)
+    step4 = _zone_components(work, k, options.assign, solver, known)
+    decisions.update(step4.decisions)
 
-    # Step 5: the user's rules, then boundary refinement.
+    # Step 5: the user's rules, then boundary refinement (for every assignment
+    # compared by ``assign="auto"``, keeping the lowest normalized cut).
     stage("constraints")
-    labels_w, decisions["constraints"] = enforce_rules(work, raw, merged, options.rng)
-    if options.refine:
-        stage("refining")
-        labels_w, decisions["refinement"] = refine_zones(network, merged, labels_w, options.rng)
+    if len(step4.raws) > 1:
+        if options.refine:
+            stage("refining")
+        winner, decisions["assign"] = best_assignment(
+            network,
+            merged,
+            step4.raws,
+            step4.asked,
+            refine=options.refine,
+            rng=options.rng,
+            rule=decisions.get("assign", {}),
+        )
+        assert winner.labels is not None
+        labels_w = winner.labels
+        decisions.update(winner.decisions)
+    else:
+        ((raw, _),) = step4.raws.values()
+        labels_w, decisions["constraints"] = enforce_rules(work, raw, merged, options.rng)
+        if options.refine:
+            stage("refining")
+            labels_w, decisions["refinement"] = refine_zones(network, merged, labels_w, options.rng)
 
     # Step 6: back to nodes, numbered by size, with the zone table and boundary.
     labels = number_by_size(labels_w[merged.groups], network.node_weights)
     parameters = options.record(_constraint_record(rules), kind)
-    return _zoning(network, labels, solves, parameters, decisions, notes)
+    notes = [
+        *step4.notes,
+        *zone_warnings(network, labels, step4.asked, decisions["constraints"]["notes"]),
+    ]
+    return _zoning(network, labels, step4.solves, parameters, decisions, notes)
 
 
 # ------------------------------------------------------------------ steps
@@ -481,34 +513,80 @@ def _merge_and_choose_operator(
     return merged, choice.kind, {"trees": trees_decision, "operator": choice.as_decision()}
 
 
+@dataclass(frozen=True, eq=False)
+class _Assigned:
+    """Step 4's result: the labels of every assignment tried, solves, notes, decisions."""
+
+    #: Labels of the merged network and the seconds they took, by assignment
+    #: (one entry unless ``assign="auto"`` compares them).
+    raws: dict[str, tuple[np.ndarray, float]]
+    solves: list[ComponentSolve]
+    notes: list[str]
+    decisions: dict[str, dict[str, Any]]
+    #: Zones asked of the assignments, summed over components.
+    asked: int
+
+
 def _zone_components(
     work: Network, k: int, assign: str, solver: SolveOptions, known: EigenResult | None
-) -> tuple[np.ndarray, list[ComponentSolve], list[str], dict[str, dict[str, Any]]]:
+) -> _Assigned:
     """Step 4: zones of every component, numbered consecutively, with their solves.
 
-    Returns the labels, the solves, the notes on components and the decisions
-    of the step (``"assign"`` when a component was split, ``"directed"`` for
-    the directed operator).
+    With ``assign="auto"``, a normalized-like operator and ``n * k`` within
+    :data:`COMPARE_MAX_WORK`, every assignment is run on the same solves (one
+    labelling each, in :func:`comparison_order`); otherwise the one asked for,
+    or the rule's pick per component. The decisions hold ``"assign"`` (the
+    rule's record when comparing) and, for the directed operator, ``"directed"``.
     """
     per_component, notes = zones_per_component(work, min(k, work.n_nodes))
-    raw = np.zeros(work.n_nodes, dtype=np.int64)
-    solves, methods = [], []
-    offset = 0
+    asked = int(per_component.sum())
+    compare = (
+        assign == "auto"
+        and solver.kind in NORMALIZED_LIKE
+        and comparison_affordable(work.n_nodes, asked)
+    )
+    raw = _component_offsets(work, per_component)
+    parts, solves, methods = [], [], []
     for comp, k_c in enumerate(per_component.tolist()):
         rows = np.flatnonzero(work.component_labels == comp)
         if k_c > 1:
             sub = work if rows.size == work.n_nodes else work.subnetwork(rows)
-            local, eig, method = assign_component(sub, k_c, assign, solver, known)
+            eig = solve_component(sub, k_c, solver, known)
             solves.append(ComponentSolve(comp, rows, k_c, eig))
-            methods.append(method)
-            raw[rows] = local + offset
-        else:
-            raw[rows] = offset
-        offset += k_c
+            methods.append(rule_choice(sub, k_c, assign, solver, eig))
+            parts.append((rows, k_c, sub, eig))
+            if not compare:
+                raw[rows] += assign_with(sub, k_c, methods[-1]["choice"], solver, eig)[0]
+    raws = {assign: (raw, 0.0)}  # seconds are recorded only when comparing
+    compare = compare and bool(parts)
+    if compare:
+        raws = {}
+        for method in comparison_order(_first_method(methods)):
+            start = time.perf_counter()
+            labels = raw.copy()
+            for rows, k_c, sub, eig in parts:
+                labels[rows] += assign_with(sub, k_c, method, solver, eig)[0]
+            raws[method] = (labels, time.perf_counter() - start)
     decisions = {"assign": summarize_methods(methods)} if methods else {}
+    if parts and not compare and assign == "auto" and solver.kind in NORMALIZED_LIKE:
+        decisions["assign"]["reason"] += (
+            f" (assignments not compared: n * k = {work.n_nodes * asked:,} > {COMPARE_MAX_WORK:,})"
+        )
     if solver.kind == "directed":
         decisions["directed"] = directed_record(solver.damping, solver.records)
-    return raw, solves, notes, decisions
+    return _Assigned(raws, solves, notes, decisions, asked)
+
+
+def _first_method(methods: list[dict[str, Any]]) -> str:
+    """The rule's pick on the first component split by an assignment (k-means if none)."""
+    picks = [m["choice"] for m in methods if m["choice"] in ASSIGNMENTS]
+    return picks[0] if picks else "kmeans"
+
+
+def _component_offsets(work: Network, per_component: np.ndarray) -> np.ndarray:
+    """Each node's first zone number: zones numbered component after component."""
+    offsets = np.concatenate([[0], np.cumsum(per_component)[:-1]]).astype(np.int64)
+    return offsets[work.component_labels]
 
 
 def _zoning(
