@@ -255,11 +255,37 @@ def _parse_numbers(series: pd.Series) -> np.ndarray:
     """Numbers of a column of text or numbers; anything unreadable becomes NaN."""
     if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
         return series.to_numpy(dtype=np.float64, na_value=np.nan)
+    values = series.to_numpy(dtype=object)
     try:
         parsed = pd.to_numeric(series.astype(object), errors="coerce")
-        return np.asarray(parsed.to_numpy(dtype=np.float64, na_value=np.nan), dtype=np.float64)
+        numbers = np.array(parsed.to_numpy(dtype=np.float64, na_value=np.nan), dtype=np.float64)
     except (TypeError, ValueError, OverflowError):
-        return np.array([_one_number(v) for v in series.to_numpy(dtype=object)], dtype=float)
+        return np.array([_one_number(v) for v in values], dtype=float)
+    return _read_exactly(values, numbers)
+
+
+def _read_exactly(values: np.ndarray, numbers: np.ndarray) -> np.ndarray:
+    """``numbers`` (pandas' reading of ``values``) with the text cells read by ``float``.
+
+    pandas before 3.0 reads text with a routine that can miss the nearest double
+    by one unit in the last place (``'0.30000000000000004'`` gives 0.3) and reads
+    a literal beyond the double range (``'1e400'``) as missing. Python's ``float``
+    rounds correctly (IEEE 754 round to nearest), as pandas 3 does, so every text
+    cell pandas read as a number is read again by it, and an overflowing literal
+    becomes infinite as in pandas 3; text pandas refused stays NaN.
+    """
+    text = np.fromiter((isinstance(v, str) for v in values), dtype=bool, count=values.size)
+    again = np.flatnonzero(text & ~np.isnan(numbers))
+    try:
+        numbers[again] = values[again].astype(np.float64)
+    except (ValueError, OverflowError):  # a form pandas reads and float does not: keep pandas'
+        exact = np.array([_one_number(values[i]) for i in again], dtype=np.float64)
+        numbers[again] = np.where(np.isnan(exact), numbers[again], exact)
+    for i in np.flatnonzero(text & np.isnan(numbers)).tolist():
+        number = _one_number(values[i])
+        if np.isinf(number) and values[i].isascii() and "_" not in values[i]:
+            numbers[i] = number
+    return numbers
 
 
 def _one_number(value: Any) -> float:
