@@ -26,7 +26,7 @@ import pandas as pd
 
 from ..exceptions import InputError, ParameterError
 from ..network import Network
-from ._frames import Columns, Origin, build_network
+from ._frames import PANDAS_RELEASE, Columns, Origin, build_network
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
 
 __all__ = ["read_edges", "read_table"]
@@ -54,7 +54,7 @@ _LONE_CR = re.compile(rb"\r(?!\n)")
 #: later fields into other rows, or the read fails with "Buffer overflow caught"); with
 #: those releases such a file is read by pandas' Python parser, which reads line ends
 #: as the csv module does (it may word a refusal differently).
-_C_PARSER_READS_LONE_CR = tuple(map(int, re.findall(r"\d+", pd.__version__)[:2])) >= (3, 1)
+_C_PARSER_READS_LONE_CR = PANDAS_RELEASE >= (3, 1)
 #: pandas' messages for a quoted field that never closes (C parser, Python parser).
 _PANDAS_UNCLOSED = ("EOF inside string", "unexpected end of data")
 _EMPTY_FILE = "the file is empty; expected a header row such as 'source,target'"
