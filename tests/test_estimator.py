@@ -1,7 +1,8 @@
 """ZoneSplitter: scikit-learn's own estimator checks, clone safety, agreement with find_zones.
 
-Estimator checks expected to fail (run with ``xfail_strict=True``, so each must
-really fail): with ``affinity='precomputed'`` only, ``check_clustering`` and its
+Estimator checks expected to fail (strict: ``xfail_strict = true`` in the pytest
+options of ``pyproject.toml``, which scikit-learn's marks follow, so each must really
+fail): with ``affinity='precomputed'`` only, ``check_clustering`` and its
 read-only memory-map variant, because they feed a raw 50 x 2 feature matrix to a
 precomputed estimator, which needs a square affinity; the same check passes on
 the ``'rbf'`` and ``'nearest_neighbors'`` instances. ``check_array_api_input``
@@ -36,7 +37,6 @@ from specgraph.exceptions import InputError, ParameterError
         ZoneSplitter(affinity="nearest_neighbors"),
     ],
     expected_failed_checks=expected_failed_checks,
-    xfail_strict=True,
 )
 def test_sklearn_estimator_checks(estimator, check):
     # Source: scikit-learn's estimator checks (sklearn.utils.estimator_checks).

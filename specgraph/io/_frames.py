@@ -7,6 +7,7 @@ column it came from when the frames were read from files, and says what to do.
 from __future__ import annotations
 
 import logging
+import re
 from collections.abc import Callable, Hashable, Mapping
 from dataclasses import dataclass
 from typing import Any
@@ -30,6 +31,12 @@ DEFAULT_WEIGHT_COLUMN = "weight"
 MAX_SHOWN_CHARACTERS = 40
 #: Line of the header when a line finder does not say otherwise.
 HEADER_LINE = 1
+#: The installed pandas as (major, minor), for working around older releases' faults.
+PANDAS_RELEASE = tuple(int(part) for part in re.findall(r"\d+", pd.__version__)[:2])
+#: Whether pandas reads numbers in text exactly: correctly rounded (from 3.1; before,
+#: '0.30000000000000004' gives 0.3) and overflowing to infinity (from 3.0; before,
+#: '1e400' gives NaN). Before 3.1 the text cells are read again with ``float``.
+_PANDAS_READS_NUMBERS_EXACTLY = PANDAS_RELEASE >= (3, 1)
 
 #: What each column option holds, and how to choose another column for it.
 _ROLES = {
@@ -263,11 +270,37 @@ def _parse_numbers(series: pd.Series) -> np.ndarray:
     """Numbers of a column of text or numbers; anything unreadable becomes NaN."""
     if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
         return series.to_numpy(dtype=np.float64, na_value=np.nan)
+    values = series.to_numpy(dtype=object)
     try:
         parsed = pd.to_numeric(series.astype(object), errors="coerce")
-        return np.asarray(parsed.to_numpy(dtype=np.float64, na_value=np.nan), dtype=np.float64)
+        numbers = np.array(parsed.to_numpy(dtype=np.float64, na_value=np.nan), dtype=np.float64)
     except (TypeError, ValueError, OverflowError):
-        return np.array([_one_number(v) for v in series.to_numpy(dtype=object)], dtype=float)
+        return np.array([_one_number(v) for v in values], dtype=float)
+    return numbers if _PANDAS_READS_NUMBERS_EXACTLY else _read_exactly(values, numbers)
+
+
+def _read_exactly(values: np.ndarray, numbers: np.ndarray) -> np.ndarray:
+    """``numbers`` (pandas' reading of ``values``) with the text cells read by ``float``.
+
+    pandas before 3.1 reads text with a routine that can miss the nearest double
+    by one unit in the last place (``'0.30000000000000004'`` gives 0.3), and
+    before 3.0 reads a literal beyond the double range (``'1e400'``) as missing.
+    Python's ``float`` rounds correctly (IEEE 754 round to nearest), as pandas
+    3.1 does, so every text cell pandas read as a number is read again by it, and
+    an overflowing literal becomes infinite; text pandas refused stays NaN.
+    """
+    text = np.fromiter((isinstance(v, str) for v in values), dtype=bool, count=values.size)
+    again = np.flatnonzero(text & ~np.isnan(numbers))
+    try:
+        numbers[again] = values[again].astype(np.float64)
+    except (ValueError, OverflowError):  # a form pandas reads and float does not: keep pandas'
+        exact = np.array([_one_number(values[i]) for i in again], dtype=np.float64)
+        numbers[again] = np.where(np.isnan(exact), numbers[again], exact)
+    for i in np.flatnonzero(text & np.isnan(numbers)).tolist():
+        number = _one_number(values[i])
+        if np.isinf(number) and values[i].isascii() and "_" not in values[i]:
+            numbers[i] = number
+    return numbers
 
 
 def _one_number(value: Any) -> float:

@@ -13,6 +13,7 @@ from __future__ import annotations
 import csv
 import itertools
 import logging
+import mmap
 import os
 import re
 import warnings
@@ -26,7 +27,7 @@ import pandas as pd
 from .._validation import Constraint, InstanceOf, NoneOk, check_param, parameter_error
 from ..exceptions import InputError
 from ..network import Network
-from ._frames import Columns, Origin, build_network
+from ._frames import PANDAS_RELEASE, Columns, Origin, build_network
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
 
 __all__ = ["read_edges", "read_table"]
@@ -47,6 +48,16 @@ _BOM = b"\xef\xbb\xbf"
 _BLANK_CHARACTERS = " \t\r\n"
 #: The pandas C parser's message for a row with too many fields.
 _PANDAS_RAGGED = re.compile(r"Expected (\d+) fields in line (\d+), saw (\d+)")
+#: A carriage return not followed by a line feed (an old-style line end).
+_LONE_CR = re.compile(rb"\r(?!\n)")
+#: Whether pandas' C parser reads every file holding a lone carriage return. Before
+#: pandas 3.1 it misreads some (a quoted line break before a lone CR line end shifts the
+#: later fields into other rows, or the read fails with "Buffer overflow caught"); with
+#: those releases such a file is read by pandas' Python parser, which reads line ends
+#: as the csv module does (it may word a refusal differently).
+_C_PARSER_READS_LONE_CR = PANDAS_RELEASE >= (3, 1)
+#: pandas' messages for a quoted field that never closes (C parser, Python parser).
+_PANDAS_UNCLOSED = ("EOF inside string", "unexpected end of data")
 _EMPTY_FILE = "the file is empty; expected a header row such as 'source,target'"
 _NO_FILE = "no such file; check the path (a relative path starts from the current folder)"
 _FOLDER = "this is a folder, not a file; give the path of the table file"
@@ -254,22 +265,42 @@ def _parse_csv(path: Path, header: _Header) -> pd.DataFrame:
         # A first data row longer than the header only warns; make it a ragged row.
         warnings.simplefilter("error", pd.errors.ParserWarning)
         try:
-            return pd.read_csv(
-                path,
-                sep=header.delimiter,
-                dtype=str,
-                keep_default_na=False,
-                na_filter=False,
-                encoding=ENCODING,
-                index_col=False,
-                engine="c",
-            )
+            if not _C_PARSER_READS_LONE_CR and _has_lone_cr(path):
+                with _open_text(path) as handle:
+                    return _pandas_csv(handle, header, engine="python")
+            return _pandas_csv(path, header, engine="c")
         except UnicodeDecodeError:
             raise _encoding_error(path) from None
         except pd.errors.EmptyDataError:
             raise InputError(_EMPTY_FILE, path=path, line=1) from None
         except (pd.errors.ParserError, pd.errors.ParserWarning) as exc:
             raise _ragged_error(path, header, str(exc)) from None
+
+
+def _has_lone_cr(path: Path) -> bool:
+    """Whether the file holds a carriage return that no line feed follows."""
+    with open(path, "rb") as handle:
+        try:
+            with mmap.mmap(handle.fileno(), 0, access=mmap.ACCESS_READ) as data:
+                return _LONE_CR.search(data) is not None
+        except ValueError:  # an empty file cannot be mapped
+            return False
+
+
+def _pandas_csv(
+    source: Path | TextIO, header: _Header, *, engine: Literal["c", "python"]
+) -> pd.DataFrame:
+    """The table as text cells, read by pandas' ``engine`` parser."""
+    return pd.read_csv(
+        source,
+        sep=header.delimiter,
+        dtype=str,
+        keep_default_na=False,
+        na_filter=False,
+        encoding=ENCODING,
+        index_col=False,
+        engine=engine,
+    )
 
 
 def _ragged_error(path: Path, header: _Header, pandas_message: str) -> InputError:
@@ -284,7 +315,7 @@ def _ragged_error(path: Path, header: _Header, pandas_message: str) -> InputErro
                     break
     except (OSError, UnicodeDecodeError, csv.Error):
         pass
-    if line is None and "EOF inside string" in pandas_message:
+    if line is None and any(text in pandas_message for text in _PANDAS_UNCLOSED):
         opened = _unclosed_quote_line(path, header.delimiter)
         return InputError(
             "a double quote opened here is never closed, so the rest of the file would be one "
