@@ -391,3 +391,46 @@ def test_zoning_records_read_and_serialize_like_dicts(barbell_zoning) -> None:
     copied = dict(zoning.parameters)
     copied["tol"] = 1.0
     assert zoning.parameters["tol"] != 1.0
+
+
+def _grid_with_weak_branches(side: int = 8, branch: int = 6, tie: float = 0.05) -> nx.Graph:
+    """A side x side grid (unit links) with a dangling path hung from each corner by a weak link."""
+    graph = nx.convert_node_labels_to_integers(nx.grid_2d_graph(side, side))
+    nx.set_edge_attributes(graph, 1.0, "weight")
+    corners = [0, side - 1, side * (side - 1), side * side - 1]
+    for number, corner in enumerate(corners):
+        path = [f"b{number}-{i}" for i in range(branch)]
+        graph.add_edge(corner, path[0], weight=tie)
+        nx.add_path(graph, path, weight=1.0)
+    return graph
+
+
+def test_auto_trees_keeps_the_lower_cut_of_attached_and_kept_trees() -> None:
+    graph = _grid_with_weak_branches()
+    net = Network.from_networkx(graph)
+    auto = find_zones(net, 2, rng=0)
+    attached = find_zones(net, 2, trees="attach", rng=0)
+    kept = find_zones(net, 2, trees="keep", rng=0)
+    cuts = {z: float(x.scores["normalized_cut"]) for z, x in (("attach", attached), ("keep", kept))}
+    # Cutting one weak tie (0.05) costs far less than any cut through the grid, which
+    # only the kept trees allow: the auto rule attached them, the comparison keeps them.
+    assert cuts["keep"] < cuts["attach"]
+    assert auto.decisions["trees"]["choice"] == "keep"
+    assert auto.decisions["trees"]["compared"] == pytest.approx(cuts)
+    assert auto.parameters["trees"] == "auto"
+    # The delivered cut is the two-zone normalized cut as networkx computes it.
+    ids = list(net.node_ids)
+    side = {node for node, zone in zip(graph.nodes, auto.labels, strict=True) if zone == 0}
+    assert str(next(iter(graph.nodes))) == ids[0]
+    expected = nx.normalized_cut_size(graph, side, weight="weight")
+    assert float(auto.scores["normalized_cut"]) == pytest.approx(expected, rel=1e-12)
+
+
+def test_auto_trees_never_worse_than_either_treatment() -> None:
+    graph = _grid_with_weak_branches(side=10, branch=8, tie=0.5)
+    net = Network.from_networkx(graph)
+    for k in (3, 5):
+        auto = float(find_zones(net, k, rng=0).scores["normalized_cut"])
+        for trees in ("attach", "keep"):
+            named = float(find_zones(net, k, trees=trees, rng=0).scores["normalized_cut"])
+            assert auto <= named * (1 + 1e-9)

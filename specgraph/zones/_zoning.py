@@ -49,10 +49,12 @@ from .._validation import (
     parameter_error,
 )
 from ..eigen import DEFAULT_TOL, METHODS, EigenResult
+from ..exceptions import ConstraintError
 from ..network import Network
 from ..walks import DEFAULT_DAMPING
 from ._compare import (
     COMPARE_MAX_WORK,
+    NCUT_TIE_RTOL,
     best_assignment,
     comparison_affordable,
     comparison_order,
@@ -389,6 +391,28 @@ def find_zones(
     stage = progress if progress is not None else _no_progress
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
     refuse_infeasible(network.adjacency, rules)  # what arithmetic decides, before any solve
+    zoning = _zone_once(network, options, rules, stage)
+    if not _kept_trees_worth_trying(zoning, options):
+        return zoning
+    # Step 7: with the trees attached by the auto rule, zone once more with them
+    # kept (a weak link into a dangling branch can be the cheapest boundary, as
+    # on radial feeders) and keep the lower normalized cut.
+    count = int(zoning.scores["zones"])
+    try:
+        other = _zone_once(network, replace(options, spec=count, trees="keep"), rules, stage)
+    except ConstraintError as exc:
+        logger.debug("trees kept: %s", exc)
+        return zoning
+    return _lower_cut(zoning, other)
+
+
+def _zone_once(
+    network: Network,
+    options: _Options,
+    rules: ResolvedConstraints,
+    stage: Callable[[str], None],
+) -> Zoning:
+    """Steps 2 to 6 of :func:`find_zones` with one tree treatment."""
     stage("solving")
 
     # Steps 2-3: merge what must stay together, choose the operator and the count.
@@ -507,9 +531,9 @@ def _merge_and_choose_operator(
     k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
     pairs, trees_decision = tree_pairs(network, rules, options.trees, k_hint)
     merged = merge_together(network, rules, np.concatenate([rules.keep_pairs, pairs]))
-    choice = choose_operator(
-        options.operator, directed=network.directed, trees_attached=pairs.size > 0
-    )
+    # Trees kept on request say nothing about localization: no remark then.
+    attached = None if options.trees == "keep" else bool(pairs.size > 0)
+    choice = choose_operator(options.operator, directed=network.directed, trees_attached=attached)
     return merged, choice.kind, {"trees": trees_decision, "operator": choice.as_decision()}
 
 
@@ -614,6 +638,51 @@ def _zoning(
 
 def _no_progress(stage: str) -> None:
     """Stand-in for ``progress=None``: stages pass silently."""
+
+
+def _kept_trees_worth_trying(zoning: Zoning, options: _Options) -> bool:
+    """Whether :func:`find_zones` also zones with the dangling trees kept (step 7).
+
+    Only where the ``auto`` tree rule attached trees, the operator is a
+    normalized one, and the comparison is affordable by the same
+    :data:`~specgraph.zones._compare.COMPARE_MAX_WORK` rule as the assignments'.
+    """
+    attached = zoning.decisions.get("trees", {}).get("choice") == "attach"
+    kind = zoning.decisions.get("operator", {}).get("choice")
+    count = int(zoning.scores["zones"])
+    return (
+        options.trees == "auto"
+        and attached
+        and kind in NORMALIZED_LIKE
+        and count >= 2
+        and comparison_affordable(zoning.network.n_nodes, count)
+    )
+
+
+def _lower_cut(attached: Zoning, kept: Zoning) -> Zoning:
+    """The zoning with the lower normalized cut (ties and other counts: ``attached``).
+
+    The winner carries the user's parameters and the zone-count decision of the
+    first run, and ``decisions["trees"]`` records both figures.
+    """
+    cut_a = float(attached.scores["normalized_cut"])
+    cut_k = float(kept.scores["normalized_cut"])
+    same_count = kept.scores["zones"] == attached.scores["zones"]
+    keep_wins = same_count and cut_k < cut_a * (1.0 - NCUT_TIE_RTOL)
+    trees = dict(attached.decisions["trees"])
+    trees["compared"] = {"attach": cut_a, "keep": cut_k}
+    if keep_wins:
+        trees["choice"] = "keep"
+        trees["reason"] = (
+            f"dangling trees kept: zoned as any node, the normalized cut is {cut_k:.4g} "
+            f"against {cut_a:.4g} with them attached"
+        )
+    else:
+        trees["reason"] += f" (normalized cut {cut_a:.4g}; {cut_k:.4g} with them kept)"
+    winner = kept if keep_wins else attached
+    decisions = {**winner.decisions, "trees": trees}
+    decisions["zone_count"] = attached.decisions["zone_count"]
+    return replace(winner, parameters=attached.parameters, decisions=decisions)
 
 
 def _constraint_record(rules: ResolvedConstraints) -> dict[str, Any]:
