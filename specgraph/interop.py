@@ -58,20 +58,8 @@ def network_from_graph(
 
     Parameters
     ----------
-    graph : networkx.Graph
-        Any networkx graph. Directed graphs and multigraphs are read as
-        undirected, parallel links summed (the input policy of
-        :class:`Network`). Node labels become string ids.
-    weight : str or None, default="weight"
-        Edge attribute holding the weight; ``None`` gives every link weight 1.
-    distance : bool, default=False
-        Read ``weight`` as a length, impedance or latency and turn it into an
-        affinity (:func:`specgraph.network.affinity_from_distance`).
-    size : str, optional
-        Node attribute holding node sizes (finite, >= 0).
-    pos : str, optional
-        Node attribute holding ``(x, y)`` coordinates, as networkx layouts
-        and geometric generators store them.
+    graph, weight, distance, size, pos
+        As in :meth:`Network.from_networkx` (described there once).
 
     Returns
     -------
@@ -81,10 +69,11 @@ def network_from_graph(
     Raises
     ------
     InputError
-        An edge lacks ``weight``, a node lacks ``size`` or ``pos``, or a
-        value is out of range (the message names the edge or node).
+        The graph has no edges, an edge lacks ``weight``, a node lacks
+        ``size`` or ``pos``, or a value is out of range (the message names
+        the edge or node).
     ParameterError
-        ``graph`` is not a networkx graph, or options conflict.
+        ``graph`` is not a networkx graph.
 
     Examples
     --------
