@@ -273,7 +273,7 @@ def verdicts(rows: list[Row], net: RealNetwork, counts: list[int]) -> list[str]:
         best = min((r.quality.ncut for r in (km, qr) if r and r.quality), default=float("nan"))
         q = ours.quality
         small = q.size_min < SMALL_ZONE_SHARE * n
-        warned = bool(ours.record.get("warnings"))
+        warned = any("hold under" in str(w) for w in ours.record.get("warnings", []))
         parts = [
             f"NCut {q.ncut:.4f} vs best sklearn {best:.4f} "
             + ("ok" if q.ncut <= best * (1 + 1e-9) else "MISSED"),
@@ -292,7 +292,11 @@ def verdicts(rows: list[Row], net: RealNetwork, counts: list[int]) -> list[str]:
         pairs = pairs_computed(auto.record)
         zones = auto.quality.zones
         ok = pairs <= zones + AUTO_PAIRS_SLACK
-        out.append(f"auto: {zones} zones from {pairs} pairs " + ("ok" if ok else "MISSED"))
+        why = auto.record.get("decisions", {}).get("zone_count", {}).get("eigenpairs_reason")
+        out.append(
+            f"auto: {zones} zones from {pairs} pairs "
+            + ("ok" if ok else f"MISSED (recorded: {why})")
+        )
     return out
 
 
