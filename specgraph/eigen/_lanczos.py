@@ -69,8 +69,7 @@ from __future__ import annotations
 
 import logging
 import math
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
 from dataclasses import dataclass
 from typing import Any
 
@@ -87,7 +86,7 @@ from ._subspace import deflate, rayleigh_ritz
 #: basis means the basis spans the whole space (Krylov space exhausted).
 EXHAUSTED = 1e-8
 
-__all__ = ["SERIAL_BLAS_ROWS", "TRANSFORMS", "factorize", "solve_lanczos", "solve_lanczos_flip"]
+__all__ = ["TRANSFORMS", "factorize", "shift_of", "solve_lanczos", "solve_lanczos_flip"]
 
 logger = logging.getLogger(__name__)
 
@@ -146,36 +145,6 @@ RESIDUAL_MARGIN = 0.5
 REORTH_KEEP = 1.0 / np.sqrt(2.0)
 
 
-#: Components of at most this many rows run the whole solve with one BLAS
-#: thread. Lanczos calls BLAS on one vector at a time (two matrix-vector
-#: products per Gram-Schmidt pass, a small projected eigenproblem per step):
-#: too little work per call to share between threads, and on a busy machine
-#: each call waits for a second core. Measured here, one Gram-Schmidt pass
-#: against 60 columns took 0.5 ms on one thread against 21 ms on two at
-#: 10,000 rows, 4.9 against 24 ms at 100,000, and 97 against 84 ms at
-#: 1,000,000 (docs/methods.md, solver-cost section).
-SERIAL_BLAS_ROWS = 200_000
-
-
-@contextmanager
-def _blas_threads(rows: int) -> Iterator[None]:
-    """One BLAS thread inside the block for at most :data:`SERIAL_BLAS_ROWS` rows.
-
-    Through ``threadpoolctl`` (a dependency of scikit-learn); without it the
-    thread count is left alone. The limit is process-wide while it lasts.
-    """
-    if rows > SERIAL_BLAS_ROWS:
-        yield
-        return
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:  # pragma: no cover - installed with scikit-learn
-        yield
-        return
-    with threadpool_limits(limits=1, user_api="blas"):
-        yield
-
-
 # ------------------------------------------------------------ transformations
 @dataclass(eq=False)
 class _Transform:
@@ -218,6 +187,11 @@ def factorize(matrix: sp.csr_array, shift: float) -> Any:
     )
 
 
+def shift_of(norm_bound: float) -> float:
+    """The shift ``s`` of ``(M + sI)^{-1}``: :data:`SHIFT_FRACTION` of the norm bound."""
+    return SHIFT_FRACTION * norm_bound
+
+
 def _shift_invert(problem: Problem) -> _Transform:
     """``op = (M + sI)^{-1}`` through one sparse factorization (:func:`factorize`).
 
@@ -226,8 +200,8 @@ def _shift_invert(problem: Problem) -> _Transform:
     :math:`\\|M v - \\lambda v\\| \\le (b + s) \\|r\\| / \\theta`.
     """
     bound = problem.norm_bound
-    shift = SHIFT_FRACTION * bound
-    factor = factorize(problem.matrix, shift)
+    shift = shift_of(bound)
+    factor = problem.factor if problem.factor is not None else factorize(problem.matrix, shift)
     logger.debug(
         "shift-invert: %d rows, factor fill %d",
         problem.matrix.shape[0],
@@ -550,11 +524,10 @@ def solve_lanczos(problem: Problem, *, transform: str = "shift_invert") -> Solut
     [0.097887, 0.381966]
     """
     check_choice(transform, "transform", TRANSFORMS)
-    with _blas_threads(problem.matrix.shape[0]):
-        op = _TRANSFORMS[transform](problem)
-        products = _MatrixProducts(problem.matrix)
-        first = _run(op, problem, problem.null_vector.reshape(-1, 1), problem.count)
-        values, vectors, cycles = _lock_and_verify(op, problem, products, first)
+    op = _TRANSFORMS[transform](problem)
+    products = _MatrixProducts(problem.matrix)
+    first = _run(op, problem, problem.null_vector.reshape(-1, 1), problem.count)
+    values, vectors, cycles = _lock_and_verify(op, problem, products, first)
     return Solution(values, vectors, op.applications + products.count, cycles)
 
 
