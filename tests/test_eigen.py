@@ -641,3 +641,26 @@ def test_every_method_matches_eigh_on_a_weighted_network(weighted_graph, method:
     )
     assert result.reason.startswith("component of")
     assert result.reason.endswith(f"{method} asked") or method == "auto"
+
+
+def test_auto_hands_an_unfinished_multilevel_solve_to_flipped_lanczos(monkeypatch) -> None:
+    # A multilevel solve that misses the tolerance (stood in for by one that
+    # returns wrong pairs) must not end auto's solve: products-only Lanczos
+    # takes over. Reference: scipy's ARPACK on the flipped operator 2I - N.
+    import specgraph.eigen._api as api
+    from specgraph.eigen._problem import Solution
+
+    def unfinished(problem, switch=False):
+        n = problem.matrix.shape[0]
+        vectors = np.linalg.qr(np.random.default_rng(0).standard_normal((n, problem.count)))[0]
+        return Solution(np.zeros(problem.count), vectors, matvecs=5, iterations=1)
+
+    monkeypatch.setattr(api, "solve_multilevel", unfinished)
+    op = laplacian(planted_partition(8, 400, 0.04, 0.002, 11))
+    k = 8
+    result = solve(op, k, rng=0)
+    assert result.method == "lanczos_flip"
+    assert result.reason.endswith("multilevel missed the tolerance, lanczos_flip took over")
+    flipped = 2.0 * sp.eye_array(op.shape[0]) - op.matrix
+    reference = np.sort(2.0 - eigsh(flipped, k, which="LA", return_eigenvectors=False))
+    np.testing.assert_allclose(result.values, reference, rtol=0, atol=2e-6 * op.norm_bound)

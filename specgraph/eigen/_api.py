@@ -353,10 +353,32 @@ def _solve_component(
     if chosen.method == "multilevel":
         # The multilevel solver may hand the component over to lanczos_flip.
         found = solve_multilevel(replace(problem, ordering=chosen.order), switch=True)
+        if found.method is None and not _meets_tolerance(problem, found):
+            # Products only, no factorization: the method that cannot run out of
+            # memory, for what the multilevel iteration could not finish.
+            logger.info("multilevel missed the tolerance; lanczos_flip takes over")
+            retry = solve_lanczos_flip(problem)
+            found = replace(
+                retry,
+                matvecs=found.matvecs + retry.matvecs,
+                iterations=found.iterations + retry.iterations,
+                method="lanczos_flip",
+            )
+            reason = f"{chosen.reason}; multilevel missed the tolerance, lanczos_flip took over"
+            return found, "lanczos_flip", reason
         return found, "multilevel", chosen.reason
     if factor is not None:
         problem = replace(problem, factor=factor)
     return _SOLVERS[chosen.method](problem), chosen.method, chosen.reason
+
+
+def _meets_tolerance(problem: Problem, found: Solution) -> bool:
+    """Whether every pair's scaled residual ``||M v - lambda v|| / bound`` is at most ``tol``."""
+    if found.values.size < problem.count:
+        return False
+    residual = problem.matrix @ found.vectors - found.vectors * found.values
+    scaled = np.linalg.norm(residual, axis=0) / problem.norm_bound
+    return bool(np.all(scaled <= problem.tol))
 
 
 def _summary(reasons: list[tuple[int, str]]) -> str:

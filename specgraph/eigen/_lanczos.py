@@ -173,9 +173,11 @@ def factorize(matrix: sp.csr_array, shift: float) -> Any:
     (``diag_pivot_thresh=0``), eliminates the diagonal in that order: an
     :math:`LDL^T`-like factorization, stable for a definite matrix and with
     the fill of the symmetric ordering. Measured against SuperLU's default
-    (column ordering by COLAMD and partial pivoting), it left 1.1 to 2.5 times
-    less fill on every network of the solver-cost table in docs/methods.md
-    and factored up to 2 times faster.
+    (column ordering by COLAMD with partial pivoting) on a water network, a
+    transmission grid, a road-like network and a block model of 2,000 to
+    10,000 nodes: 1.1 to 2.5 times less fill, solves 1.3 to 2.4 times faster,
+    factorization times within 1.6 times either way (twice as fast on the
+    block model), residuals alike (docs/methods.md, "Solver cost").
     """
     n = matrix.shape[0]
     shifted = sp.csc_array(matrix + shift * sp.eye_array(n, format="csr"))
@@ -379,20 +381,21 @@ def _basis_size(wanted: int, n: int) -> int:
     return min(n - 1, max(2 * wanted + GUARD_PAIRS, wanted + MIN_EXTRA))
 
 
-def _check_stride(steps: int, rows: int) -> int:
-    """Lanczos steps between two convergence tests once ``steps`` columns are in the basis.
+def _check_stride(steps: int, rows: int, left: int) -> int:
+    """Lanczos steps until the next convergence test, at ``steps`` columns with ``left`` to go.
 
-    ``ceil(CHECK_COST_RATIO * steps^2 / rows)``, at least 1: a test costs
-    about that many steps, so testing that seldom keeps the tests' share of
-    the work near one half while a run overshoots its converged step by
-    fewer steps than one test costs.
+    A test costs about ``r = CHECK_COST_RATIO * steps^2 / rows`` steps. Testing
+    every ``s`` steps spends ``r left / s`` on tests and overshoots the step
+    where the pairs pass by ``s / 2`` on average; ``s = sqrt(2 r left)``
+    minimizes the sum (at least 1).
 
     Examples
     --------
-    >>> _check_stride(11, 100_000), _check_stride(104, 10_000), _check_stride(104, 2_848)
-    (1, 2, 6)
+    >>> _check_stride(11, 100_000, 18), _check_stride(53, 9_241, 51), _check_stride(80, 2_848, 24)
+    (1, 7, 13)
     """
-    return max(1, math.ceil(CHECK_COST_RATIO * steps * steps / rows))
+    ratio = CHECK_COST_RATIO * steps * steps / rows
+    return max(1, math.ceil(math.sqrt(2.0 * ratio * left)))
 
 
 def _cycle(
@@ -401,7 +404,7 @@ def _cycle(
     """Lanczos steps from ``start`` until the wanted pairs pass or the basis is full.
 
     Convergence is tested once the basis holds the wanted and guard pairs,
-    then every :func:`_check_stride` steps, so a run stops soon after it can;
+    then after the steps of :func:`_check_stride`, so a run stops soon after it can;
     after a breakdown the cycle runs to the end, since the fresh directions
     may reveal further copies of a repeated eigenvalue.
     """
@@ -421,7 +424,7 @@ def _cycle(
         if converged or j == size:
             logger.debug("%d steps: largest residual estimate %.3g", j, estimates.max())
             return converged, theta, small
-        test_at = j + _check_stride(j, rows)
+        test_at = j + _check_stride(j, rows, size - j)
 
 
 def _run(op: _Transform, problem: Problem, locked: np.ndarray, wanted: int) -> _Run:
