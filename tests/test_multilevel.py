@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 import pytest
 import scipy.linalg as la
@@ -386,15 +388,24 @@ def test_named_multilevel_never_switches(communities) -> None:
     assert result.converged
 
 
-def test_auto_keeps_multilevel_on_a_road_network() -> None:
+def _problem(op, count: int) -> Problem:
+    """A component problem as the dispatcher builds it, with a fresh generator."""
+    return Problem(
+        op.matrix, op.null_basis[:, 0], op.norm_bound, count, 1e-6, None, np.random.default_rng(0)
+    )
+
+
+def test_the_switch_keeps_multilevel_on_a_road_network() -> None:
+    # What auto runs when its forecast picks the multilevel method: the gap
+    # check on a near-planar network finds no wide gap, so the multilevel
+    # iteration goes on, and its Rayleigh-Ritz step is LOBPCG's first, not an
+    # extra one.
     op = laplacian(gallery.road_like(3000, rng=2))
-    result = smallest_eigenpairs(op, 8, rng=0)
-    assert result.method == "multilevel"
-    assert result.converged
-    # The gap check's Rayleigh-Ritz step is LOBPCG's first one, not an extra one.
-    named = smallest_eigenpairs(op, 8, method="multilevel", rng=0)
-    assert result.matvecs == named.matvecs
-    np.testing.assert_allclose(result.values, named.values, atol=1e-12)
+    switched = solve_multilevel(_problem(op, 7), switch=True)
+    named = solve_multilevel(_problem(op, 7))
+    assert switched.method is None  # not handed over
+    assert switched.matvecs == named.matvecs
+    np.testing.assert_allclose(switched.values, named.values, atol=1e-12)
 
 
 def test_a_failed_flip_trial_falls_back_and_is_counted(monkeypatch) -> None:
@@ -404,11 +415,26 @@ def test_a_failed_flip_trial_falls_back_and_is_counted(monkeypatch) -> None:
     import specgraph.eigen._multilevel as multilevel
 
     op = laplacian(gallery.road_like(3000, rng=2))
-    plain = smallest_eigenpairs(op, 8, rng=0)
+    plain = solve_multilevel(_problem(op, 7), switch=True)
     monkeypatch.setattr(multilevel, "FLIP_GAP_RATIO", 0.0)
     monkeypatch.setattr(multilevel, "FLIP_TRIAL_CYCLES", 1)
-    fallback = smallest_eigenpairs(op, 8, rng=0)
-    assert fallback.method == "multilevel"
-    assert fallback.converged
+    fallback = solve_multilevel(_problem(op, 7), switch=True)
+    assert fallback.method is None
     assert fallback.matvecs > plain.matvecs
     np.testing.assert_allclose(fallback.values, plain.values, atol=2e-6)
+    residual = op.matrix @ fallback.vectors - fallback.vectors * fallback.values
+    assert np.linalg.norm(residual, axis=0).max() <= 1e-6 * op.norm_bound
+
+
+def test_an_ordering_handed_over_gives_the_same_pairs(road) -> None:
+    # The auto forecast computes the reverse Cuthill-McKee order (scipy's
+    # reverse_cuthill_mckee) and hands it to the solver, which would compute
+    # the same order itself: the result must be the same to the bit.
+    from scipy.sparse.csgraph import reverse_cuthill_mckee
+
+    op = laplacian(road)
+    order = reverse_cuthill_mckee(sp.csr_matrix(op.matrix), symmetric_mode=True)
+    own = solve_multilevel(_problem(op, 5))
+    handed = solve_multilevel(replace(_problem(op, 5), ordering=order.astype(np.int64)))
+    assert np.array_equal(own.vectors, handed.vectors)
+    assert np.array_equal(own.values, handed.values)

@@ -2,12 +2,14 @@
 
 Steps:
 
-1. Validate ``k`` and the options; resolve ``method='auto'``.
+1. Validate ``k`` and the options.
 2. Split the operator into connected components (it is block diagonal in
    them), since each component's null vector is known exactly: zero pairs come
    from :attr:`GraphOperator.null_basis`, never from a solver.
-3. Ask the chosen solver for each component's smallest nontrivial pairs (at
-   most ``k - c`` per component, where ``c`` is the number of components).
+3. Ask a solver for each component's smallest nontrivial pairs (at most
+   ``k - c`` per component, where ``c`` is the number of components): the
+   named one, or for ``method='auto'`` the one of least predicted cost
+   (:func:`choose_method`, :mod:`._cost`); the reason goes to the result.
    Two kinds of operator need a different problem (see :func:`_component_problem`):
    one with a rank-one term per component (``regularized``) is handed to the
    solvers as products only, and one with no known null space
@@ -23,6 +25,7 @@ from __future__ import annotations
 
 import logging
 from collections.abc import Callable
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
@@ -42,11 +45,13 @@ from .._validation import (
 )
 from ..exceptions import ConvergenceError
 from ..operators import GraphOperator
+from ._cost import DENSE_LIMIT, Forecast, envelope, forecast, settle, worst_envelope
 from ._dense import solve_dense
-from ._lanczos import solve_lanczos, solve_lanczos_flip
+from ._lanczos import factorize, shift_of, solve_lanczos, solve_lanczos_flip
 from ._multilevel import solve_multilevel
 from ._problem import Problem, Solution
 from ._result import EigenResult
+from ._threads import blas_threads
 
 __all__ = [
     "DEFAULT_TOL",
@@ -65,11 +70,6 @@ logger = logging.getLogger(__name__)
 #: diagnostics rather than chased here.
 DEFAULT_TOL = 1e-6
 
-#: Components of at most this many nodes are solved densely (LAPACK): below
-#: it a dense solve takes well under a second on one core and is exact to
-#: rounding; above it memory (8 n^2 bytes) and time (n^3) grow too fast.
-DENSE_LIMIT = 2000
-
 #: Entries of an eigenvector whose magnitudes differ from the largest by less
 #: than this many units in the last place of the vector's norm (or by less than
 #: its scaled residual, whichever is larger) count as tied when its sign is
@@ -78,12 +78,10 @@ DENSE_LIMIT = 2000
 #: the two flipped between builds; 16 leaves room for longer sums.
 SIGN_TIE_ULPS = 16
 
-#: Components up to this size are always solved densely (milliseconds).
+#: Components up to this size are solved densely without a forecast: LAPACK
+#: takes about 2 ms there (:data:`~specgraph.eigen._cost.DENSE_SECONDS_PER_CUBE`),
+#: less than ordering the matrix for the forecast and factoring it.
 DENSE_SMALL = 200
-
-#: Up to :data:`DENSE_LIMIT` nodes, a dense solve is taken when more than this
-#: share of the spectrum is wanted (Lanczos would carry nearly the whole space).
-DENSE_PAIR_SHARE = 0.125
 
 _SOLVERS: dict[str, Callable[[Problem], Solution]] = {
     "dense": solve_dense,
@@ -106,45 +104,80 @@ LOW_RANK_METHODS = ("dense", "lanczos_flip")
 NO_NULL_METHODS = ("dense", "lanczos", "lanczos_flip")
 
 
-def choose_method(n: int, k: int = 1) -> str:
+def choose_method(n: int, k: int = 1, *, matrix: Any = None) -> str:
     """The ``auto`` rule for ``k`` pairs of a connected component of ``n`` nodes.
 
-    * ``'dense'`` up to :data:`DENSE_SMALL` nodes, and up to
-      :data:`DENSE_LIMIT` nodes when more than one pair in
-      :data:`DENSE_PAIR_SHARE` of the spectrum is wanted;
-    * ``'lanczos'`` (shift-invert) for the other components up to
-      :data:`DENSE_LIMIT` nodes: a full dense solve costs ``O(n^3)`` whatever
-      ``k``, and measured on 2,000 road-like nodes it took 0.8 to 14 s on
-      this shared machine against 0.01 to 0.04 s for Lanczos (k = 2 or 9);
-      the sparse factorization of so few nodes stays cheap even where it
-      fills in;
-    * ``'multilevel'`` beyond: its cost grows about linearly with size on
-      every family measured (docs/benchmarks.md). ``'lanczos'`` is faster on
-      mid-size near-planar networks but its sparse factorization can fill in
-      almost completely on networks with community structure (measured: 450 s
-      and 1.5 GiB at 16,000 nodes of a block model), and ``'lanczos_flip'`` is
-      faster on networks with a large spectral gap but hopeless on near-planar
-      ones; ``auto`` takes the method that never collapses. Structure decides
-      within it: when the multilevel start block shows the wanted eigenvalues
-      far below the rest (gap ratio at least
-      :data:`~specgraph.eigen._multilevel.FLIP_GAP_RATIO`), the component is
-      handed to ``'lanczos_flip'`` for a capped trial, kept if it meets the
-      tolerance (the result's ``method`` then says ``lanczos_flip``).
+    The method of least predicted time (:mod:`specgraph.eigen._cost`), among
+    ``'dense'`` (LAPACK, at most :data:`DENSE_LIMIT` nodes), ``'lanczos'``
+    (shift-invert; never when the envelope bound on its factors exceeds
+    :data:`~specgraph.eigen._cost.FACTOR_MEMORY_BUDGET`) and ``'multilevel'``;
+    components of at most :data:`DENSE_SMALL` nodes are solved densely. The
+    forecast of a factorization's fill and work is the envelope of ``matrix``
+    (the component's sparse matrix) in reverse Cuthill-McKee order; without
+    it, the envelope of a full matrix of order ``n``, the bound when nothing
+    is known of the structure.
+
+    Measured against this machine's times (docs/methods.md, "Solver cost"):
+    shift-invert wins on the near-planar and tree-like networks of
+    infrastructure up to about 100,000 nodes (on the real networks of the
+    benchmark it ran in 0.01 to 0.5 s where the multilevel method took 0.4 to
+    18 s at 51 pairs); its factorization fills in almost completely on
+    networks with community structure (measured: 450 s and 1.5 GiB at 16,000
+    nodes of a block model), where the forecast sends the component to the
+    multilevel method. Within it, structure decides once more: when the
+    multilevel start block shows the wanted eigenvalues far below the rest
+    (gap ratio at least :data:`~specgraph.eigen._multilevel.FLIP_GAP_RATIO`),
+    the component is handed to ``'lanczos_flip'`` for a capped trial, kept if
+    it meets the tolerance (the result's ``method`` then says
+    ``lanczos_flip``).
 
     Name a method to choose otherwise.
 
     Examples
     --------
-    >>> choose_method(150), choose_method(1500, 4), choose_method(1500, 400)
-    ('dense', 'lanczos', 'dense')
-    >>> choose_method(2_000_000, 8)
-    'multilevel'
+    Without the matrix, the worst case (a full matrix) decides:
+
+    >>> choose_method(150), choose_method(1500, 4), choose_method(2_000_000, 8)
+    ('dense', 'dense', 'multilevel')
+
+    A grid fills little:
+
+    >>> from specgraph import gallery, laplacian
+    >>> grid = laplacian(gallery.grid(30, 50)).matrix
+    >>> choose_method(1500, 4, matrix=grid), choose_method(1500, 1400, matrix=grid)
+    ('lanczos', 'dense')
     """
+    if matrix is None:
+        return _forecast(n, k, None, tuple(_SOLVERS)).method
+    sparse = sp.csr_array(matrix)
+    gershgorin = float(abs(sparse).sum(axis=1).max()) if sparse.nnz else 1.0  # the shift's scale
+    return _decide(sparse, k, gershgorin, tuple(_SOLVERS))[0].method
+
+
+def _forecast(n: int, k: int, matrix: Any, allowed: tuple[str, ...]) -> Forecast:
+    """Stage 1 of the forecast for one component (dense up to :data:`DENSE_SMALL` nodes)."""
     if n <= DENSE_SMALL:
-        return "dense"
-    if n <= DENSE_LIMIT:
-        return "dense" if k > DENSE_PAIR_SHARE * n else "lanczos"
-    return "multilevel"
+        return Forecast("dense", {}, {}, note=f"dense at most {DENSE_SMALL} nodes")
+    env = worst_envelope(n) if matrix is None else envelope(matrix)
+    chosen = forecast(env, k, allowed)
+    # Without the matrix there is nothing to try: the bound decides.
+    return chosen if matrix is not None or not chosen.trial else replace(chosen, trial=False)
+
+
+def _decide(
+    matrix: Any, k: int, norm_bound: float, allowed: tuple[str, ...]
+) -> tuple[Forecast, Any]:
+    """The method for one component, and the factor of a won shift-invert trial (or None).
+
+    The trial factor is that of the shift-invert solver (same matrix, shift
+    and ordering), so a solve that goes on with it repeats nothing.
+    """
+    chosen = _forecast(matrix.shape[0], k, matrix, allowed)
+    if not chosen.trial:
+        return chosen, None
+    factor = factorize(matrix, shift_of(norm_bound))
+    chosen = settle(chosen, matrix.shape[0], k, int(factor.L.nnz + factor.U.nnz))
+    return chosen, (factor if chosen.method == "lanczos" else None)
 
 
 def _allowed_methods(operator: GraphOperator) -> tuple[str, ...]:
@@ -153,12 +186,6 @@ def _allowed_methods(operator: GraphOperator) -> tuple[str, ...]:
     if operator.null_basis.shape[1] == 0:
         return NO_NULL_METHODS
     return tuple(_SOLVERS)
-
-
-def _auto_method(operator: GraphOperator, n: int, k: int) -> str:
-    """:func:`choose_method`, or products-only Lanczos for the operators it cannot take."""
-    chosen = choose_method(n, k)
-    return chosen if chosen in _allowed_methods(operator) else "lanczos_flip"
 
 
 #: What the options of :func:`smallest_eigenpairs` accept (``k`` depends on the operator).
@@ -198,8 +225,8 @@ def smallest_eigenpairs(
         (no factorization), ``'multilevel'`` the aggregation cascade. The
         ``regularized`` kind takes :data:`LOW_RANK_METHODS` and
         ``bethe_hessian`` :data:`NO_NULL_METHODS` (``'auto'`` gives
-        ``'lanczos_flip'`` above :data:`DENSE_LIMIT` for both); another
-        method raises :class:`ParameterError`.
+        ``'lanczos_flip'`` where the method it predicts cheapest is not
+        among them); another method raises :class:`ParameterError`.
 
     Returns
     -------
@@ -239,7 +266,7 @@ def smallest_eigenpairs(
     tol = float(tol)
     maxiter = None if maxiter is None else int(maxiter)
     generator = check_rng(rng)
-    values, vectors, used, matvecs, iterations = _solve_components(
+    values, vectors, used, matvecs, iterations, reason = _solve_components(
         operator, k, method, tol, maxiter, generator
     )
     residuals = _scaled_residuals(operator, values, vectors)
@@ -252,6 +279,7 @@ def smallest_eigenpairs(
         matvecs=matvecs,
         iterations=iterations,
         converged=bool(values.size == k and np.all(residuals <= tol)),
+        reason=reason,
     )
     if not result.converged:
         shortfall = f"found {values.size} of {k} pairs" if values.size < k else "found all pairs"
@@ -270,7 +298,7 @@ def _solve_components(
     tol: float,
     maxiter: int | None,
     rng: np.random.Generator,
-) -> tuple[np.ndarray, np.ndarray, set[str], int, int]:
+) -> tuple[np.ndarray, np.ndarray, set[str], int, int, str]:
     """Trivial pairs from the null basis, nontrivial pairs from each component."""
     n = operator.shape[0]
     basis = operator.null_basis
@@ -278,31 +306,35 @@ def _solve_components(
     values = [np.zeros(c)]
     columns: list[tuple[np.ndarray, np.ndarray]] = []  # (rows, vectors)
     used: set[str] = set()
+    reasons: list[tuple[int, str]] = []  # (component size, why its method)
     matvecs = iterations = 0
     extra = k - c
     if extra > 0:
         labels = operator.components
-        for comp in range(int(labels.max()) + 1 if n else 0):
-            rows = np.flatnonzero(labels == comp)
-            wanted = min(extra, rows.size - 1 if c else rows.size)
-            if wanted < 1:
-                continue
-            problem, shift = _component_problem(operator, rows, comp, wanted, tol, maxiter, rng)
-            chosen = _auto_method(operator, rows.size, wanted) if method == "auto" else method
-            if wanted + 1 >= problem.matrix.shape[0]:
-                # Iterative methods cannot return every pair of a component
-                # (ARPACK needs k < n); the full spectrum is a dense job.
-                chosen = "dense"
-            logger.debug("component %d: %d nodes, %d pairs by %s", comp, rows.size, wanted, chosen)
-            if method == "auto" and chosen == "multilevel":
-                found = solve_multilevel(problem, switch=True)  # may hand over to lanczos_flip
-            else:
-                found = _SOLVERS[chosen](problem)
-            used.add(found.method or chosen)
-            matvecs += found.matvecs
-            iterations += found.iterations
-            values.append(found.values - shift)
-            columns.append((rows, found.vectors[: rows.size]))
+        # One thread-limit scope for all components (entering one costs a
+        # fraction of a millisecond, more than a tiny component's solve).
+        with blas_threads(int(np.bincount(labels).max())):
+            for comp in range(int(labels.max()) + 1 if n else 0):
+                rows = np.flatnonzero(labels == comp)
+                wanted = min(extra, rows.size - 1 if c else rows.size)
+                if wanted < 1:
+                    continue
+                problem, shift = _component_problem(operator, rows, comp, wanted, tol, maxiter, rng)
+                found, chosen, reason = _solve_component(operator, problem, method)
+                used.add(found.method or chosen)
+                logger.debug(
+                    "component %d: %d nodes, %d pairs by %s (%s)",
+                    comp,
+                    rows.size,
+                    wanted,
+                    found.method or chosen,
+                    reason,
+                )
+                reasons.append((rows.size, reason))
+                matvecs += found.matvecs
+                iterations += found.iterations
+                values.append(found.values - shift)
+                columns.append((rows, found.vectors[: rows.size]))
     all_values = np.concatenate(values)
     order = np.argsort(all_values, kind="stable")[:k]
     # Assembled straight into the output, in the final order: at a million nodes every
@@ -323,7 +355,73 @@ def _solve_components(
             out[np.ix_(rows, where[keep])] = vecs[:, keep]
         start += width
     columns.clear()
-    return all_values[order], out, used, matvecs, iterations
+    return all_values[order], out, used, matvecs, iterations, _summary(reasons)
+
+
+def _solve_component(
+    operator: GraphOperator, problem: Problem, method: str
+) -> tuple[Solution, str, str]:
+    """One component's pairs, the method chosen and why."""
+    size = problem.matrix.shape[0]
+    if problem.count + 1 >= size:
+        # Iterative methods cannot return every pair of a component
+        # (ARPACK needs k < n); the full spectrum is a dense job.
+        return solve_dense(problem), "dense", "every pair wanted: dense"
+    if method != "auto":
+        return _SOLVERS[method](problem), method, f"{method} asked"
+    sparse = getattr(problem.matrix, "sparse", problem.matrix)  # the sparse part of S - u u^T
+    chosen, factor = _decide(sparse, problem.count, problem.norm_bound, _allowed_methods(operator))
+    if chosen.method == "multilevel":
+        # The multilevel solver may hand the component over to lanczos_flip.
+        found = solve_multilevel(replace(problem, ordering=chosen.order), switch=True)
+        if found.method is None and not _meets_tolerance(problem, found):
+            # Products only, no factorization: the method that cannot run out of
+            # memory, for what the multilevel iteration could not finish.
+            logger.info("multilevel missed the tolerance; lanczos_flip takes over")
+            retry = solve_lanczos_flip(problem)
+            found = replace(
+                retry,
+                matvecs=found.matvecs + retry.matvecs,
+                iterations=found.iterations + retry.iterations,
+                method="lanczos_flip",
+            )
+            reason = f"{chosen.reason}; multilevel missed the tolerance, lanczos_flip took over"
+            return found, "lanczos_flip", reason
+        return found, "multilevel", chosen.reason
+    if factor is not None:
+        problem = replace(problem, factor=factor)
+    return _SOLVERS[chosen.method](problem), chosen.method, chosen.reason
+
+
+def _meets_tolerance(problem: Problem, found: Solution) -> bool:
+    """Whether every pair's scaled residual ``||M v - lambda v|| / bound`` is at most ``tol``."""
+    if found.values.size < problem.count:
+        return False
+    residual = problem.matrix @ found.vectors - found.vectors * found.values
+    scaled = np.linalg.norm(residual, axis=0) / problem.norm_bound
+    return bool(np.all(scaled <= problem.tol))
+
+
+def _summary(reasons: list[tuple[int, str]]) -> str:
+    """Why each component's method: the largest components first, repeats counted once.
+
+    Examples
+    --------
+    >>> _summary([(5, "dense at most 200 nodes"), (900, "x"), (4, "dense at most 200 nodes")])
+    'component of 900 nodes: x | 2 components of 4 to 5 nodes: dense at most 200 nodes'
+    """
+    groups: dict[str, list[int]] = {}
+    for size, reason in sorted(reasons, key=lambda item: -item[0]):
+        groups.setdefault(reason, []).append(size)
+    parts = []
+    for reason, sizes in groups.items():
+        if len(sizes) == 1:
+            parts.append(f"component of {sizes[0]:,} nodes: {reason}")
+        else:
+            parts.append(
+                f"{len(sizes)} components of {min(sizes):,} to {max(sizes):,} nodes: {reason}"
+            )
+    return " | ".join(parts) or "trivial pairs only"
 
 
 def _component_problem(

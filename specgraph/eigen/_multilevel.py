@@ -103,7 +103,9 @@ START_FILTER_CUT = 0.05
 
 
 def _reordered(problem: Problem) -> tuple[sp.csr_array, np.ndarray, np.ndarray]:
-    order = reverse_cuthill_mckee(sp.csr_matrix(problem.matrix), symmetric_mode=True)
+    order = problem.ordering
+    if order is None:
+        order = reverse_cuthill_mckee(sp.csr_matrix(problem.matrix), symmetric_mode=True)
     matrix = sp.csr_array(problem.matrix)[order][:, order].tocsr()
     matrix.sort_indices()
     return matrix, problem.null_vector[order], order

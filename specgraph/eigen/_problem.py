@@ -10,6 +10,7 @@ dispatcher's, so every method is judged by the same rule.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
@@ -36,6 +37,14 @@ class Problem:
         Iteration cap, method-specific meaning; None for the method's default.
     rng : numpy.random.Generator
         Source of start vectors.
+    ordering : ndarray of int or None
+        A reverse Cuthill-McKee order of ``matrix`` when already computed (by
+        the ``auto`` forecast), for solvers that reorder the matrix.
+    factor : object or None
+        The shift-invert factor of ``matrix`` when already computed (by the
+        ``auto`` forecast's trial): :func:`~specgraph.eigen._lanczos.factorize`
+        of the matrix at :func:`~specgraph.eigen._lanczos.shift_of` its norm
+        bound.
     """
 
     matrix: sp.csr_array
@@ -45,6 +54,8 @@ class Problem:
     tol: float
     maxiter: int | None
     rng: np.random.Generator
+    ordering: np.ndarray | None = None
+    factor: Any = None
 
 
 @dataclass(frozen=True, eq=False)

@@ -37,6 +37,11 @@ class EigenResult:
         Outer iterations (restarts, sweeps or levels) summed over components.
     converged : bool
         True when every residual is at most ``tol``.
+    reason : str
+        Why each component was solved by its method: for ``method='auto'``
+        the predicted seconds of each method and the guards that excluded
+        any (see :func:`~specgraph.eigen.choose_method`), largest component
+        first.
     """
 
     values: np.ndarray
@@ -47,6 +52,7 @@ class EigenResult:
     matvecs: int
     iterations: int
     converged: bool
+    reason: str = ""
 
     @property
     def k(self) -> int:
