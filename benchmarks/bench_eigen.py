@@ -449,8 +449,9 @@ def warm_up(method: str, inputs: Inputs) -> None:
 
     names = [method]
     if method == "auto":
-        choice = _auto_choice(inputs.matrix.shape[0])
-        names = [choice] if choice else [m for m in our_names() if m not in {"auto", "dense"}]
+        # auto's choice depends on the matrix (and may take a trial factorization):
+        # warm every solver it can run on a component of this size.
+        names = [m for m in our_names() if m not in {"auto", "dense"}]
     for name in names:
         if name == "dense":  # LAPACK needs no warming, and 5000^3 flops would be slow
             continue
@@ -655,7 +656,8 @@ def plan_rows(
 
 
 def _auto_choice(n: int) -> str | None:
-    """The solver ``auto`` uses on a connected network of ``n`` nodes, if known."""
+    """The solver ``auto`` uses on a connected network of ``n`` nodes when nothing else
+    is known of it (the rule's worst case: ``choose_method`` without the matrix)."""
     try:
         from specgraph.eigen import choose_method
 
