@@ -295,7 +295,15 @@ def verdicts(rows: list[Row], net: RealNetwork, counts: list[int]) -> list[str]:
         why = auto.record.get("decisions", {}).get("zone_count", {}).get("eigenpairs_reason")
         out.append(
             f"auto: {zones} zones from {pairs} pairs "
-            + ("ok" if ok else f"MISSED (recorded: {why})")
+            + (
+                "ok"
+                if ok
+                else (
+                    f"over count + {AUTO_PAIRS_SLACK}, ok with the reason recorded: {why}"
+                    if why
+                    else "MISSED (no reason recorded)"
+                )
+            )
         )
     return out
 

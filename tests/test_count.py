@@ -225,3 +225,21 @@ def test_a_mesh_spectrum_goes_straight_to_the_full_solve() -> None:
     values = 1 - np.cos(np.pi * np.arange(12) / (n - 1))
     assert not count_decided(values, range(2, 51))
     assert next_pair_count(values, 51, range(2, 51)) == 51
+
+
+def test_auto_count_says_in_figures_why_it_needed_more_pairs() -> None:
+    # The path P_n has no clear count; its normalized Laplacian has eigenvalues
+    # 1 - cos(pi j / (n - 1)), j = 0..n-1 (closed form: F. Chung, Spectral Graph
+    # Theory, AMS 1997, Example 1.4). The first 12 pairs give the largest ratio
+    # lambda_3 / lambda_2 at 2 zones, below 2 / lambda_12, the most a later count
+    # could reach: the search must solve further and say so with those figures.
+    n = 200
+    lam = 1.0 - np.cos(np.pi * np.arange(n) / (n - 1))
+    record = find_zones(Network.from_networkx(nx.path_graph(n)), "auto", rng=0).decisions[
+        "zone_count"
+    ]
+    assert record["eigenpairs"] > record["choice"] + 10
+    reason = record["eigenpairs_reason"]
+    assert "more pairs were needed because" in reason
+    assert f"({lam[2] / lam[1]:.3g}, at 2 zones)" in reason
+    assert f"below {2.0 / lam[11]:.3g} (2 over the 12th eigenvalue)" in reason

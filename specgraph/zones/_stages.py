@@ -37,6 +37,7 @@ from ._constraints import (
 )
 from ._count import (
     FIRST_PAIRS,
+    SPECTRUM_CEILING,
     choose_zone_count,
     count_decided,
     default_candidates,
@@ -209,12 +210,13 @@ def choose_count(
     needed = max(candidates) + 1
     ranked = range(max(candidates.start, c + 1), candidates.stop)
     pairs = min(needed, max(FIRST_PAIRS, ranked.start + 1))
-    solves = []
+    solves, undecided = [], []
     while True:
         result = normalized.solve(work, pairs)
         solves.append(pairs)
         if pairs >= needed or count_decided(result.values, ranked):
             break
+        undecided.append(_why_undecided(result.values, ranked))
         pairs = next_pair_count(result.values, needed, ranked)
     searched = range(candidates.start, min(candidates.stop, result.k))
     vectors = result.vectors
@@ -230,6 +232,8 @@ def choose_count(
         else f"no count above {searched.stop - 1} can reach the largest gaps (eigenvalues "
         "are at most 2)"
     )
+    if undecided:
+        decided += "; more pairs were needed because " + "; then ".join(undecided)
     record = {
         "choice": choice.zones,
         "confidence": choice.confidence,
@@ -241,6 +245,28 @@ def choose_count(
         ),
     }
     return choice.zones, record, result if c == 1 and solver.kind == count_kind else None
+
+
+def _why_undecided(values: np.ndarray, ranked: range) -> str:
+    """Why ``values`` (the pairs computed so far) left the zone count open, in figures.
+
+    A count above ``m - 1`` (``m`` pairs computed) has a gap ratio of at most
+    :data:`~specgraph.zones._count.SPECTRUM_CEILING` over the last eigenvalue
+    computed (:func:`~specgraph.zones._count.count_decided`); the sentence gives
+    the best ratio found and that bound.
+    """
+    m = int(values.size)
+    ks = [k for k in ranked if k <= m - 1]
+    ratios = [values[k] / values[k - 1] if values[k - 1] > 0 else np.inf for k in ks]
+    bound = SPECTRUM_CEILING / values[-1] if values[-1] > 0 else np.inf
+    if not ks:
+        return f"the first {m} pairs rank no candidate count"
+    best = int(np.argmax(ratios))
+    return (
+        f"the largest gap ratio of the first {m} pairs ({ratios[best]:.3g}, at {ks[best]} "
+        f"zones) is below {bound:.3g} (2 over the {m}th eigenvalue), the most a count above "
+        f"{m - 1} could reach"
+    )
 
 
 def _counts_within_bounds(
