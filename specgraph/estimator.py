@@ -182,7 +182,7 @@ class ZoneSplitter(ClusterMixin, BaseEstimator):
     operator : {'auto', 'normalized', 'random_walk', 'combinatorial', \
 'regularized', 'bethe_hessian'}, default='auto'
         Operator whose smallest eigenvectors embed the nodes.
-    assign : {'auto', 'kmeans', 'qr', 'bisection'}, default='auto'
+    assign : {'auto', 'kmeans', 'qr', 'bisection', 'kmeans_rw'}, default='auto'
         How embedded nodes become zones.
     refine : bool, default=True
         Improve the boundary by local moves that lower the normalized cut.

@@ -35,6 +35,7 @@ from specgraph.zones._assign import (
     MESH_EIGENVALUE,
     bisection_labels,
     choose_assignment,
+    kmeans_labels,
     qr_concentration,
     qr_labels,
     recursive_bisection,
@@ -328,7 +329,7 @@ def test_auto_keeps_the_lowest_cut_of_the_alternatives() -> None:
     zoning = find_zones(net, 4, rng=0)
     record = zoning.decisions["assign"]
     figures = {alt["method"]: alt for alt in record["alternatives"]}
-    assert set(figures) == {"kmeans", "qr", "bisection"}
+    assert set(figures) == {"kmeans", "qr", "bisection", "kmeans_rw"}
     achieved = ncut(net.adjacency, zoning.labels)
     # The recorded figure of the winner is the normalized cut of the labels delivered.
     assert figures[record["choice"]]["ncut"] == pytest.approx(achieved, rel=1e-9)
@@ -441,3 +442,48 @@ def test_warns_when_size_bounds_change_the_count() -> None:
     assert "min_size" in said[0]
     exact = find_zones(net, 4, rng=0)
     assert not any("were asked" in w for w in exact.warnings)
+
+
+def test_kmeans_rw_clusters_the_generalized_eigenvectors(monkeypatch: pytest.MonkeyPatch) -> None:
+    # assign="kmeans_rw" clusters D^{-1/2} V: solutions of L u = lambda D u (Shi and
+    # Malik 2000), checked with scipy's generalized symmetric solver (scipy.linalg.eigh(L, D)).
+    import scipy.linalg as sla
+
+    from specgraph.zones import _stages
+
+    net = weighted_grid(6, 7, seed=3)
+    k = 3
+    seen: dict[str, np.ndarray] = {}
+
+    def spy(points: np.ndarray, count: int, rng: np.random.Generator) -> np.ndarray:
+        seen["points"] = np.array(points)
+        return kmeans_labels(points, count, rng)
+
+    monkeypatch.setattr(_stages, "kmeans_labels", spy)
+    find_zones(net, k, assign="kmeans_rw", refine=False, rng=0)
+    a = net.adjacency.toarray()
+    d = np.diag(a.sum(axis=1))
+    values, vectors = sla.eigh(d - a, d)
+    angles = sla.subspace_angles(seen["points"], vectors[:, :k])
+    assert np.max(angles) < 1e-5
+    # Each column is itself a generalized eigenvector (residual of L u - lambda D u).
+    for j in range(k):
+        u = seen["points"][:, j]
+        lam = u @ (d - a) @ u / (u @ d @ u)
+        assert lam == pytest.approx(values[j], abs=1e-8)
+        assert np.linalg.norm((d - a) @ u - lam * d @ u) < 1e-5 * np.linalg.norm(d @ u)
+
+
+def test_kmeans_rw_matches_scikit_learn_on_planted_blocks() -> None:
+    # scikit-learn's SpectralClustering(assign_labels="kmeans") clusters the same
+    # coordinates (its spectral_embedding divides by sqrt(degree)); on a clear planted
+    # partition both give the blocks.
+    from sklearn.cluster import SpectralClustering
+
+    net, truth = planted(4, 30, seed=7)
+    ours = find_zones(net, 4, assign="kmeans_rw", refine=False, rng=0).labels
+    theirs = SpectralClustering(
+        n_clusters=4, affinity="precomputed", assign_labels="kmeans", random_state=0
+    ).fit_predict(net.adjacency.toarray())
+    assert adjusted_rand_score(theirs, ours) == 1.0
+    assert adjusted_rand_score(truth, ours) == 1.0

@@ -50,7 +50,7 @@ class ZoningOptions:
     ----------
     operator : {'auto', 'normalized', 'random_walk', 'combinatorial', 'regularized', \
 'bethe_hessian', 'directed'}, default='auto'
-    assign : {'auto', 'kmeans', 'qr', 'bisection'}, default='auto'
+    assign : {'auto', 'kmeans', 'qr', 'bisection', 'kmeans_rw'}, default='auto'
     trees : {'auto', 'attach', 'keep'}, default='auto'
     constraints : ZoneConstraints, optional
     refine : bool, default=True

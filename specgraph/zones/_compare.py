@@ -1,8 +1,9 @@
 """``assign="auto"`` of :func:`~specgraph.zones.find_zones`, and checks of the delivered zones.
 
 ``assign="auto"`` does not guess which assignment suits a network: it runs
-every one of them (:data:`ASSIGN_METHODS`: k-means on normalized rows, the
-pivoted-QR assignment, recursive bisection) on the embedding it already has,
+every one of them (:data:`COMPARED_METHODS`: k-means on normalized rows, the
+pivoted-QR assignment, recursive bisection, k-means on the random-walk
+coordinates) on the embedding it already has,
 takes each through the same rule enforcement and boundary refinement as the
 final zoning (:func:`enforce_rules`, :func:`refine_zones`), and keeps the one
 with the lowest normalized cut
@@ -38,6 +39,7 @@ from ._refine import normalized_cut
 from ._stages import Merged, enforce_rules, refine_zones
 
 __all__ = [
+    "COMPARED_METHODS",
     "COMPARE_MAX_WORK",
     "NCUT_TIE_RTOL",
     "SMALL_ZONE_SHARE",
@@ -77,6 +79,15 @@ NCUT_TIE_RTOL = 1e-9
 SMALL_ZONE_SHARE = 0.01
 
 
+#: The assignments ``assign="auto"`` compares: the three the rule of
+#: :func:`choose_assignment` picks from, and k-means on the random-walk
+#: coordinates (Shi and Malik 2000), which won where k-means on normalized rows
+#: lost to scikit-learn on the real-network benchmark (wntr's Net6 and
+#: pandapower's case3120sp at 8 zones: normalized cut 0.0514 and 0.0048 against
+#: 0.0602 and 0.0057; docs/benchmarks-real.md).
+COMPARED_METHODS = (*ASSIGN_METHODS, "kmeans_rw")
+
+
 def comparison_affordable(n_nodes: int, k: int) -> bool:
     """Whether ``assign="auto"`` compares the assignments (``n * k <= COMPARE_MAX_WORK``)."""
     return n_nodes * k <= COMPARE_MAX_WORK
@@ -88,9 +99,9 @@ def comparison_order(rule_choice: str) -> tuple[str, ...]:
     Examples
     --------
     >>> comparison_order("bisection")
-    ('bisection', 'kmeans', 'qr')
+    ('bisection', 'kmeans', 'qr', 'kmeans_rw')
     """
-    return (rule_choice, *(m for m in ASSIGN_METHODS if m != rule_choice))
+    return (rule_choice, *(m for m in COMPARED_METHODS if m != rule_choice))
 
 
 @dataclass(frozen=True, eq=False)

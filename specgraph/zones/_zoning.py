@@ -329,11 +329,15 @@ def find_zones(
         directed Laplacian of the random surfer on the arcs; the zone count
         ``'auto'`` then reads the eigengaps of that operator, and the
         stationary solves are recorded in ``decisions["directed"]``.
-    assign : {'auto', 'kmeans', 'qr', 'bisection'}, default='auto'
+    assign : {'auto', 'kmeans', 'qr', 'bisection', 'kmeans_rw'}, default='auto'
         How embedded nodes become zones: k-means on normalized rows (Ng,
         Jordan and Weiss 2001), the pivoted-QR assignment (Damle, Minden and
-        Ying 2019), or recursive Fiedler sweep cuts (each with the Cheeger
-        guarantee). ``'auto'``: :func:`choose_assignment`.
+        Ying 2019), recursive Fiedler sweep cuts (each with the Cheeger
+        guarantee), or k-means on the random-walk coordinates
+        :math:`D^{-1/2} V` (Shi and Malik 2000). ``'auto'``: every one of
+        them, each through the rules and the refinement, keeping the lowest
+        normalized cut (:mod:`specgraph.zones._compare`); above
+        ``COMPARE_MAX_WORK`` the pick of :func:`choose_assignment`.
     trees : {'auto', 'attach', 'keep'}, default='auto'
         ``'attach'`` zones the network without its dangling trees and gives
         each tree the zone of the node it hangs from; ``'auto'`` does so when
