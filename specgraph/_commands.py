@@ -45,6 +45,7 @@ from .export import (
 from .io import (
     GRAPHML_SUFFIXES,
     flagged_links,
+    links_at_least,
     read_edges,
     read_geojson_lines,
     read_link_list,
@@ -215,7 +216,23 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
         sources=sources,
         keep_links=tuple(keep),
         fixed=fixed,
+        trunk_links=_trunk_links(network, args),
     )
+
+
+def _trunk_links(network: Network, args: argparse.Namespace) -> tuple[tuple[str, str], ...]:
+    """Trunk links from ``--trunk-col`` (yes/no, or a number with ``--trunk-above``)."""
+    column, above = getattr(args, "trunk_col", None), getattr(args, "trunk_above", None)
+    if above is not None and not column:
+        raise parameter_error("--trunk-above", "given with --trunk-col", above)
+    if not column:
+        return ()
+    if above is None:
+        pairs = flagged_links(network, column, option="--trunk-col")
+    else:
+        pairs = links_at_least(network, column, above, option="--trunk-col")
+    ids = network.node_ids
+    return tuple((ids[a], ids[b]) for a, b in pairs.tolist())
 
 
 def _zone_options(args: argparse.Namespace, constraints: ZoneConstraints) -> dict[str, Any]:

@@ -89,6 +89,7 @@ _positive_int = _bounded(int, 1, strict=False, expected="a whole number >= 1")
 _seed = _bounded(int, 0, strict=False, expected="a whole number >= 0")
 _positive_float = _bounded(float, 0.0, strict=True, expected="a finite number > 0")
 _non_negative_float = _bounded(float, 0.0, strict=False, expected="a finite number >= 0")
+_finite_float = _bounded(float, -math.inf, strict=True, expected="a finite number")
 
 
 def _open_unit(text: str) -> float:
@@ -286,6 +287,20 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         "--fixed",
         metavar="FILE",
         help="table of node,zone rows fixing those nodes' zones in advance",
+    )
+    group.add_argument(
+        "--trunk-col",
+        metavar="COL",
+        help="yes/no column of the edge table marking trunk links (feeding mains): their "
+        "nodes belong to no district, districts are formed on the rest, and the trunk "
+        "becomes one more zone, numbered last",
+    )
+    group.add_argument(
+        "--trunk-above",
+        type=_finite_float,
+        metavar="X",
+        help="with it, --trunk-col is numeric and links whose value is >= X are trunk links "
+        "(e.g. --trunk-col diameter --trunk-above 24)",
     )
 
 

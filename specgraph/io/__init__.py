@@ -9,6 +9,7 @@ from ._geojson import DEFAULT_SNAP_TOLERANCE, SkippedPart, SnapReport, read_geoj
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
 from ._lists import flag_mask, flagged_links, read_link_list, read_node_list, read_zone_file
 from ._tables import read_edges, read_table
+from ._thresholds import links_at_least
 
 __all__ = [
     "DEFAULT_SNAP_TOLERANCE",
@@ -17,6 +18,7 @@ __all__ = [
     "SnapReport",
     "flag_mask",
     "flagged_links",
+    "links_at_least",
     "network_from_frames",
     "read_edges",
     "read_geojson_lines",

@@ -191,13 +191,18 @@ def _davis_kahan(
 ) -> tuple[pd.DataFrame, list[str]]:
     """One row per split component: gap, perturbation norm, bound; and the warnings."""
     kind, merged = _operator_kind(reference), _merged(reference)
+    network = reference.network
+    trunk = reference.decisions.get("trunk", {}).get("trunk_zone")
+    if trunk is not None:  # the solves ran on the districts' nodes, beside the trunk
+        districts = np.flatnonzero(reference.labels != trunk)
+        network, perturbed = network.subnetwork(districts), perturbed.subnetwork(districts)
     rows, notes = [], []
     # The merged network of find_zones numbers its components by first node,
     # as the network does, so solve.component is a component of `network`.
     for solve in reference.solves:
         if solve.eigen.values.size <= solve.zones:
             continue  # the whole component was solved: no (k+1)-th eigenvalue
-        row = _davis_kahan_row(solve, reference.network, perturbed, kind, rng)
+        row = _davis_kahan_row(solve, network, perturbed, kind, rng)
         rows.append({**row, "merged": merged})
         if not row["trustworthy"]:
             where = f" in component {solve.component}" if len(reference.solves) > 1 else ""

@@ -3,7 +3,8 @@
 The stages, one module each: :mod:`._trees` (dangling trees), :mod:`._count`
 (zone count), :mod:`._embedding` and :mod:`._assign` (from eigenvectors to
 zones), :mod:`._constraints` (the user's rules), :mod:`._refine` (boundary
-moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`).
+moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`);
+:mod:`._trunk` runs them beside trunk links (feeding mains outside every zone).
 """
 
 from ._allocate import allocate_zones

@@ -63,10 +63,10 @@ _RULES: dict[str, list[Constraint]] = {
 _PAIR = NodeIds(minimum=2, distinct=True)
 
 
-def _checked_pair(pair: Any) -> tuple[str, str]:
+def _checked_pair(pair: Any, name: str = "keep_links") -> tuple[str, str]:
     ends = _PAIR.parse(pair)
     if ends is REFUSED or len(ends) != 2:
-        raise parameter_error("keep_links", "pairs of two different node ids", pair)
+        raise parameter_error(name, "pairs of two different node ids", pair)
     return ends[0], ends[1]
 
 
@@ -91,6 +91,12 @@ class ZoneConstraints:
         label end in one zone, nodes with different labels in different zones.
     connected : bool, default=True
         Every zone must be connected.
+    trunk_links : tuple of (str, str), default=()
+        Links of the network that are feeding (trunk, transmission) mains:
+        their ends belong to no district, districts are formed on the rest,
+        and every link from a trunk node into a district is one of its
+        inlets (:mod:`specgraph.zones._trunk`). Each must be a link of the
+        network.
 
     Examples
     --------
@@ -108,6 +114,7 @@ class ZoneConstraints:
     keep_links: tuple[tuple[str, str], ...] = ()
     fixed: Mapping[str, int] | None = None
     connected: bool = True
+    trunk_links: tuple[tuple[str, str], ...] = ()
 
     def __post_init__(self) -> None:
         given = {name: getattr(self, name) for name in _RULES}
@@ -125,6 +132,8 @@ class ZoneConstraints:
         object.__setattr__(self, "max_size", high)
         object.__setattr__(self, "sources", checked["sources"])
         object.__setattr__(self, "keep_links", pairs)
+        trunk = tuple(_checked_pair(pair, "trunk_links") for pair in self.trunk_links)
+        object.__setattr__(self, "trunk_links", trunk)
         object.__setattr__(self, "fixed", fixed)
 
     def resolve(self, network: Network) -> ResolvedConstraints:
@@ -150,20 +159,8 @@ class ZoneConstraints:
             sizes = np.ones(n)
         index = network.index_of
         sources = _rows_of(index, self.sources, "sources")
-        flat = [end for pair in self.keep_links for end in pair]
-        keep = _rows_of(index, flat, "keep_links").reshape(-1, 2)
-        if keep.size:
-            linked = np.asarray(network.adjacency[keep[:, 0], keep[:, 1]]).ravel() > 0
-            if not linked.all():
-                bad = [
-                    f"{a}-{b}" for (a, b), ok in zip(self.keep_links, linked, strict=True) if not ok
-                ]
-                raise parameter_error(
-                    "keep_links",
-                    "links of the network",
-                    bad,
-                    shown=f"{len(bad)} pairs that are not ({_quote(bad)})",
-                )
+        keep = _link_rows(network, self.keep_links, "keep_links")
+        trunk = _link_rows(network, self.trunk_links, "trunk_links")
         pinned = np.full(n, -1, dtype=np.int64)
         if self.fixed:
             rows = _rows_of(index, list(self.fixed), "fixed")
@@ -178,7 +175,25 @@ class ZoneConstraints:
             connected=self.connected,
             node_ids=network.node_ids,
             coordinates=network.coordinates,
+            trunk_pairs=trunk,
         )
+
+
+def _link_rows(network: Network, pairs: tuple[tuple[str, str], ...], name: str) -> np.ndarray:
+    """Rows of the two ends of each pair, shape (m, 2); refused unless each is a link."""
+    flat = [end for pair in pairs for end in pair]
+    rows = _rows_of(network.index_of, flat, name).reshape(-1, 2)
+    if rows.size:
+        linked = np.asarray(network.adjacency[rows[:, 0], rows[:, 1]]).ravel() > 0
+        if not linked.all():
+            bad = [f"{a}-{b}" for (a, b), ok in zip(pairs, linked, strict=True) if not ok]
+            raise parameter_error(
+                name,
+                "links of the network",
+                bad,
+                shown=f"{len(bad)} pairs that are not ({_quote(bad)})",
+            )
+    return rows
 
 
 def _rows_of(index: Mapping[str, int], ids: Any, name: str) -> np.ndarray:
@@ -214,6 +229,9 @@ class ResolvedConstraints:
         Only used to name nodes in messages (rows are named otherwise).
     coordinates : ndarray of float, shape (n, 2), optional
         Only used in messages: the distance between two nodes a refusal names.
+    trunk_pairs : ndarray of int, shape (t, 2)
+        Rows of the two ends of every trunk link (:func:`find_zones` zones
+        the network beside them; the enforcement steps never see them).
     """
 
     min_size: float | None
@@ -225,15 +243,18 @@ class ResolvedConstraints:
     connected: bool = True
     node_ids: np.ndarray | None = None
     coordinates: np.ndarray | None = None
+    trunk_pairs: np.ndarray = field(default_factory=lambda: np.empty((0, 2), dtype=np.int64))
 
     def __post_init__(self) -> None:
         sizes = check_param(self.sizes, "sizes", [Array("float", (None,), low=0)])
         n = sizes.size
         sources = np.asarray(self.sources, dtype=np.int64).ravel()
         keep = np.asarray(self.keep_pairs, dtype=np.int64).reshape(-1, 2)
+        trunk = np.asarray(self.trunk_pairs, dtype=np.int64).reshape(-1, 2)
         pinned = np.full(n, -1, dtype=np.int64) if self.pinned is None else self.pinned
         pinned = check_param(pinned, "pinned", [Array("int", (n,), low=-1)])
-        for name, rows in (("sources", sources), ("keep_pairs", keep.ravel())):
+        named = (("sources", sources), ("keep_pairs", keep.ravel()), ("trunk_pairs", trunk.ravel()))
+        for name, rows in named:
             if rows.size and (rows.min() < 0 or rows.max() >= n):
                 raise parameter_error(name, f"row indices in [0, {n})", rows)
         if np.unique(sources).size != sources.size:
@@ -241,6 +262,7 @@ class ResolvedConstraints:
         object.__setattr__(self, "sizes", sizes)
         object.__setattr__(self, "sources", sources)
         object.__setattr__(self, "keep_pairs", keep)
+        object.__setattr__(self, "trunk_pairs", trunk)
         object.__setattr__(self, "pinned", pinned)
         if self.coordinates is not None:
             xy = check_param(self.coordinates, "coordinates", [Array("float", (n, 2))])

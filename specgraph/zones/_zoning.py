@@ -18,6 +18,10 @@ modules named below):
 6. expand super-nodes back to nodes, number zones by descending size, and
    compute the zone table and the boundary links.
 
+With trunk links (feeding mains kept outside every zone), these steps zone
+the network beside them and the trunk becomes one more zone
+(:mod:`._trunk`).
+
 Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 """
 
@@ -80,6 +84,7 @@ from ._stages import (
     tree_pairs,
     zones_per_component,
 )
+from ._trunk import zone_beside_trunk
 
 __all__ = [
     "ASSIGNMENTS",
@@ -344,7 +349,9 @@ def find_zones(
         :func:`trees_worth_stripping` says it is worth it.
     constraints : ZoneConstraints, optional
         Size bounds, sources, links that must not be cut, fixed zones, and
-        connectivity (default: every zone connected, nothing else).
+        connectivity (default: every zone connected, nothing else). With
+        trunk links, ``zones`` counts districts, formed beside the trunk,
+        which becomes one more zone numbered last (:mod:`._trunk`).
     refine : bool, default=True
         Improve the boundary by local moves that lower the normalized cut
         and keep every constraint (:func:`refine_boundary`).
@@ -394,6 +401,25 @@ def find_zones(
     )
     stage = progress if progress is not None else _no_progress
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
+    if rules.trunk_pairs.size:  # districts beside the trunk links (module _trunk)
+        return zone_beside_trunk(
+            network,
+            rules,
+            options.spec,
+            lambda net, rest, spec: _zone_rules(net, replace(options, spec=spec), rest, stage),
+            lambda record: {
+                **record,
+                "zones": options.record({}, "")["zones"],  # as asked, not capped
+                "constraints": _constraint_record(rules),
+            },
+        )
+    return _zone_rules(network, options, rules, stage)
+
+
+def _zone_rules(
+    network: Network, options: _Options, rules: ResolvedConstraints, stage: Callable[[str], None]
+) -> Zoning:
+    """Steps 2 to 7 of :func:`find_zones` on resolved rules."""
     refuse_infeasible(network.adjacency, rules)  # what arithmetic decides, before any solve
     zoning = _zone_once(network, options, rules, stage)
     if not _kept_trees_worth_trying(zoning, options):
@@ -698,4 +724,5 @@ def _constraint_record(rules: ResolvedConstraints) -> dict[str, Any]:
         "keep_links": len(rules.keep_pairs),
         "fixed_nodes": int(np.count_nonzero(rules.pinned >= 0)),
         "connected": rules.connected,
+        **({"trunk_links": len(rules.trunk_pairs)} if rules.trunk_pairs.size else {}),
     }
