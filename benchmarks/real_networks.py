@@ -91,7 +91,15 @@ SOURCES: tuple[Source, ...] = (
             *_PANDAPOWER,
             f"pandapower/networks/power_system_test_case_jsons/{case}.json",
         )
-        for case in ("case1888rte", "case2848rte", "case3120sp", "case6470rte", "case9241pegase")
+        for case in (
+            "case1888rte",
+            "case2848rte",
+            "case2869pegase",
+            "case3120sp",
+            "case6470rte",
+            "case9241pegase",
+            "GBnetwork",
+        )
     ),
     *(
         Source(f"backbone-{name}", "backbone", *_TOPOHUB, f"topohub/data/backbone/{name}.json")

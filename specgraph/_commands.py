@@ -241,6 +241,7 @@ def _zone_options(args: argparse.Namespace, constraints: ZoneConstraints) -> dic
         "operator": args.operator,
         "assign": args.assign,
         "trees": args.trees,
+        "dominant": args.dominant,
         "constraints": constraints,
         "refine": not args.no_refine,
         "tol": args.tol,

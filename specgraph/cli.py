@@ -44,6 +44,8 @@ from .walks import DEFAULT_DAMPING
 from .zones import (
     ASSIGNMENTS,
     DEFAULT_LOCAL_ALPHA,
+    DOMINANT_GAP,
+    DOMINANT_TREATMENTS,
     OPERATOR_KINDS,
     TREE_TREATMENTS,
     parse_zone_spec,
@@ -238,6 +240,14 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         default="auto",
         help="dangling branches: 'attach' zones the network without them and gives each "
         "branch the zone of the node it hangs from; 'keep' zones them like any node",
+    )
+    group.add_argument(
+        "--dominant",
+        choices=DOMINANT_TREATMENTS,
+        default="contract",
+        help=f"links at least {DOMINANT_GAP:g}x stronger than every link around them (bus "
+        "couplers): 'contract' merges their ends before the solve so no zone is a coupler's "
+        "two ends; 'ignore' leaves them (default contract)",
     )
     group.add_argument(
         "--min-size",

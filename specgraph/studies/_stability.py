@@ -183,7 +183,8 @@ def _merged(reference: Zoning) -> bool:
     """Whether the reference solves ran on a network with merged super-nodes."""
     trees = reference.decisions.get("trees", {}).get("choice") == "attach"
     keep = reference.parameters.get("constraints", {}).get("keep_links", 0)
-    return bool(trees or keep)
+    dominant = reference.decisions.get("weights", {}).get("contracted", 0)
+    return bool(trees or keep or dominant)
 
 
 def _davis_kahan(

@@ -1,7 +1,8 @@
 """Zone assignment: embedding, assignment, constraints, refinement, and the :class:`Zoning` result.
 
 The stages, one module each: :mod:`._trees` (dangling trees), :mod:`._count`
-(zone count), :mod:`._embedding` and :mod:`._assign` (from eigenvectors to
+(zone count), :mod:`._dominant` (the spread of the affinities and the
+links that dwarf the rest), :mod:`._embedding` and :mod:`._assign` (from eigenvectors to
 zones), :mod:`._constraints` (the user's rules), :mod:`._refine` (boundary
 moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`);
 :mod:`._trunk` runs them beside trunk links (feeding mains outside every zone).
@@ -26,6 +27,14 @@ from ._balance import BALANCE_ROUNDS, Balance, balance_sizes
 from ._constraints import enforce_constraints
 from ._contract import Contraction, contract_links
 from ._count import ZoneCount, choose_zone_count, default_candidates, parse_zone_spec
+from ._dominant import (
+    DOMINANT_GAP,
+    DOMINANT_TREATMENTS,
+    WEIGHT_RANGE_WARN,
+    DominantLinks,
+    find_dominant_links,
+    weight_range,
+)
 from ._embedding import normalized_rows
 from ._local import (
     DEFAULT_LOCAL_ALPHA,
@@ -58,10 +67,13 @@ __all__ = [
     "ASSIGN_METHODS",
     "BALANCE_ROUNDS",
     "DEFAULT_LOCAL_ALPHA",
+    "DOMINANT_GAP",
+    "DOMINANT_TREATMENTS",
     "KMEANS_RESTARTS",
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
+    "WEIGHT_RANGE_WARN",
     "ZONING_CONSTRAINTS",
     "AssignmentChoice",
     "Balance",
@@ -69,6 +81,7 @@ __all__ = [
     "BisectionCut",
     "ComponentSolve",
     "Contraction",
+    "DominantLinks",
     "Enforcement",
     "LocalZone",
     "OperatorChoice",
@@ -93,6 +106,7 @@ __all__ = [
     "core_and_trees",
     "default_candidates",
     "enforce_constraints",
+    "find_dominant_links",
     "find_zones",
     "kmeans_labels",
     "local_zone",
@@ -107,4 +121,5 @@ __all__ = [
     "refine_boundary",
     "sweep_cut",
     "trees_worth_stripping",
+    "weight_range",
 ]

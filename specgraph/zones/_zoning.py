@@ -66,6 +66,7 @@ from ._compare import (
 )
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
 from ._count import parse_zone_spec
+from ._dominant import DOMINANT_TREATMENTS, dominant_contraction
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
 from ._readonly import read_only
 from ._stages import (
@@ -112,6 +113,7 @@ ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
     "operator": [Options(("auto", *OPERATOR_KINDS))],
     "assign": [Options(("auto", *ASSIGNMENTS))],
     "trees": [Options(("auto", *TREE_TREATMENTS))],
+    "dominant": [Options(DOMINANT_TREATMENTS)],
     "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
     "refine": [Boolean()],
     "eigen_method": [Options(METHODS)],
@@ -285,6 +287,7 @@ def find_zones(
     operator: str = "auto",
     assign: str = "auto",
     trees: str = "auto",
+    dominant: str = "contract",
     constraints: ZoneConstraints | None = None,
     refine: bool = True,
     eigen_method: str = "auto",
@@ -347,6 +350,16 @@ def find_zones(
         ``'attach'`` zones the network without its dangling trees and gives
         each tree the zone of the node it hangs from; ``'auto'`` does so when
         :func:`trees_worth_stripping` says it is worth it.
+    dominant : {'contract', 'ignore'}, default='contract'
+        Links whose affinity dwarfs every link around them (bus couplers,
+        zero-impedance ties: groups whose inner links are at least
+        :data:`~specgraph.zones.DOMINANT_GAP` times every link leaving them)
+        are contracted before the solve like kept links, so that no zone is a
+        coupler's two ends; never into a node holding two sources, two fixed
+        zones or more than ``max_size``. ``'ignore'`` leaves them. Either way
+        ``decisions["weights"]`` records the spread of the affinities and the
+        links found, and a warning is given when the largest affinity exceeds
+        :data:`~specgraph.zones.WEIGHT_RANGE_WARN` times the median.
     constraints : ZoneConstraints, optional
         Size bounds, sources, links that must not be cut, fixed zones, and
         connectivity (default: every zone connected, nothing else). With
@@ -390,6 +403,7 @@ def find_zones(
         operator=operator,
         assign=assign,
         trees=trees,
+        dominant=dominant,
         refine=refine,
         eigen_method=eigen_method,
         tol=tol,
@@ -486,6 +500,7 @@ def _zone_once(
     labels = number_by_size(labels_w[merged.groups], network.node_weights)
     parameters = options.record(_constraint_record(rules), kind)
     notes = [
+        *([decisions["weights"]["warning"]] if decisions["weights"]["warning"] else []),
         *step4.notes,
         *zone_warnings(network, labels, step4.asked, decisions["constraints"]["notes"]),
     ]
@@ -501,6 +516,7 @@ class _Options:
     operator: str
     assign: str
     trees: str
+    dominant: str
     refine: bool
     eigen_method: str
     tol: float
@@ -516,6 +532,7 @@ class _Options:
             "operator": self.operator,
             "assign": self.assign,
             "trees": self.trees,
+            "dominant": self.dominant,
             "refine": self.refine,
             "constraints": constraints,
             "eigen_method": self.eigen_method,
@@ -544,6 +561,7 @@ def _checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) ->
         checked["operator"],
         checked["assign"],
         checked["trees"],
+        checked["dominant"],
         checked["refine"],
         checked["eigen_method"],
         checked["tol"],
@@ -560,11 +578,14 @@ def _merge_and_choose_operator(
     spec = options.spec
     k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
     pairs, trees_decision = tree_pairs(network, rules, options.trees, k_hint)
-    merged = merge_together(network, rules, np.concatenate([rules.keep_pairs, pairs]))
+    together = np.concatenate([rules.keep_pairs, pairs])
+    strong, weights = dominant_contraction(network, rules, options.dominant, together)
+    merged = merge_together(network, rules, np.concatenate([together, strong]))
     # Trees kept on request say nothing about localization: no remark then.
     attached = None if options.trees == "keep" else bool(pairs.size > 0)
     choice = choose_operator(options.operator, directed=network.directed, trees_attached=attached)
-    return merged, choice.kind, {"trees": trees_decision, "operator": choice.as_decision()}
+    decisions = {"weights": weights, "trees": trees_decision, "operator": choice.as_decision()}
+    return merged, choice.kind, decisions
 
 
 @dataclass(frozen=True, eq=False)
