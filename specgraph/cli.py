@@ -244,10 +244,11 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
     group.add_argument(
         "--dominant",
         choices=DOMINANT_TREATMENTS,
-        default="contract",
+        default="auto",
         help=f"links at least {DOMINANT_GAP:g}x stronger than every link around them (bus "
         "couplers): 'contract' merges their ends before the solve so no zone is a coupler's "
-        "two ends; 'ignore' leaves them (default contract)",
+        "two ends; 'auto' does so only where zoning with them free leaves a zone inside "
+        "their group or cuts one; 'ignore' leaves them (default auto)",
     )
     group.add_argument(
         "--min-size",

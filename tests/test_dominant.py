@@ -21,6 +21,7 @@ from specgraph.zones import (
     ZoneConstraints,
     _dominant,
     contract_links,
+    coupler_trouble,
     find_dominant_links,
     weight_range,
 )
@@ -232,7 +233,46 @@ def test_no_zone_is_a_couplers_two_ends() -> None:
     assert np.bincount(zoning.labels).min() > 3
     boundary = {frozenset(p) for p in zoning.boundary[["source", "target"]].to_numpy().tolist()}
     assert not boundary & {frozenset(c) for c in couplers}
-    assert zoning.parameters["dominant"] == "contract"
+    assert zoning.parameters["dominant"] == "auto"
+    # auto contracted because the zoning with them free had coupler zones, and says so.
+    assert decision["choice"] == "auto"
+    assert "auto: with them free" in decision["reason"]
+    assert "inside one group held by dominant links" in decision["reason"]
+    held = find_zones(network, 8, dominant="contract", rng=0)
+    assert np.array_equal(held.labels, zoning.labels)
+
+
+def test_auto_leaves_dominant_links_free_where_no_zone_needs_them_merged() -> None:
+    # Two couplers deep inside a grid: 2 zones never fall inside a coupler's group
+    # nor cut one, so auto gives the zoning of dominant='ignore', with the reason.
+    graph, couplers = coupler_grid()
+    for bus, section in couplers[-2:]:
+        graph.remove_edge(bus, section)
+        graph.remove_node(section)
+    network = Network.from_networkx(graph)
+    free = find_zones(network, 2, dominant="ignore", rng=0)
+    assert not coupler_trouble(network.adjacency, free.labels)
+    auto = find_zones(network, 2, rng=0)
+    assert np.array_equal(auto.labels, free.labels)
+    assert auto.decisions["weights"]["contracted"] == 0
+    assert "left free" in auto.decisions["weights"]["reason"]
+
+
+def test_coupler_trouble_names_zones_inside_a_group_and_cut_couplers() -> None:
+    graph, couplers = coupler_grid()
+    network = Network.from_networkx(graph)
+    ids = network.node_ids.tolist()
+    bus, section = (ids.index(v) for v in couplers[-1])  # a pendant section
+    labels = np.zeros(network.n_nodes, dtype=np.int64)
+    labels[[bus, section]] = 1  # the coupler's two ends alone: a zone of 2
+    assert coupler_trouble(network.adjacency, labels) == (
+        "1 zones lie inside one group held by dominant links (2 nodes)"
+    )
+    labels[:] = 0
+    labels[section] = 1  # the pendant section alone: inside its group, its coupler cut
+    assert coupler_trouble(network.adjacency, labels) == (
+        "1 zones lie inside one group held by dominant links (1 nodes); 1 dominant links cut"
+    )
 
 
 def test_a_coupler_between_two_sources_is_left() -> None:
@@ -293,7 +333,7 @@ def test_the_command_records_the_option(tmp_path: Path, dominant: str | None) ->
     argv = ["zones", str(edges), "--weight", "weight", "--zones", "8", "--out", str(out)]
     assert main([*argv, *given, "--quiet"]) == 0
     record = json.loads((out / "run.json").read_text(encoding="utf-8"))
-    assert record["parameters"]["dominant"] == (dominant or "contract")
+    assert record["parameters"]["dominant"] == (dominant or "auto")
     weights = record["decisions"]["weights"]
     assert weights["dominant"] == len(couplers)
     assert weights["contracted"] == (0 if dominant == "ignore" else len(couplers))

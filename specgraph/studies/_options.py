@@ -52,7 +52,7 @@ class ZoningOptions:
 'bethe_hessian', 'directed'}, default='auto'
     assign : {'auto', 'kmeans', 'qr', 'bisection', 'kmeans_rw'}, default='auto'
     trees : {'auto', 'attach', 'keep'}, default='auto'
-    dominant : {'contract', 'ignore'}, default='contract'
+    dominant : {'auto', 'contract', 'ignore'}, default='auto'
     constraints : ZoneConstraints, optional
     refine : bool, default=True
     eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
@@ -74,7 +74,7 @@ class ZoningOptions:
     operator: str = "auto"
     assign: str = "auto"
     trees: str = "auto"
-    dominant: str = "contract"
+    dominant: str = "auto"
     constraints: ZoneConstraints | None = None
     refine: bool = True
     eigen_method: str = "auto"

@@ -32,6 +32,7 @@ from ._dominant import (
     DOMINANT_TREATMENTS,
     WEIGHT_RANGE_WARN,
     DominantLinks,
+    coupler_trouble,
     find_dominant_links,
     weight_range,
 )
@@ -104,6 +105,7 @@ __all__ = [
     "constraint_violations",
     "contract_links",
     "core_and_trees",
+    "coupler_trouble",
     "default_candidates",
     "enforce_constraints",
     "find_dominant_links",

@@ -41,7 +41,7 @@ from typing import Any
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.sparse.csgraph import minimum_spanning_tree
+from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 
 from ..network import Network
 from ._arrays import as_csr
@@ -53,8 +53,10 @@ __all__ = [
     "DOMINANT_GAP",
     "DOMINANT_SHOWN",
     "DOMINANT_TREATMENTS",
+    "NODE_COUNTS_SHOWN",
     "WEIGHT_RANGE_WARN",
     "DominantLinks",
+    "coupler_trouble",
     "dominant_contraction",
     "find_dominant_links",
     "weight_range",
@@ -84,9 +86,11 @@ WEIGHT_RANGE_WARN = 1000.0
 #: covers them all).
 DOMINANT_SHOWN = 20
 
-#: What ``find_zones(dominant=...)`` accepts: contract the dominant links
-#: before the solve, or leave them as they are.
-DOMINANT_TREATMENTS = ("contract", "ignore")
+#: What ``find_zones(dominant=...)`` accepts: ``'auto'`` (zone with the
+#: dominant links free and contract them, zoning again, only where that left a
+#: zone inside one of their groups or cut one of them), contract them before
+#: the solve, or leave them as they are.
+DOMINANT_TREATMENTS = ("auto", "contract", "ignore")
 
 
 @dataclass(frozen=True)
@@ -277,7 +281,10 @@ def dominant_contraction(
     ----------
     network : Network
     rules : ResolvedConstraints
-    treatment : {'contract', 'ignore'}
+    treatment : {'auto', 'contract', 'ignore'}
+        ``'auto'`` contracts nothing here (the first pass of
+        :func:`~specgraph.zones.find_zones`, which zones again with
+        ``'contract'`` when :func:`coupler_trouble` finds something).
     merged_pairs : ndarray of int, shape (m, 2)
         Pairs already merged (kept links, attached trees): the dominant links
         are contracted on top of them, so the checks see the whole super-node.
@@ -319,6 +326,53 @@ def dominant_contraction(
     decision["warning"] = _warning(decision)
     pairs = found.pairs[keep] if keep.any() else none
     return pairs, decision
+
+
+def coupler_trouble(adjacency: Any, labels: np.ndarray) -> str:
+    """What a zoning does wrong with the dominant links, in words, or ``''``.
+
+    Two things, both the reason to contract: a zone whose every node lies in one
+    group held by dominant links (such as a bus coupler's two ends), and a
+    dominant link between two zones.
+
+    Examples
+    --------
+    >>> a = sp.csr_array(np.array([[0, 1e6, 1, 0], [1e6, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]]))
+    >>> coupler_trouble(a, np.array([0, 0, 1, 1]))
+    '1 zones lie inside one group held by dominant links (2 nodes)'
+    >>> coupler_trouble(a, np.array([0, 1, 0, 1]))
+    '1 dominant links cut'
+    """
+    found = find_dominant_links(adjacency, gap=DOMINANT_GAP)
+    if not found.weights.size:
+        return ""
+    labels = np.asarray(labels, dtype=np.int64)
+    n = labels.size
+    ends = found.pairs
+    held = sp.coo_array((np.ones(len(ends)), (ends[:, 0], ends[:, 1])), shape=(n, n))
+    _, group = connected_components(held, directed=False)
+    size = np.bincount(group)
+    zones = int(labels.max()) + 1
+    low = np.full(zones, n, dtype=np.int64)
+    high = np.full(zones, -1, dtype=np.int64)
+    np.minimum.at(low, labels, group)
+    np.maximum.at(high, labels, group)
+    inside = np.flatnonzero((low == high) & (size[np.clip(low, 0, n - 1)] >= 2))
+    cut = int(np.count_nonzero(labels[ends[:, 0]] != labels[ends[:, 1]]))
+    said = []
+    if inside.size:
+        members = np.bincount(labels, minlength=zones)[inside]
+        sizes = ", ".join(str(int(m)) for m in np.sort(members)[:NODE_COUNTS_SHOWN])
+        said.append(
+            f"{inside.size} zones lie inside one group held by dominant links ({sizes} nodes)"
+        )
+    if cut:
+        said.append(f"{cut} dominant links cut")
+    return "; ".join(said)
+
+
+#: Sizes of zones quoted by :func:`coupler_trouble` before the rest are left out.
+NODE_COUNTS_SHOWN = 5
 
 
 def _allowed(
@@ -394,6 +448,11 @@ def _reason(decision: dict[str, Any]) -> str:
     )
     if decision["choice"] == "ignore":
         return f"{spread}; {what} left as they are (asked)"
+    if decision["choice"] == "auto":
+        return (
+            f"{spread}; {what} left free: the zoning holds no zone inside one such group "
+            "and cuts none of them (auto contracts them only then)"
+        )
     kept = f"{done} contracted like kept links, so no zone is such a group alone"
     not_done = found - done
     if not_done:
@@ -413,6 +472,11 @@ def _warning(decision: dict[str, Any]) -> str:
     found, done = decision["dominant"], decision["contracted"]
     if found == 0:
         return head + "no link dwarfs the links around it, so nothing was contracted"
+    if decision["choice"] == "auto":
+        return head + (
+            f"{found} dominant links were left free, since no zone lies inside one of their "
+            "groups and none is cut (auto)"
+        )
     if decision["choice"] == "ignore":
         return head + (
             f"{found} dominant links were left as they are (dominant='ignore'): zones of the "

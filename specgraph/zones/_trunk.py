@@ -34,7 +34,7 @@ from __future__ import annotations
 import logging
 from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import TYPE_CHECKING, Any, Protocol
+from typing import Any, Protocol
 
 import numpy as np
 import pandas as pd
@@ -44,10 +44,8 @@ from .._figures import boundary_links, overall_scores, zone_table
 from ..exceptions import ConstraintError
 from ..network import Network
 from ._compare import SMALL_ZONE_SHARE
+from ._result import Zoning
 from ._rules import NAMES_SHOWN, ResolvedConstraints
-
-if TYPE_CHECKING:  # the result type only: _zoning imports this module at run time
-    from ._zoning import Zoning
 
 __all__ = [
     "INLET_COLUMN",

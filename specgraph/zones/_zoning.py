@@ -30,13 +30,12 @@ from __future__ import annotations
 import logging
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
-import pandas as pd
 
-from .._figures import boundary_links, eigengaps, overall_scores, zone_table
+from .._figures import boundary_links, overall_scores, zone_table
 from .._validation import (
     OPEN_UNIT,
     POSITIVE,
@@ -66,9 +65,9 @@ from ._compare import (
 )
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
 from ._count import parse_zone_spec
-from ._dominant import DOMINANT_TREATMENTS, dominant_contraction
+from ._dominant import DOMINANT_TREATMENTS, coupler_trouble, dominant_contraction
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
-from ._readonly import read_only
+from ._result import ComponentSolve, Zoning
 from ._stages import (
     _ASSIGNERS,
     Merged,
@@ -124,129 +123,6 @@ ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
 }
 
 
-@dataclass(frozen=True, eq=False)
-class ComponentSolve:
-    """The eigen-solve of one connected component (of the merged network).
-
-    ``nodes`` and the eigen-solve's arrays are read-only views.
-    """
-
-    component: int
-    nodes: np.ndarray
-    zones: int
-    eigen: EigenResult
-
-    def __post_init__(self) -> None:
-        eig = self.eigen
-        object.__setattr__(self, "nodes", read_only(np.asarray(self.nodes)))
-        frozen = {
-            name: read_only(getattr(eig, name)) for name in ("values", "vectors", "residuals")
-        }
-        object.__setattr__(self, "eigen", replace(eig, **frozen))
-
-    def __setstate__(self, state: dict[str, Any]) -> None:
-        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
-        self.__dict__.update(state)
-        self.__post_init__()
-
-
-@dataclass(frozen=True, eq=False)
-class Zoning:
-    """A zoning of a network and the evidence behind it.
-
-    Attributes
-    ----------
-    network : Network
-    labels : ndarray of int, shape (n_nodes,)
-        Zone of each node; zones numbered ``0..k-1`` by descending size
-        (node count, or summed node size when the network has sizes).
-    zones : pandas.DataFrame
-        Per-zone figures (:func:`specgraph.diagnostics.zone_table`).
-    boundary : pandas.DataFrame
-        Links between zones (:func:`specgraph.diagnostics.boundary_links`).
-    solves : tuple of ComponentSolve
-        The eigen-solve of every component that was split.
-    scores : dict
-        Whole-zoning figures (:func:`specgraph.diagnostics.overall_scores`).
-    parameters : dict
-        The options used.
-    decisions : dict
-        Each choice made on the user's behalf or each step that changed the
-        zones: ``{"operator": {...}, "zone_count": {...}, ...}``, every entry
-        with a ``"reason"`` sentence and its figures.
-    warnings : tuple of str
-        What the user should know (components, raised zone counts...).
-
-    Notes
-    -----
-    A zoning is read-only, not only its attributes: ``labels`` (and the
-    arrays of :attr:`solves`) are read-only views, so ``zoning.labels[0] = 7``
-    raises ``ValueError``; ``scores``, ``parameters`` and ``decisions`` (and
-    the dicts and lists inside them) refuse changes with ``TypeError``. The
-    records are ``dict`` and ``list`` subclasses, so they read, compare and
-    serialize (``json.dumps``, :func:`specgraph.export.run_record`) like
-    plain ones; to change one, copy it first (``dict(zoning.parameters)``,
-    ``zoning.labels.copy()``). The tables ``zones`` and ``boundary`` are
-    pandas DataFrames, which cannot be made read-only: treat them as such
-    and work on ``.copy()``.
-    """
-
-    network: Network
-    labels: np.ndarray
-    zones: pd.DataFrame
-    boundary: pd.DataFrame
-    solves: tuple[ComponentSolve, ...]
-    scores: dict[str, Any]
-    parameters: dict[str, Any]
-    decisions: dict[str, dict[str, Any]] = field(default_factory=dict)
-    warnings: tuple[str, ...] = field(default=())
-
-    def __post_init__(self) -> None:
-        object.__setattr__(self, "labels", read_only(np.asarray(self.labels)))
-        for name in ("scores", "parameters", "decisions"):
-            object.__setattr__(self, name, read_only(dict(getattr(self, name))))
-        object.__setattr__(self, "solves", tuple(self.solves))
-        object.__setattr__(self, "warnings", tuple(self.warnings))
-
-    def __setstate__(self, state: dict[str, Any]) -> None:
-        # Unpickling skips __post_init__ and gives writable arrays: freeze them again.
-        self.__dict__.update(state)
-        self.__post_init__()
-
-    @property
-    def n_zones(self) -> int:
-        return len(self.zones)
-
-    def to_frame(self) -> pd.DataFrame:
-        """``node, zone`` table, in network row order."""
-        return pd.DataFrame({"node": self.network.node_ids, "zone": self.labels})
-
-    def spectrum(self) -> pd.DataFrame:
-        """Eigenvalues and scaled residuals of every component solve.
-
-        Columns ``index`` (0 for the smallest pair of the component),
-        ``eigenvalue``, ``residual``, ``component``, ``gap_after`` (distance to
-        the next eigenvalue; empty for the last).
-        """
-        frames = []
-        for solve in self.solves:
-            values = solve.eigen.values
-            gaps = np.append(eigengaps(values), np.nan)
-            frames.append(
-                pd.DataFrame(
-                    {
-                        "index": np.arange(values.size),
-                        "eigenvalue": values,
-                        "residual": solve.eigen.residuals,
-                        "component": solve.component,
-                        "gap_after": gaps,
-                    }
-                )
-            )
-        columns = ["index", "eigenvalue", "residual", "component", "gap_after"]
-        return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=columns)
-
-
 def number_by_size(labels: np.ndarray, weights: np.ndarray) -> np.ndarray:
     """Renumber zones ``0..k-1`` by descending size, ties by first node.
 
@@ -287,7 +163,7 @@ def find_zones(
     operator: str = "auto",
     assign: str = "auto",
     trees: str = "auto",
-    dominant: str = "contract",
+    dominant: str = "auto",
     constraints: ZoneConstraints | None = None,
     refine: bool = True,
     eigen_method: str = "auto",
@@ -350,13 +226,16 @@ def find_zones(
         ``'attach'`` zones the network without its dangling trees and gives
         each tree the zone of the node it hangs from; ``'auto'`` does so when
         :func:`trees_worth_stripping` says it is worth it.
-    dominant : {'contract', 'ignore'}, default='contract'
+    dominant : {'auto', 'contract', 'ignore'}, default='auto'
         Links whose affinity dwarfs every link around them (bus couplers,
         zero-impedance ties: groups whose inner links are at least
-        :data:`~specgraph.zones.DOMINANT_GAP` times every link leaving them)
-        are contracted before the solve like kept links, so that no zone is a
-        coupler's two ends; never into a node holding two sources, two fixed
-        zones or more than ``max_size``. ``'ignore'`` leaves them. Either way
+        :data:`~specgraph.zones.DOMINANT_GAP` times every link leaving them).
+        ``'contract'`` contracts them before the solve like kept links, so
+        that no zone is a coupler's two ends; never into a node holding two
+        sources, two fixed zones or more than ``max_size``. ``'auto'`` zones
+        with them free and, only where that leaves a zone inside one of their
+        groups or cuts one of them, zones again with them contracted (the
+        reason in ``decisions["weights"]``). ``'ignore'`` leaves them. Either way
         ``decisions["weights"]`` records the spread of the affinities and the
         links found, and a warning is given when the largest affinity exceeds
         :data:`~specgraph.zones.WEIGHT_RANGE_WARN` times the median.
@@ -433,8 +312,33 @@ def find_zones(
 def _zone_rules(
     network: Network, options: _Options, rules: ResolvedConstraints, stage: Callable[[str], None]
 ) -> Zoning:
-    """Steps 2 to 7 of :func:`find_zones` on resolved rules."""
+    """Steps 2 to 8 of :func:`find_zones` on resolved rules."""
     refuse_infeasible(network.adjacency, rules)  # what arithmetic decides, before any solve
+    # The random state at the start: a second zoning (step 8) starts from it
+    # too, so it is the zoning dominant='contract' gives for the same seed.
+    start = options.rng.bit_generator.state
+    zoning = _zone_trees(network, options, rules, stage)
+    if options.dominant != "auto" or not zoning.decisions["weights"]["dominant"]:
+        return zoning
+    # Step 8: the dominant links were left free; if a zone lies inside one of
+    # their groups or one of them is cut, zone again with them contracted.
+    trouble = coupler_trouble(network.adjacency, zoning.labels)
+    if not trouble:
+        return zoning
+    options.rng.bit_generator.state = start
+    held = _zone_trees(network, replace(options, dominant="contract"), rules, stage)
+    weights = dict(held.decisions["weights"])
+    weights["choice"] = "auto"
+    weights["reason"] += f" (auto: with them free, {trouble})"
+    return replace(
+        held, parameters=zoning.parameters, decisions={**held.decisions, "weights": weights}
+    )
+
+
+def _zone_trees(
+    network: Network, options: _Options, rules: ResolvedConstraints, stage: Callable[[str], None]
+) -> Zoning:
+    """Steps 2 to 7 of :func:`find_zones`: zoned once, and again with trees kept if worth it."""
     zoning = _zone_once(network, options, rules, stage)
     if not _kept_trees_worth_trying(zoning, options):
         return zoning
