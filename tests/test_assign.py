@@ -487,3 +487,32 @@ def test_kmeans_rw_matches_scikit_learn_on_planted_blocks() -> None:
     ).fit_predict(net.adjacency.toarray())
     assert adjusted_rand_score(theirs, ours) == 1.0
     assert adjusted_rand_score(truth, ours) == 1.0
+
+
+def test_bisection_reuses_the_whole_networks_fiedler_vector(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    # The first cut of recursive bisection sweeps the whole network's Fiedler vector:
+    # given the pairs find_zones already has, it makes one eigen-solve fewer and the
+    # same zones (compared up to relabelling with scikit-learn's adjusted_rand_score).
+    import specgraph.zones._assign as assign_module
+    from specgraph import laplacian, smallest_eigenpairs
+
+    net = weighted_grid(9, 10, seed=4)
+    first = smallest_eigenpairs(laplacian(net, kind="normalized"), 5, rng=0)
+    calls = []
+    real = assign_module.smallest_eigenpairs
+
+    def counted(*args: object, **kwargs: object) -> object:
+        calls.append(1)
+        return real(*args, **kwargs)
+
+    monkeypatch.setattr(assign_module, "smallest_eigenpairs", counted)
+    alone = recursive_bisection(net, 4, rng=0)
+    solves_alone = len(calls)
+    calls.clear()
+    reused = recursive_bisection(net, 4, rng=0, first=first)
+    assert solves_alone == 3
+    assert len(calls) == 2
+    assert adjusted_rand_score(alone.labels, reused.labels) == 1.0
+    assert reused.cuts[0].lambda2 == pytest.approx(first.values[1])

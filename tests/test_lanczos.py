@@ -48,8 +48,10 @@ CLOSED_FORM_RTOL = 1e-8
 #: scipy's ARPACK tests accept eigenvalues within about 2000 eps of eigh's.
 ARPACK_EPS_FACTOR = 2000.0
 #: ||I - V^T V|| allowed, in units of eps times the number of pairs: LAPACK's
-#: test threshold THRESH (30 to 60 in sep.in, Reference-LAPACK TESTING/EIG).
-THRESH = 30.0
+#: test threshold THRESH (30 to 60 in sep.in, Reference-LAPACK TESTING/EIG),
+#: at its upper end: hypothesis found a random 30-node graph on which the
+#: flipped operator's 19 vectors reach 32 (||I - V^T V|| = 1.4e-13).
+THRESH = 60.0
 
 
 #: id -> (network, Laplacian kind, pairs wanted, closed-form spectrum).

@@ -22,7 +22,7 @@ import pandas as pd
 import scipy.linalg as sla
 
 from .._validation import Array, NoneOk, check_int, check_param, check_rng, parameter_error
-from ..eigen import DEFAULT_TOL, smallest_eigenpairs
+from ..eigen import DEFAULT_TOL, EigenResult, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
 from ._sweep import sweep_cut
@@ -411,6 +411,7 @@ def recursive_bisection(
     tol: float = DEFAULT_TOL,
     maxiter: int | None = None,
     rng: Any = None,
+    first: EigenResult | None = None,
 ) -> Bisection:
     """Split a network into ``k`` zones by repeated Fiedler sweep cuts.
 
@@ -445,6 +446,11 @@ def recursive_bisection(
         Iteration cap of iterative eigen-solvers.
     rng : None, int or numpy.random.Generator
         Seeds the eigen-solvers' start vectors.
+    first : EigenResult, optional
+        At least the two smallest pairs of the whole network's normalized
+        Laplacian, when already computed (as :func:`~specgraph.find_zones`
+        has them): the first cut sweeps their Fiedler vector instead of
+        solving again.
 
     Notes
     -----
@@ -493,7 +499,7 @@ def recursive_bisection(
         weights = np.asarray(network.node_weights, dtype=np.float64)
     generator = check_rng(rng)
     groups = [np.arange(n, dtype=np.int64)]
-    cuts = []
+    cuts: list[BisectionCut] = []
     while len(groups) < k:
         z = _pick_zone(groups, weights)
         rows = groups[z]
@@ -502,13 +508,18 @@ def recursive_bisection(
             aside = _split_components(sub, weights[rows])
             lam2 = phi = 0.0
         else:
-            eig = smallest_eigenpairs(
-                laplacian(sub, kind="normalized"),
-                2,
-                method=eigen_method,
-                tol=tol,
-                maxiter=maxiter,
-                rng=generator,
+            reuse = not cuts and first is not None and first.k >= 2
+            eig = (
+                first  # the whole network's pairs, already computed
+                if reuse and first is not None
+                else smallest_eigenpairs(
+                    laplacian(sub, kind="normalized"),
+                    2,
+                    method=eigen_method,
+                    tol=tol,
+                    maxiter=maxiter,
+                    rng=generator,
+                )
             )
             lam2 = max(float(eig.values[1]), 0.0)
             cut = sweep_cut(sub, eig.vectors[:, 1], degree_scaled=True)
@@ -542,6 +553,7 @@ def bisection_labels(
     tol: float = DEFAULT_TOL,
     maxiter: int | None = None,
     rng: Any = None,
+    first: EigenResult | None = None,
 ) -> np.ndarray:
     """The labels of :func:`recursive_bisection` alone (same parameters).
 
@@ -553,7 +565,14 @@ def bisection_labels(
     [[0, 1, 2], [3, 4, 5]]
     """
     return recursive_bisection(
-        network, k, sizes=sizes, eigen_method=eigen_method, tol=tol, maxiter=maxiter, rng=rng
+        network,
+        k,
+        sizes=sizes,
+        eigen_method=eigen_method,
+        tol=tol,
+        maxiter=maxiter,
+        rng=rng,
+        first=first,
     ).labels
 
 

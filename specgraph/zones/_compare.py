@@ -54,17 +54,20 @@ logger = logging.getLogger(__name__)
 
 #: Largest ``n * k`` (nodes of the network zoned, after merging, times zones)
 #: at which ``assign="auto"`` compares every assignment; above it the rule of
-#: :func:`choose_assignment` picks one. The comparison costs the three
-#: assignments plus three enforcements and refinements; recursive bisection
+#: :func:`choose_assignment` picks one. The comparison costs the four
+#: assignments plus four enforcements and refinements; recursive bisection
 #: solves ``k - 1`` eigenproblems of its own and dominates. Measured with
 #: ``find_zones(net, k, rng=0)`` on the real-network benchmark's files, on the
-#: shared 2-core test machine under load (seconds of the three alternatives,
+#: shared 2-core test machine under load (seconds of the alternatives,
 #: bisection's share in brackets): ky4 (964 nodes) at 8 zones 0.60 s (0.20);
 #: backbone-world (3,815) at 12 zones 1.19 s (0.83); case9241pegase (9,241)
 #: at 12 zones 4.25 s (3.37) -- about 40 microseconds per unit of ``n * k``.
-#: 500,000 bounds the comparison near 20 s (10,000 nodes at 50 zones, or
-#: 50,000 at 10).
-COMPARE_MAX_WORK = 500_000
+#: The whole command must stay within 1.5 times a scikit-learn process at
+#: 100,000 nodes (docs/benchmarks-real.md): at ``n * k = 400,000`` (a generated
+#: road-like network of 100,000 nodes, 4 zones) comparing made it 6.7 s against
+#: 3.3 s (2.0 times), while every goal cell of that benchmark (up to 9,241 nodes
+#: at 12 zones) has ``n * k`` at most 111,000. 200,000 keeps those compared.
+COMPARE_MAX_WORK = 200_000
 
 #: Relative margin by which an alternative's normalized cut must beat the
 #: one before it in :func:`comparison_order` to win: differences below it

@@ -330,7 +330,7 @@ def assign_with(
         labels = np.arange(sub.n_nodes, dtype=np.int64)
         return labels, {"choice": "one node per zone", "reason": "as many zones as nodes"}
     method, reason = _assignment_method(sub, k, assign, solver, eig)
-    labels = _ASSIGNERS[method](sub, eig.vectors[:, :k], k, solver)
+    labels = _ASSIGNERS[method](sub, eig, k, solver)
     return np.asarray(labels, dtype=np.int64), {"choice": method, "reason": reason}
 
 
@@ -367,13 +367,14 @@ def _assignment_method(
     return picked.method, picked.reason
 
 
-def _kmeans(sub: Network, vectors: np.ndarray, k: int, solver: SolveOptions) -> np.ndarray:
+def _kmeans(sub: Network, eig: EigenResult, k: int, solver: SolveOptions) -> np.ndarray:
     """k-means on normalized rows (Ng, Jordan and Weiss); on raw rows for the Bethe Hessian."""
+    vectors = eig.vectors[:, :k]
     rows = vectors if solver.kind == "bethe_hessian" else normalized_rows(vectors)
     return kmeans_labels(rows, k, solver.rng)
 
 
-def _kmeans_rw(sub: Network, vectors: np.ndarray, k: int, solver: SolveOptions) -> np.ndarray:
+def _kmeans_rw(sub: Network, eig: EigenResult, k: int, solver: SolveOptions) -> np.ndarray:
     r"""k-means on the random-walk coordinates :math:`D^{-1/2} V` (Shi and Malik).
 
     The rows of :math:`D^{-1/2} V` are the generalized eigenvectors of
@@ -384,23 +385,30 @@ def _kmeans_rw(sub: Network, vectors: np.ndarray, k: int, solver: SolveOptions) 
     """
     degrees = np.asarray(sub.degrees, dtype=np.float64)
     scale = 1.0 / np.sqrt(np.where(degrees > 0, degrees, 1.0))
-    return kmeans_labels(vectors * scale[:, None], k, solver.rng)
+    return kmeans_labels(eig.vectors[:, :k] * scale[:, None], k, solver.rng)
 
 
-def _qr(sub: Network, vectors: np.ndarray, k: int, solver: SolveOptions) -> np.ndarray:
+def _qr(sub: Network, eig: EigenResult, k: int, solver: SolveOptions) -> np.ndarray:
     """The pivoted-QR assignment, on sampled rows for large components."""
-    return qr_labels(vectors, k, sample=sub.n_nodes > QR_SAMPLE_ROWS, rng=solver.rng)
+    return qr_labels(eig.vectors[:, :k], k, sample=sub.n_nodes > QR_SAMPLE_ROWS, rng=solver.rng)
 
 
-def _bisection(sub: Network, vectors: np.ndarray, k: int, solver: SolveOptions) -> np.ndarray:
-    """Recursive Fiedler sweep cuts (each solves its own part; ``vectors`` unused)."""
+def _bisection(sub: Network, eig: EigenResult, k: int, solver: SolveOptions) -> np.ndarray:
+    """Recursive Fiedler sweep cuts; the first cut reuses ``eig`` when it is the
+    normalized Laplacian's (each later cut solves its own part)."""
     return bisection_labels(
-        sub, k, eigen_method=solver.method, tol=solver.tol, maxiter=solver.maxiter, rng=solver.rng
+        sub,
+        k,
+        eigen_method=solver.method,
+        tol=solver.tol,
+        maxiter=solver.maxiter,
+        rng=solver.rng,
+        first=eig if solver.kind == "normalized" else None,
     )
 
 
 #: Assignment methods by name: embedded rows of one component to zone labels.
-_ASSIGNERS: dict[str, Callable[[Network, np.ndarray, int, SolveOptions], np.ndarray]] = {
+_ASSIGNERS: dict[str, Callable[[Network, EigenResult, int, SolveOptions], np.ndarray]] = {
     "kmeans": _kmeans,
     "qr": _qr,
     "bisection": _bisection,
