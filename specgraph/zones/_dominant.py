@@ -101,6 +101,23 @@ class DominantLinks:
     weights: np.ndarray
 
 
+def _int32_indices(matrix: sp.csr_array) -> sp.csr_array:
+    """``matrix`` with 32-bit index arrays where they fit.
+
+    scipy 1.15 (the oldest version this package allows) refuses 64-bit
+    indices in ``minimum_spanning_tree`` ("Buffer dtype mismatch", measured in
+    the oldest-pins environment of ``.ci/oldest``); scipy 1.17 accepts them.
+    Past 2**31 - 1 entries the indices stay 64-bit.
+    """
+    limit = np.iinfo(np.int32).max
+    if matrix.nnz > limit or matrix.shape[0] > limit:
+        return matrix
+    out = matrix.copy()
+    out.indices = out.indices.astype(np.int32)
+    out.indptr = out.indptr.astype(np.int32)
+    return out
+
+
 def _links(adjacency: Any) -> sp.coo_array:
     """Every link once (the upper triangle of the symmetric adjacency), zeros dropped."""
     upper = sp.triu(as_csr(adjacency), k=1).tocoo()
@@ -192,7 +209,7 @@ def find_dominant_links(adjacency: Any, *, gap: float = DOMINANT_GAP) -> Dominan
     rank = np.empty(w.size)
     rank[order] = np.arange(1, w.size + 1)
     ranked = sp.coo_array((rank, (links.row, links.col)), shape=links.shape)
-    forest = minimum_spanning_tree(ranked.tocsr()).tocoo()
+    forest = minimum_spanning_tree(_int32_indices(ranked.tocsr())).tocoo()
     by_strength = np.argsort(forest.data, kind="stable")
     rows = forest.row[by_strength].astype(np.int64)
     cols = forest.col[by_strength].astype(np.int64)
