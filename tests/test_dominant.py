@@ -251,7 +251,7 @@ def test_auto_leaves_dominant_links_free_where_no_zone_needs_them_merged() -> No
         graph.remove_node(section)
     network = Network.from_networkx(graph)
     free = find_zones(network, 2, dominant="ignore", rng=0)
-    assert not coupler_trouble(network.adjacency, free.labels)
+    assert not coupler_trouble(find_dominant_links(network.adjacency), free.labels)
     auto = find_zones(network, 2, rng=0)
     assert np.array_equal(auto.labels, free.labels)
     assert auto.decisions["weights"]["contracted"] == 0
@@ -265,12 +265,12 @@ def test_coupler_trouble_names_zones_inside_a_group_and_cut_couplers() -> None:
     bus, section = (ids.index(v) for v in couplers[-1])  # a pendant section
     labels = np.zeros(network.n_nodes, dtype=np.int64)
     labels[[bus, section]] = 1  # the coupler's two ends alone: a zone of 2
-    assert coupler_trouble(network.adjacency, labels) == (
+    assert coupler_trouble(find_dominant_links(network.adjacency), labels) == (
         "1 zones lie inside one group held by dominant links (2 nodes)"
     )
     labels[:] = 0
     labels[section] = 1  # the pendant section alone: inside its group, its coupler cut
-    assert coupler_trouble(network.adjacency, labels) == (
+    assert coupler_trouble(find_dominant_links(network.adjacency), labels) == (
         "1 zones lie inside one group held by dominant links (1 nodes); 1 dominant links cut"
     )
 

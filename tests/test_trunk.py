@@ -293,6 +293,12 @@ def test_cli_threshold_and_yes_no_column_give_the_same_zoning(
     assert zones_a.equals(zones_b)
 
 
+def zones_with_threshold(edges: Path, column: str, tmp_path: Path) -> list[str]:
+    """The zones command with trunk links read as ``column >= 24``."""
+    out = str(tmp_path / "o")
+    return ["zones", str(edges), "--trunk-col", column, "--trunk-above", "24", "--out", out]
+
+
 def test_cli_refuses_a_non_numeric_threshold_column_at_its_line(
     tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
@@ -300,36 +306,12 @@ def test_cli_refuses_a_non_numeric_threshold_column_at_its_line(
     table = pd.read_csv(edges, dtype=str)
     table.loc[4, "dia"] = "wide"
     table.to_csv(edges, index=False)
-    code, err = run_cli(
-        [
-            "zones",
-            str(edges),
-            "--trunk-col",
-            "dia",
-            "--trunk-above",
-            "24",
-            "--out",
-            str(tmp_path / "o"),
-        ],
-        capsys,
-    )
+    code, err = run_cli(zones_with_threshold(edges, "dia", tmp_path), capsys)
     assert code == 2
     # Data row 4 (0-based) is file line 6: the header is line 1.
     for word in ["pipes.csv", "line 6", "dia", "'wide'"]:
         assert word in err
-    code, err = run_cli(
-        [
-            "zones",
-            str(edges),
-            "--trunk-col",
-            "bore",
-            "--trunk-above",
-            "24",
-            "--out",
-            str(tmp_path / "o"),
-        ],
-        capsys,
-    )
+    code, err = run_cli(zones_with_threshold(edges, "bore", tmp_path), capsys)
     assert code == 2
     assert "bore" in err
     assert "--trunk-col" in err

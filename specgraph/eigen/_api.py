@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 import scipy.sparse as sp
 
+from .._threads import one_thread
 from .._validation import (
     POSITIVE,
     Constraint,
@@ -51,7 +52,6 @@ from ._lanczos import factorize, shift_of, solve_lanczos, solve_lanczos_flip
 from ._multilevel import solve_multilevel
 from ._problem import Problem, Solution
 from ._result import EigenResult
-from ._threads import blas_threads
 
 __all__ = [
     "DEFAULT_TOL",
@@ -313,7 +313,7 @@ def _solve_components(
         labels = operator.components
         # One thread-limit scope for all components (entering one costs a
         # fraction of a millisecond, more than a tiny component's solve).
-        with blas_threads(int(np.bincount(labels).max())):
+        with one_thread(int(np.bincount(labels).max())):
             for comp in range(int(labels.max()) + 1 if n else 0):
                 rows = np.flatnonzero(labels == comp)
                 wanted = min(extra, rows.size - 1 if c else rows.size)

@@ -27,6 +27,7 @@ import numpy as np
 import scipy.linalg as la
 import scipy.sparse as sp
 
+from .._sparse import int32_indexed
 from . import _kernels as kern
 
 __all__ = ["Hierarchy", "Level", "build_hierarchy"]
@@ -241,7 +242,7 @@ def _aggregate(matrix: sp.csr_array) -> np.ndarray:
     strength = sp.csr_matrix(abs(matrix))
     strength.setdiag(0)
     strength.eliminate_zeros()
-    agg_op, _ = standard_aggregation(_int32_indexed(strength))
+    agg_op, _ = standard_aggregation(int32_indexed(strength))
     agg_op = agg_op.tocsr()
     counts = np.diff(agg_op.indptr)
     aggregate = np.full(matrix.shape[0], -1, dtype=np.int64)
@@ -250,21 +251,6 @@ def _aggregate(matrix: sp.csr_array) -> np.ndarray:
     lonely = np.flatnonzero(aggregate < 0)  # rows pyamg left out become singletons
     aggregate[lonely] = agg_op.shape[1] + np.arange(lonely.size)
     return aggregate
-
-
-def _int32_indexed(matrix: sp.csr_matrix) -> sp.csr_matrix:
-    """``matrix`` with 32-bit index arrays where its size allows, for pyamg.
-
-    scipy keeps 64-bit index arrays for a matrix built from 64-bit coordinates,
-    and pyamg's compiled aggregation takes 32-bit ones only before pyamg 5.4
-    (5.4 casts them itself); a matrix too large for 32-bit indices is left as
-    it is.
-    """
-    limit = np.iinfo(np.int32).max
-    if matrix.nnz <= limit and max(matrix.shape) <= limit:
-        matrix.indices = matrix.indices.astype(np.int32, copy=False)
-        matrix.indptr = matrix.indptr.astype(np.int32, copy=False)
-    return matrix
 
 
 def _coarsen(matrix: sp.csr_array, null: np.ndarray) -> tuple[Level, sp.csr_array, np.ndarray]:

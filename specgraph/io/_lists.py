@@ -186,9 +186,19 @@ def flagged_links(network: Network, column: str, *, option: str = "--keep-col") 
     [[0, 1]]
     """
     table = network.link_table
+    mask = flag_mask(table, column, origin=link_table_origin(network), option=option)
+    return links_where(network, mask)
+
+
+def link_table_origin(network: Network) -> Origin:
+    """Where the network's link table was read from, for messages naming its lines."""
     record = network.notes.get("edge_table", {})
-    origin = _located(record.get("path") if isinstance(record, dict) else None)
-    mask = flag_mask(table, column, origin=origin, option=option)
+    return _located(record.get("path") if isinstance(record, dict) else None)
+
+
+def links_where(network: Network, mask: np.ndarray) -> np.ndarray:
+    """Row-index pairs of the link-table rows in ``mask``, self-loops left out
+    (the network leaves them out too)."""
     src, dst = network.link_ends
     keep = mask & (src != dst)
     return np.column_stack([src[keep], dst[keep]]).astype(np.int64)

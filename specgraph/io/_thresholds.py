@@ -13,7 +13,7 @@ import numpy as np
 
 from ..network import Network
 from ._frames import _parse_numbers
-from ._lists import _located, _require_column
+from ._lists import _require_column, link_table_origin, links_where
 
 __all__ = ["links_at_least"]
 
@@ -56,8 +56,7 @@ def links_at_least(
     [[0, 1]]
     """
     table = network.link_table
-    record = network.notes.get("edge_table", {})
-    origin = _located(record.get("path") if isinstance(record, dict) else None)
+    origin = link_table_origin(network)
     _require_column(table, column, origin, option)
     notes = network.notes
     if column == "weight" and notes.get("weight_read_as") == "distance":
@@ -80,6 +79,4 @@ def links_at_least(
             column=column,
             row=row,
         )
-    src, dst = network.link_ends
-    chosen = (values >= threshold) & (src != dst)
-    return np.column_stack([src[chosen], dst[chosen]]).astype(np.int64)
+    return links_where(network, values >= threshold)

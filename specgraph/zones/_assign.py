@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 import scipy.linalg as sla
 
+from .._threads import one_thread
 from .._validation import Array, NoneOk, check_int, check_param, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, EigenResult, smallest_eigenpairs
 from ..network import Network
@@ -32,7 +33,6 @@ __all__ = [
     "CHEEGER_RTOL",
     "CONCENTRATION_QR",
     "KMEANS_RESTARTS",
-    "KMEANS_SERIAL_ROWS",
     "MESH_EIGENVALUE",
     "QR_CHUNK_ROWS",
     "QR_OVERSAMPLING",
@@ -70,15 +70,6 @@ QR_OVERSAMPLING = 10.0
 #: :math:`\lambda_2` by about ``residual**2 / gap``; 1e-6 relative covers it
 #: with room while still catching a wrong vector.
 CHEEGER_RTOL = 1e-6
-
-#: k-means of at most this many rows runs on one thread (OpenMP and BLAS,
-#: through ``threadpoolctl``). scikit-learn's Lloyd iterations share each pass
-#: between threads; on this shared 2-core machine under load (load average
-#: about 8) ten restarts on 6,470 x 12 rows took 0.22 s on one thread against
-#: 4.7 s on two, three restarts on 50,000 x 12 rows 1.9 against 10.6 s and on
-#: 200,000 x 12 rows 6.9 against 9.9 s. The same bound as the eigen-solvers'
-#: (``SERIAL_BLAS_ROWS`` in :mod:`specgraph.eigen._threads`, measured the same way).
-KMEANS_SERIAL_ROWS = 200_000
 
 #: The names :func:`choose_assignment` picks from.
 ASSIGN_METHODS = ("kmeans", "qr", "bisection")
@@ -119,11 +110,7 @@ def kmeans_labels(points: np.ndarray, k: int, rng: np.random.Generator) -> np.nd
 
     seed = int(rng.integers(np.iinfo(np.int32).max))
     model = KMeans(n_clusters=k, n_init=KMEANS_RESTARTS, random_state=seed)
-    if points.shape[0] > KMEANS_SERIAL_ROWS:
-        return model.fit_predict(points).astype(np.int64)
-    from threadpoolctl import threadpool_limits  # a dependency of scikit-learn
-
-    with threadpool_limits(limits=1):
+    with one_thread(points.shape[0], user_api=None):  # OpenMP and BLAS
         return model.fit_predict(points).astype(np.int64)
 
 

@@ -33,10 +33,9 @@ import numpy as np
 
 from ..exceptions import ConstraintError
 from ..network import Network
-from ._assign import ASSIGN_METHODS
 from ._connectivity import pieces_per_zone
 from ._refine import normalized_cut
-from ._stages import Merged, enforce_rules, refine_zones
+from ._stages import _ASSIGNERS, Merged, enforce_rules, refine_zones
 
 __all__ = [
     "COMPARED_METHODS",
@@ -82,13 +81,14 @@ NCUT_TIE_RTOL = 1e-9
 SMALL_ZONE_SHARE = 0.01
 
 
-#: The assignments ``assign="auto"`` compares: the three the rule of
+#: The assignments ``assign="auto"`` compares: every one of the dispatch table
+#: (:data:`~specgraph.zones.ASSIGNMENTS`, in its order): the three the rule of
 #: :func:`choose_assignment` picks from, and k-means on the random-walk
 #: coordinates (Shi and Malik 2000), which won where k-means on normalized rows
 #: lost to scikit-learn on the real-network benchmark (wntr's Net6 and
 #: pandapower's case3120sp at 8 zones: normalized cut 0.0514 and 0.0048 against
 #: 0.0602 and 0.0057; docs/benchmarks-real.md).
-COMPARED_METHODS = (*ASSIGN_METHODS, "kmeans_rw")
+COMPARED_METHODS = tuple(_ASSIGNERS)
 
 
 def comparison_affordable(n_nodes: int, k: int) -> bool:

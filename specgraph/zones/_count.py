@@ -44,6 +44,7 @@ __all__ = [
     "default_candidates",
     "next_pair_count",
     "parse_zone_spec",
+    "why_undecided",
 ]
 
 #: Largest zone count the default candidate range reaches: beyond some tens
@@ -415,6 +416,35 @@ def count_decided(values: np.ndarray, candidates: range, *, checked: int = 1) ->
     top = np.sort(ratios)[::-1][: min(checked, len(candidates))]
     return top.size == min(checked, len(candidates)) and bool(
         top.min() >= SPECTRUM_CEILING / values[-1]
+    )
+
+
+def why_undecided(values: np.ndarray, candidates: range) -> str:
+    """Why :func:`count_decided` found ``values`` (the pairs computed) short, in figures.
+
+    A count above ``m - 1`` (``m`` pairs computed) has a gap ratio of at most
+    :data:`SPECTRUM_CEILING` over the last eigenvalue computed; the sentence
+    gives the best ratio found and that bound.
+
+    Examples
+    --------
+    >>> said = why_undecided(np.array([0.0, 0.1, 0.12, 0.14]), range(2, 30))
+    >>> said.split(" is below ")[0]  # 0.12 / 0.1
+    'the largest gap ratio of the first 4 pairs (1.2, at 2 zones)'
+    >>> said.split(" is below ")[1][:31]  # 2 / 0.14
+    '14.3 (2 over the 4th eigenvalue'
+    """
+    m = int(values.size)
+    ks = [k for k in candidates if k <= m - 1]
+    if not ks:
+        return f"the first {m} pairs rank no candidate count"
+    ratios = _computed_ratios(values, candidates)
+    best = int(np.argmax(ratios))
+    bound = SPECTRUM_CEILING / values[-1] if values[-1] > 0 else np.inf
+    return (
+        f"the largest gap ratio of the first {m} pairs ({ratios[best]:.3g}, at {ks[best]} "
+        f"zones) is below {bound:.3g} (2 over the {m}th eigenvalue), the most a count above "
+        f"{m - 1} could reach"
     )
 
 

@@ -43,6 +43,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 
+from .._sparse import int32_indexed
 from ..network import Network
 from ._arrays import as_csr
 from ._contract import contract_links
@@ -59,6 +60,7 @@ __all__ = [
     "coupler_trouble",
     "dominant_contraction",
     "find_dominant_links",
+    "survey_weights",
     "weight_range",
 ]
 
@@ -101,21 +103,29 @@ class DominantLinks:
     weights: np.ndarray
 
 
-def _int32_indices(matrix: sp.csr_array) -> sp.csr_array:
-    """``matrix`` with 32-bit index arrays where they fit.
+@dataclass(frozen=True, eq=False)
+class WeightSurvey:
+    """A network's affinity spread (:func:`weight_range`) and dominant links
+    (:func:`find_dominant_links`), read once per zoning and shared by its passes."""
 
-    scipy 1.15 (the oldest version this package allows) refuses 64-bit
-    indices in ``minimum_spanning_tree`` ("Buffer dtype mismatch", measured in
-    the oldest-pins environment of ``.ci/oldest``); scipy 1.17 accepts them.
-    Past 2**31 - 1 entries the indices stay 64-bit.
+    figures: dict[str, Any]
+    found: DominantLinks
+
+
+def survey_weights(adjacency: Any) -> WeightSurvey:
+    """:func:`weight_range` and :func:`find_dominant_links` (at :data:`DOMINANT_GAP`) at once.
+
+    Examples
+    --------
+    >>> from specgraph import gallery
+    >>> a = gallery.path(4).adjacency.tolil()
+    >>> a[1, 2] = a[2, 1] = 1e6
+    >>> survey = survey_weights(a)
+    >>> survey.figures["links"], survey.found.pairs.tolist()
+    (3, [[1, 2]])
     """
-    limit = np.iinfo(np.int32).max
-    if matrix.nnz > limit or matrix.shape[0] > limit:
-        return matrix
-    out = matrix.copy()
-    out.indices = out.indices.astype(np.int32)
-    out.indptr = out.indptr.astype(np.int32)
-    return out
+    links = _links(adjacency)
+    return WeightSurvey(_range_of(links.data), _dominant_of(links, DOMINANT_GAP))
 
 
 def _links(adjacency: Any) -> sp.coo_array:
@@ -147,7 +157,11 @@ def weight_range(adjacency: Any) -> dict[str, Any]:
     >>> weight_range(a)["max_over_min"]
     100.0
     """
-    w = _links(adjacency).data
+    return _range_of(_links(adjacency).data)
+
+
+def _range_of(w: np.ndarray) -> dict[str, Any]:
+    """:func:`weight_range` of the affinities ``w``, one per link."""
     if w.size == 0:
         return dict.fromkeys(("min", "median", "max", "max_over_median", "max_over_min")) | {
             "links": 0
@@ -199,7 +213,11 @@ def find_dominant_links(adjacency: Any, *, gap: float = DOMINANT_GAP) -> Dominan
     >>> find_dominant_links(a).pairs.tolist()
     [[1, 2]]
     """
-    links = _links(adjacency)
+    return _dominant_of(_links(adjacency), gap)
+
+
+def _dominant_of(links: sp.coo_array, gap: float) -> DominantLinks:
+    """:func:`find_dominant_links` of the links ``links`` (each once)."""
     none = DominantLinks(np.empty((0, 2), dtype=np.int64), np.empty(0))
     w = links.data
     if w.size < 2 or w.max() < gap * w.min():
@@ -209,7 +227,7 @@ def find_dominant_links(adjacency: Any, *, gap: float = DOMINANT_GAP) -> Dominan
     rank = np.empty(w.size)
     rank[order] = np.arange(1, w.size + 1)
     ranked = sp.coo_array((rank, (links.row, links.col)), shape=links.shape)
-    forest = minimum_spanning_tree(_int32_indices(ranked.tocsr())).tocoo()
+    forest = minimum_spanning_tree(int32_indexed(ranked.tocsr())).tocoo()
     by_strength = np.argsort(forest.data, kind="stable")
     rows = forest.row[by_strength].astype(np.int64)
     cols = forest.col[by_strength].astype(np.int64)
@@ -291,6 +309,7 @@ def dominant_contraction(
     rules: ResolvedConstraints,
     treatment: str,
     merged_pairs: np.ndarray,
+    survey: WeightSurvey,
 ) -> tuple[np.ndarray, dict[str, Any]]:
     """The dominant links to contract before the solve, and the ``"weights"`` decision.
 
@@ -305,6 +324,8 @@ def dominant_contraction(
     merged_pairs : ndarray of int, shape (m, 2)
         Pairs already merged (kept links, attached trees): the dominant links
         are contracted on top of them, so the checks see the whole super-node.
+    survey : WeightSurvey
+        The network's :func:`survey_weights`.
 
     Returns
     -------
@@ -317,8 +338,7 @@ def dominant_contraction(
         first), ``left_links`` (those not contracted, with why), ``warning``
         (empty unless the range exceeds :data:`WEIGHT_RANGE_WARN`) and ``reason``.
     """
-    figures = weight_range(network.adjacency)
-    found = find_dominant_links(network.adjacency, gap=DOMINANT_GAP)
+    figures, found = survey.figures, survey.found
     none = np.empty((0, 2), dtype=np.int64)
     if treatment == "contract":
         keep, left = _allowed(found, rules, merged_pairs, network.n_nodes)
@@ -345,7 +365,7 @@ def dominant_contraction(
     return pairs, decision
 
 
-def coupler_trouble(adjacency: Any, labels: np.ndarray) -> str:
+def coupler_trouble(found: DominantLinks, labels: np.ndarray) -> str:
     """What a zoning does wrong with the dominant links, in words, or ``''``.
 
     Two things, both the reason to contract: a zone whose every node lies in one
@@ -355,12 +375,12 @@ def coupler_trouble(adjacency: Any, labels: np.ndarray) -> str:
     Examples
     --------
     >>> a = sp.csr_array(np.array([[0, 1e6, 1, 0], [1e6, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]]))
-    >>> coupler_trouble(a, np.array([0, 0, 1, 1]))
+    >>> found = find_dominant_links(a)
+    >>> coupler_trouble(found, np.array([0, 0, 1, 1]))
     '1 zones lie inside one group held by dominant links (2 nodes)'
-    >>> coupler_trouble(a, np.array([0, 1, 0, 1]))
+    >>> coupler_trouble(found, np.array([0, 1, 0, 1]))
     '1 dominant links cut'
     """
-    found = find_dominant_links(adjacency, gap=DOMINANT_GAP)
     if not found.weights.size:
         return ""
     labels = np.asarray(labels, dtype=np.int64)

@@ -37,11 +37,11 @@ from ._constraints import (
 )
 from ._count import (
     FIRST_PAIRS,
-    SPECTRUM_CEILING,
     choose_zone_count,
     count_decided,
     default_candidates,
     next_pair_count,
+    why_undecided,
 )
 from ._embedding import normalized_rows
 from ._operator import NORMALIZED_LIKE
@@ -216,7 +216,7 @@ def choose_count(
         solves.append(pairs)
         if pairs >= needed or count_decided(result.values, ranked):
             break
-        undecided.append(_why_undecided(result.values, ranked))
+        undecided.append(why_undecided(result.values, ranked))
         pairs = next_pair_count(result.values, needed, ranked)
     searched = range(candidates.start, min(candidates.stop, result.k))
     vectors = result.vectors
@@ -245,28 +245,6 @@ def choose_count(
         ),
     }
     return choice.zones, record, result if c == 1 and solver.kind == count_kind else None
-
-
-def _why_undecided(values: np.ndarray, ranked: range) -> str:
-    """Why ``values`` (the pairs computed so far) left the zone count open, in figures.
-
-    A count above ``m - 1`` (``m`` pairs computed) has a gap ratio of at most
-    :data:`~specgraph.zones._count.SPECTRUM_CEILING` over the last eigenvalue
-    computed (:func:`~specgraph.zones._count.count_decided`); the sentence gives
-    the best ratio found and that bound.
-    """
-    m = int(values.size)
-    ks = [k for k in ranked if k <= m - 1]
-    ratios = [values[k] / values[k - 1] if values[k - 1] > 0 else np.inf for k in ks]
-    bound = SPECTRUM_CEILING / values[-1] if values[-1] > 0 else np.inf
-    if not ks:
-        return f"the first {m} pairs rank no candidate count"
-    best = int(np.argmax(ratios))
-    return (
-        f"the largest gap ratio of the first {m} pairs ({ratios[best]:.3g}, at {ks[best]} "
-        f"zones) is below {bound:.3g} (2 over the {m}th eigenvalue), the most a count above "
-        f"{m - 1} could reach"
-    )
 
 
 def _counts_within_bounds(

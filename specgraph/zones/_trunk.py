@@ -243,7 +243,7 @@ def zone_beside_trunk(
     decision = _decision(network, rules, split, inlets, k)
     notes = [f"beside the trunk: {note}" for note in inner.warnings]
     if split.left.any():
-        notes.append(_left_note(network, split))
+        notes.append(_left_note(rules, split))
     return replace(
         inner,
         network=network,
@@ -275,13 +275,11 @@ def _left_pieces(split: TrunkSplit) -> tuple[np.ndarray, np.ndarray]:
     return pieces, nodes
 
 
-def _left_note(network: Network, split: TrunkSplit) -> str:
+def _left_note(rules: ResolvedConstraints, split: TrunkSplit) -> str:
     pieces, nodes = _left_pieces(split)
-    shown = ", ".join(f"'{i}'" for i in network.node_ids[nodes[:NAMES_SHOWN]].tolist())
-    more = f" and {nodes.size - NAMES_SHOWN} more" if nodes.size > NAMES_SHOWN else ""
     return (
         f"trunk: {pieces.size} pieces of the network beside the trunk ({nodes.size} nodes: "
-        f"{shown}{more}) are below {split.threshold:g} in size, too small to be districts; "
+        f"{rules.name(nodes)}) are below {split.threshold:g} in size, too small to be districts; "
         "they stay with the trunk zone (min_size sets the limit)"
     )
 

@@ -65,7 +65,13 @@ from ._compare import (
 )
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
 from ._count import parse_zone_spec
-from ._dominant import DOMINANT_TREATMENTS, coupler_trouble, dominant_contraction
+from ._dominant import (
+    DOMINANT_TREATMENTS,
+    WeightSurvey,
+    coupler_trouble,
+    dominant_contraction,
+    survey_weights,
+)
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
 from ._result import ComponentSolve, Zoning
 from ._stages import (
@@ -317,16 +323,17 @@ def _zone_rules(
     # The random state at the start: a second zoning (step 8) starts from it
     # too, so it is the zoning dominant='contract' gives for the same seed.
     start = options.rng.bit_generator.state
-    zoning = _zone_trees(network, options, rules, stage)
-    if options.dominant != "auto" or not zoning.decisions["weights"]["dominant"]:
+    survey = survey_weights(network.adjacency)  # once: every pass below reads it
+    zoning = _zone_trees(network, options, rules, stage, survey)
+    if options.dominant != "auto" or not survey.found.weights.size:
         return zoning
     # Step 8: the dominant links were left free; if a zone lies inside one of
     # their groups or one of them is cut, zone again with them contracted.
-    trouble = coupler_trouble(network.adjacency, zoning.labels)
+    trouble = coupler_trouble(survey.found, zoning.labels)
     if not trouble:
         return zoning
     options.rng.bit_generator.state = start
-    held = _zone_trees(network, replace(options, dominant="contract"), rules, stage)
+    held = _zone_trees(network, replace(options, dominant="contract"), rules, stage, survey)
     weights = dict(held.decisions["weights"])
     weights["choice"] = "auto"
     weights["reason"] += f" (auto: with them free, {trouble})"
@@ -336,10 +343,14 @@ def _zone_rules(
 
 
 def _zone_trees(
-    network: Network, options: _Options, rules: ResolvedConstraints, stage: Callable[[str], None]
+    network: Network,
+    options: _Options,
+    rules: ResolvedConstraints,
+    stage: Callable[[str], None],
+    survey: WeightSurvey,
 ) -> Zoning:
     """Steps 2 to 7 of :func:`find_zones`: zoned once, and again with trees kept if worth it."""
-    zoning = _zone_once(network, options, rules, stage)
+    zoning = _zone_once(network, options, rules, stage, survey)
     if not _kept_trees_worth_trying(zoning, options):
         return zoning
     # Step 7: with the trees attached by the auto rule, zone once more with them
@@ -347,7 +358,9 @@ def _zone_trees(
     # on radial feeders) and keep the lower normalized cut.
     count = int(zoning.scores["zones"])
     try:
-        other = _zone_once(network, replace(options, spec=count, trees="keep"), rules, stage)
+        other = _zone_once(
+            network, replace(options, spec=count, trees="keep"), rules, stage, survey
+        )
     except ConstraintError as exc:
         logger.debug("trees kept: %s", exc)
         return zoning
@@ -359,12 +372,13 @@ def _zone_once(
     options: _Options,
     rules: ResolvedConstraints,
     stage: Callable[[str], None],
+    survey: WeightSurvey,
 ) -> Zoning:
     """Steps 2 to 6 of :func:`find_zones` with one tree treatment."""
     stage("solving")
 
     # Steps 2-3: merge what must stay together, choose the operator and the count.
-    merged, kind, decisions = _merge_and_choose_operator(network, rules, options)
+    merged, kind, decisions = _merge_and_choose_operator(network, rules, options, survey)
     work = merged.network
     solver = SolveOptions(
         kind, options.eigen_method, options.tol, options.maxiter, options.rng, options.damping
@@ -476,14 +490,14 @@ def _checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) ->
 
 
 def _merge_and_choose_operator(
-    network: Network, rules: ResolvedConstraints, options: _Options
+    network: Network, rules: ResolvedConstraints, options: _Options, survey: WeightSurvey
 ) -> tuple[Merged, str, dict[str, dict[str, Any]]]:
     """Steps 2-3a: merge what must stay together, choose the operator; their decisions."""
     spec = options.spec
     k_hint = spec if isinstance(spec, int) else (max(spec) if isinstance(spec, range) else 2)
     pairs, trees_decision = tree_pairs(network, rules, options.trees, k_hint)
     together = np.concatenate([rules.keep_pairs, pairs])
-    strong, weights = dominant_contraction(network, rules, options.dominant, together)
+    strong, weights = dominant_contraction(network, rules, options.dominant, together, survey)
     merged = merge_together(network, rules, np.concatenate([together, strong]))
     # Trees kept on request say nothing about localization: no remark then.
     attached = None if options.trees == "keep" else bool(pairs.size > 0)
