@@ -67,7 +67,7 @@ import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
-from .._figures import check_labels, cut_and_volume
+from .._figures import check_labels, cut_and_volume, ncut_terms
 from .._figures import normalized_cut as figures_normalized_cut
 from .._validation import (
     NON_NEGATIVE,
@@ -202,6 +202,12 @@ def normalized_cut(adjacency: Any, labels: np.ndarray) -> float:
     return figures_normalized_cut(a, _labels(labels, a.shape[0]))
 
 
+def ncut_with_volumes(a: sp.csr_array, labels: np.ndarray, k: int, volume: np.ndarray) -> float:
+    """Normalized cut with the given node volumes (zones of zero volume add 0)."""
+    cut, _ = cut_and_volume(a, labels, k)
+    return float(np.sum(ncut_terms(cut, np.bincount(labels, weights=volume, minlength=k))))
+
+
 # ------------------------------------------------------------ compiled moves
 
 
@@ -212,9 +218,15 @@ def _violation(total, lo, hi):  # pragma: no cover - compiled
 
 
 @njit(cache=True)
-def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, floor, scratch):
+def _best_move(
+    v, indptr, indices, data, labels, degree, volume, sizes, state, lo, hi, floor, scratch
+):  # pragma: no cover - compiled
     """Best allowed target zone of node ``v`` and the exact gain of moving it there.
 
+    ``degree`` is the weight of ``v``'s links (what a move turns from cut to
+    inner or back) and ``volume`` what ``v`` adds to its zone's volume: the
+    same unless ``v`` stands for several nodes of a finer network, whose
+    inner links count in the volume but are never cut.
     ``state`` holds ``cut, vol, zsize, zcount`` per zone (rows 0-3). Targets
     are zones adjacent to ``v``; a target is skipped when the move would leave
     ``v``'s zone empty or push either zone's size further outside the bounds.
@@ -240,10 +252,11 @@ def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, f
                 touched[count] = z
                 count += 1
             weight[z] += data[p]
-    d = degree[v]
+    d, q = degree[v], volume[v]
     ca, va = state[0, a], state[1, a]
-    if va - d > floor:
-        gain_a = (d * (va - ca) - 2.0 * va * wa) / (va * (va - d))
+    # With q == d the terms (d - q) * c vanish exactly: the gain of the module notes.
+    if va - q > floor:
+        gain_a = (d * (va - ca) + (d - q) * ca - 2.0 * va * wa) / (va * (va - q))
     else:
         gain_a = ca / va if va > floor else 0.0
     best_gain, best = -np.inf, -1
@@ -254,9 +267,9 @@ def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, f
             continue
         cb, vb, wb = state[0, b], state[1, b], weight[b]
         if vb > floor:
-            gain_b = (2.0 * vb * wb - d * (vb - cb)) / (vb * (vb + d))
+            gain_b = (2.0 * vb * wb - d * (vb - cb) + (q - d) * cb) / (vb * (vb + q))
         else:
-            gain_b = -(cb + d - 2.0 * wb) / (vb + d)
+            gain_b = -(cb + d - 2.0 * wb) / (vb + q)
         gain = gain_a + gain_b
         if gain > best_gain or (gain == best_gain and b < best):
             best_gain, best = gain, b
@@ -264,15 +277,15 @@ def _best_move(v, indptr, indices, data, labels, degree, sizes, state, lo, hi, f
 
 
 @njit(cache=True)
-def _apply_move(v, b, indptr, indices, data, labels, degree, sizes, state):  # pragma: no cover
+def _apply_move(v, b, indptr, indices, data, labels, degree, volume, sizes, state):  # pragma: no cover
     """Move ``v`` to zone ``b`` and update the zone totals in ``state``."""
     a = labels[v]
     wa, wb = two_zone_weights(v, a, b, indptr, indices, data, labels)
     d = degree[v]
     state[0, a] += 2.0 * wa - d
-    state[1, a] -= d
+    state[1, a] -= volume[v]
     state[0, b] += d - 2.0 * wb
-    state[1, b] += d
+    state[1, b] += volume[v]
     state[2, a] -= sizes[v]
     state[2, b] += sizes[v]
     state[3, a] -= 1.0
@@ -327,7 +340,7 @@ def _requeue_neighbours(v, moves, heap, movable, locked, version, rank, args):  
 
 @njit(cache=True)
 def _refine_pass(
-    indptr, indices, data, labels, degree, sizes, movable, rank, state, bounds, limits
+    indptr, indices, data, labels, degree, volume, sizes, movable, rank, state, bounds, limits
 ):
     """One pass of boundary moves with rollback to the best prefix.
 
@@ -347,7 +360,7 @@ def _refine_pass(
     version = np.zeros(n, dtype=np.int64)
     log_node = np.empty(n, dtype=np.int64)
     log_zone = np.empty(n, dtype=np.int64)
-    args = (indptr, indices, data, labels, degree, sizes, state, lo, hi, floor, scratch)
+    args = (indptr, indices, data, labels, degree, volume, sizes, state, lo, hi, floor, scratch)
     keys, items, size = _queue_boundary(movable, rank, args)
 
     moves, kept, since = 0, 0, 0
@@ -370,7 +383,7 @@ def _refine_pass(
             continue  # dropped until a neighbour moves and queues it again
         log_node[moves] = v
         log_zone[moves] = labels[v]
-        _apply_move(v, target, indptr, indices, data, labels, degree, sizes, state)
+        _apply_move(v, target, indptr, indices, data, labels, degree, volume, sizes, state)
         locked[v] = True
         moves += 1
         total += gain
@@ -388,7 +401,9 @@ def _refine_pass(
     # Undo the moves after the best prefix, newest first: each undo sees the
     # labels its move saw, so the totals come back exactly to that state.
     for i in range(moves - 1, kept - 1, -1):
-        _apply_move(log_node[i], log_zone[i], indptr, indices, data, labels, degree, sizes, state)
+        _apply_move(
+            log_node[i], log_zone[i], indptr, indices, data, labels, degree, volume, sizes, state
+        )
     return best, kept
 
 
@@ -433,6 +448,7 @@ def refine_boundary(
     min_size: float | None = None,
     max_size: float | None = None,
     movable: np.ndarray | None = None,
+    volumes: np.ndarray | None = None,
     max_passes: int = REFINE_PASSES,
     uphill_moves: int = UPHILL_MOVES,
     rng: Any = None,
@@ -477,6 +493,12 @@ def refine_boundary(
         Bounds on every zone's summed size; unbounded when omitted.
     movable : ndarray of bool, shape (n,), optional
         ``False`` pins a node (sources, user-fixed nodes); all movable when omitted.
+    volumes : ndarray of float, shape (n,), optional
+        What each node adds to its zone's volume; its weighted degree when
+        omitted. A node of a coarsened network (:mod:`._coarsen`) stands for
+        several nodes whose inner links count in the volume of the zone but
+        are never cut: with their volumes, the normalized cut and every gain
+        are those of the finer network.
 
     Returns
     -------
@@ -541,16 +563,20 @@ def refine_boundary(
     rank = check_rng(rng).permutation(n).astype(np.int64)
 
     k = int(start.max()) + 1 if n else 0
-    before = figures_normalized_cut(a, start)
-    current = start.copy()
     degree = np.asarray(a.sum(axis=1)).ravel()
-    floor = _VOLUME_FLOOR * float(degree.sum())
+    volume = degree if volumes is None else _node_array(volumes, n, "volumes", "float", 0.0)
+    if volumes is not None and np.any(volume < degree * (1.0 - 1e-12)):
+        raise parameter_error("volumes", "at least each node's weighted degree", volumes)
+    before = ncut_with_volumes(a, start, k, volume)
+    current = start.copy()
+    floor = _VOLUME_FLOOR * float(volume.sum())
     bounds = np.array([lo, hi, floor, GAIN_TOLERANCE])
     limits = np.array([uphill_moves, CONNECTIVITY_SEARCH_LIMIT], dtype=np.int64)
     moves = passes = 0
     for _ in range(max_passes if k > 1 else 0):
         # Totals are recomputed each pass so rounding never accumulates across passes.
-        cut, vol = cut_and_volume(a, current, k)
+        cut, _ = cut_and_volume(a, current, k)
+        vol = np.bincount(current, weights=volume, minlength=k)
         zsize = np.bincount(current, weights=node_sizes, minlength=k)
         zcount = np.bincount(current, minlength=k).astype(np.float64)
         state = np.vstack([cut, vol, zsize, zcount])
@@ -560,6 +586,7 @@ def refine_boundary(
             a.data,
             current,
             degree,
+            volume,
             node_sizes,
             free,
             rank,
@@ -572,7 +599,7 @@ def refine_boundary(
         logger.debug("refine pass %d: %d moves kept, NCut lowered by %.3g", passes, kept, drop)
         if kept == 0:
             break
-    after = normalized_cut(a, current)
+    after = ncut_with_volumes(a, current, k, volume)
     if after > before:  # rounding could only leave a tie; never hand back a worse zoning
         current, after, moves = start, before, 0
     return Refinement(

@@ -30,7 +30,7 @@ from __future__ import annotations
 import logging
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
@@ -72,6 +72,14 @@ from ._dominant import (
     dominant_contraction,
     survey_weights,
 )
+from ._levels import (
+    COARSE_SPECTRAL_MAX_ZONES,
+    choose_path,
+    levels_record,
+    refine_by_cycles,
+    split_by_bisection,
+    zone_by_levels,
+)
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
 from ._result import ComponentSolve, Zoning
 from ._stages import (
@@ -106,8 +114,9 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-#: Assignment methods (besides ``"auto"``), in the order of the dispatch table.
-ASSIGNMENTS = tuple(_ASSIGNERS)
+#: Assignment methods (besides ``"auto"``): the dispatch table's, in its
+#: order, then the multilevel path (:mod:`._levels`).
+ASSIGNMENTS = (*_ASSIGNERS, "multilevel")
 #: Treatments of dangling trees (besides ``"auto"``).
 TREE_TREATMENTS = ("attach", "keep")
 
@@ -385,34 +394,23 @@ def _zone_once(
     )
     k, decisions["zone_count"], known = choose_count(work, options.spec, merged.rules, solver)
 
-    # Step 4: share the zones among components; solve, embed and assign each.
-    step4 = _zone_components(work, k, options.assign, solver, known)
-    decisions.update(step4.decisions)
-
-    # Step 5: the user's rules, then boundary refinement (for every assignment
-    # compared by ``assign="auto"``, keeping the lowest normalized cut).
-    stage("constraints")
-    if len(step4.raws) > 1:
-        if options.refine:
-            stage("refining")
-        winner, decisions["assign"] = best_assignment(
-            network,
-            merged,
-            step4.raws,
-            step4.asked,
-            refine=options.refine,
-            rng=options.rng,
-            rule=decisions.get("assign", {}),
-        )
-        assert winner.labels is not None
-        labels_w = winner.labels
-        decisions.update(winner.decisions)
+    path = choose_path(options.assign, solver.kind, work.n_nodes, k)
+    if path.multilevel:
+        # Steps 4-5 by levels: coarsen, zone the coarsest, refine back up.
+        step4 = _zone_by_levels(network, merged, k, options, solver, stage)
+        decisions.update(step4.decisions)
+        labels_w = step4.labels
     else:
-        ((raw, _),) = step4.raws.values()
-        labels_w, decisions["constraints"] = enforce_rules(work, raw, merged, options.rng)
-        if options.refine:
-            stage("refining")
-            labels_w, decisions["refinement"] = refine_zones(network, merged, labels_w, options.rng)
+        # Step 4: share the zones among components; solve, embed and assign each.
+        step4 = _zone_components(work, k, options.assign, solver, known)
+        decisions.update(step4.decisions)
+        # Step 5: the user's rules, then boundary refinement (for every assignment
+        # compared by ``assign="auto"``, keeping the lowest normalized cut).
+        stage("constraints")
+        labels_w, step5 = _rules_and_refinement(network, merged, step4, options, stage)
+        decisions.update(step5)
+    if options.assign == "auto" and "assign" in decisions:
+        decisions["assign"]["path"] = path.reason
 
     # Step 6: back to nodes, numbered by size, with the zone table and boundary.
     labels = number_by_size(labels_w[merged.groups], network.node_weights)
@@ -423,6 +421,85 @@ def _zone_once(
         *zone_warnings(network, labels, step4.asked, decisions["constraints"]["notes"]),
     ]
     return _zoning(network, labels, step4.solves, parameters, decisions, notes)
+
+
+def _rules_and_refinement(
+    network: Network,
+    merged: Merged,
+    step4: _Assigned,
+    options: _Options,
+    stage: Callable[[str], None],
+) -> tuple[np.ndarray, dict[str, dict[str, Any]]]:
+    """Step 5: the rules, then the refinement, of the one assignment or of each compared."""
+    decisions: dict[str, dict[str, Any]] = {}
+    if len(step4.raws) > 1:
+        if options.refine:
+            stage("refining")
+        winner, decisions["assign"] = best_assignment(
+            network,
+            merged,
+            step4.raws,
+            step4.asked,
+            refine=options.refine,
+            rng=options.rng,
+            rule=step4.decisions.get("assign", {}),
+        )
+        assert winner.labels is not None
+        decisions.update(winner.decisions)
+        return winner.labels, decisions
+    ((raw, _),) = step4.raws.values()
+    work = merged.network
+    labels_w, decisions["constraints"] = enforce_rules(work, raw, merged, options.rng)
+    if options.refine:
+        stage("refining")
+        labels_w, decisions["refinement"] = refine_zones(network, merged, labels_w, options.rng)
+    return labels_w, decisions
+
+
+def _zone_by_levels(
+    network: Network,
+    merged: Merged,
+    k: int,
+    options: _Options,
+    solver: SolveOptions,
+    stage: Callable[[str], None],
+) -> _Assigned:
+    """Steps 4-5 of the multilevel path (:mod:`._levels`): no solve of the whole network."""
+    work = merged.network
+    per_component, notes = zones_per_component(work, min(k, work.n_nodes))
+    asked = int(per_component.sum())
+
+    def zone_coarse(
+        coarse: Network, rules: ResolvedConstraints, count: int
+    ) -> tuple[np.ndarray, dict[str, Any]]:
+        inner = Merged(coarse, np.arange(coarse.n_nodes), rules, rules.sizes)
+        if count > COARSE_SPECTRAL_MAX_ZONES:
+            raw = split_by_bisection(coarse, count, solver)
+            labels, enforced = enforce_rules(coarse, raw, inner, options.rng)
+            return labels, {"assign": "bisection", "constraints": enforced}
+        step4 = _zone_components(coarse, count, "auto", solver, None)
+        quiet = replace(options, refine=False)
+        labels, decided = _rules_and_refinement(coarse, inner, step4, quiet, _no_progress)
+        choice = decided.get("assign", step4.decisions.get("assign", {})).get("choice")
+        return labels, {"assign": choice, "constraints": decided["constraints"]}
+
+    labels, record = zone_by_levels(
+        work,
+        merged.rules,
+        asked,
+        zone_coarse=zone_coarse,
+        refine=options.refine,
+        rng=options.rng,
+    )
+    stage("constraints")
+    labels, constraints = enforce_rules(work, labels, merged, options.rng)
+    decisions: dict[str, dict[str, Any]] = {"constraints": constraints}
+    if options.refine:
+        stage("refining")
+        labels, cycles = refine_by_cycles(work, labels, merged.rules, rng=options.rng)
+        record.update(cycles)
+    decisions["assign"] = levels_record(record, work)
+    return _Assigned({"multilevel": (labels, 0.0)}, [], notes, decisions, asked, labels)
 
 
 # ------------------------------------------------------------------ steps
@@ -518,6 +595,8 @@ class _Assigned:
     decisions: dict[str, dict[str, Any]]
     #: Zones asked of the assignments, summed over components.
     asked: int
+    #: The final labels of the merged network, when the path already gave them.
+    labels: np.ndarray = field(default_factory=lambda: np.empty(0, dtype=np.int64))
 
 
 def _zone_components(

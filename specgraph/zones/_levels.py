@@ -1,0 +1,425 @@
+"""Multilevel zoning: coarsen, zone the coarsest network, refine on the way back up.
+
+For hundreds or thousands of zones, embedding the whole network in ``k``
+eigenvectors costs memory :math:`O(nk)` and time :math:`O(nk^2)`, and the
+embedding blurs as ``k`` grows. The multilevel scheme of Barnard and Simon
+[1]_ and Hendrickson and Leland [2]_, with the k-way refinement of Karypis
+and Kumar [3]_, avoids both:
+
+1. coarsen the network by heavy-link matchings that keep the rules
+   (:func:`~specgraph.zones._coarsen.coarsen`) down to a few dozen nodes per
+   zone;
+2. zone the coarsest network with the one-level engine (spectral embedding,
+   assignment, the rules), where ``k`` eigenvectors are cheap;
+3. project the zones back level by level, and at every level move boundary
+   nodes by the exact drop of the normalized cut they bring
+   (:func:`~specgraph.zones.refine_boundary`, Fiduccia-Mattheyses passes
+   [4]_), with the volumes of the finest network, so every level lowers the
+   same objective and keeps every rule.
+
+The same ladder built inside the zones of a given zoning refines it as a
+V-cycle (:func:`refine_levels`): nodes of different zones are never merged,
+so every level carries the zoning exactly, and the refinement moves whole
+groups of nodes at the coarse levels and single nodes at the finest.
+
+No level holds more than its adjacency and a few arrays per node: the
+finest level never holds an ``n x k`` block.
+
+References
+----------
+.. [1] S. T. Barnard and H. D. Simon, "Fast multilevel implementation of
+   recursive spectral bisection for partitioning unstructured problems",
+   Concurrency: Practice and Experience 6(2), 1994, pp. 101-117,
+   :doi:`10.1002/cpe.4330060203`.
+.. [2] B. Hendrickson and R. Leland, "A multilevel algorithm for partitioning
+   graphs", Proc. Supercomputing '95, :doi:`10.1145/224170.224228`.
+.. [3] G. Karypis and V. Kumar, "Multilevel k-way partitioning scheme for
+   irregular graphs", J. Parallel Distrib. Comput. 48(1), 1998, pp. 96-129,
+   :doi:`10.1006/jpdc.1997.1404`.
+.. [4] C. M. Fiduccia and R. M. Mattheyses, "A linear-time heuristic for
+   improving network partitions", Proc. 19th Design Automation Conference,
+   1982, :doi:`10.1109/DAC.1982.1585498`.
+"""
+
+from __future__ import annotations
+
+import logging
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .._validation import parameter_error
+from ..network import Network
+from ._assign import bisection_labels
+from ._coarsen import Ladder, Level, coarsen
+from ._refine import REFINE_PASSES, Refinement, refine_boundary
+from ._rules import ResolvedConstraints
+from ._stages import SolveOptions, zones_per_component
+
+__all__ = [
+    "COARSEST_MIN_NODES",
+    "COARSEST_PER_ZONE",
+    "CYCLE_PER_ZONE",
+    "CYCLE_RTOL",
+    "MAX_CYCLES",
+    "COARSE_SPECTRAL_MAX_ZONES",
+    "MULTILEVEL_MIN_ZONES",
+    "CoarseZoner",
+    "Path",
+    "choose_path",
+    "levels_record",
+    "split_by_bisection",
+    "coarse_cap",
+    "refine_by_cycles",
+    "refine_levels",
+    "zone_by_levels",
+]
+
+logger = logging.getLogger(__name__)
+
+#: Coarsening for a new zoning stops once a level has at most
+#: ``COARSEST_PER_ZONE * k`` nodes (and at least :data:`COARSEST_MIN_NODES`),
+#: and no coarse node holds more than ``1 / COARSEST_PER_ZONE`` of an average
+#: zone's size (nor more than ``max_size``). Few nodes per zone leave the
+#: most levels to the refinement, which is what lowers the cut: on
+#: ``gallery.road_like(100_000, rng=0)`` at 162 zones, 3, 5, 10, 20, 40 and 100
+#: nodes per zone gave normalized cuts of 2.26, 2.34, 2.37, 2.38, 2.40 and 2.42
+#: before the V-cycles (benchmarks/probe_levels.py).
+COARSEST_PER_ZONE = 3
+
+#: Smallest coarsest level of a new zoning: the one-level engine zones a few
+#: hundred nodes in well under a second, whatever the zone count.
+COARSEST_MIN_NODES = 200
+
+#: Coarsening inside the zones of a V-cycle stops at ``CYCLE_PER_ZONE * k``
+#: nodes, and a coarse node may hold up to an average zone's size divided by
+#: it: the deeper the ladder, the larger the groups the coarse levels move
+#: (one node per zone against three: 1.943 against 1.968 after eight cycles
+#: on the network above).
+CYCLE_PER_ZONE = 1
+
+#: V-cycles repeat while each lowers the normalized cut by at least this
+#: share: ...
+CYCLE_RTOL = 2e-3
+
+#: Most V-cycles after a multilevel zoning: ...
+MAX_CYCLES = 12
+
+#: ``assign="auto"`` takes the multilevel path from this many zones up: ...
+MULTILEVEL_MIN_ZONES = 48
+
+#: Up to this many zones the coarsest network is zoned by the one-level
+#: engine with its assignments compared; above it by recursive bisection,
+#: which needs no ``k`` eigenvectors: ...
+COARSE_SPECTRAL_MAX_ZONES = 48
+
+#: Zones the coarsest network from its network, its rules and the zone count:
+#: its labels and the decisions of that zoning (operator, assignment, rules).
+CoarseZoner = Callable[[Network, ResolvedConstraints, int], tuple[np.ndarray, dict[str, Any]]]
+
+
+def coarse_cap(rules: ResolvedConstraints, k: int, per_zone: float) -> float:
+    """Largest size of a coarse node for ``k`` zones under ``rules``: an average zone / ``per_zone``."""
+    cap = float(rules.sizes.sum()) / (per_zone * max(k, 1))
+    if rules.max_size is not None:
+        cap = min(cap, float(rules.max_size))
+    return max(cap, float(rules.sizes.max(initial=0.0)))
+
+
+def _ladder(
+    work: Network,
+    rules: ResolvedConstraints,
+    apart: np.ndarray,
+    k: int,
+    per_zone: float,
+    rng: np.random.Generator,
+    smallest: int = 0,
+) -> Ladder:
+    """The ladder of ``work`` under ``rules``, down to about ``per_zone`` nodes per zone
+    (or ``smallest`` nodes)."""
+    n = work.n_nodes
+    sources = np.zeros(n, dtype=bool)
+    sources[rules.sources] = True
+    assert rules.pinned is not None
+    held = sources | (rules.pinned >= 0)
+    return coarsen(
+        work.adjacency,
+        sizes=rules.sizes,
+        apart=apart,
+        sources=sources,
+        held=held,
+        cap=coarse_cap(rules, k, per_zone),
+        target=max(smallest, int(per_zone * k)),
+        rng=rng,
+    )
+
+
+def _coarse_problem(
+    work: Network, rules: ResolvedConstraints, ladder: Ladder
+) -> tuple[Network, ResolvedConstraints]:
+    """The coarsest level as a network with its rules; each node named after its first node."""
+    level = ladder.coarsest
+    owner = ladder.owner(len(ladder.levels) - 1)
+    m = level.n_nodes
+    first = np.full(m, work.n_nodes, dtype=np.int64)
+    np.minimum.at(first, owner, np.arange(work.n_nodes))
+    assert rules.pinned is not None
+    pinned = np.full(m, -1, dtype=np.int64)
+    fixed = np.flatnonzero(rules.pinned >= 0)
+    pinned[owner[fixed]] = rules.pinned[fixed]
+    coarse = Network(level.adjacency, work.node_ids[first], sizes=level.sizes)
+    coarse_rules = ResolvedConstraints(
+        rules.min_size,
+        rules.max_size,
+        level.sizes,
+        sources=np.unique(owner[rules.sources]),
+        pinned=pinned,
+        connected=rules.connected,
+        node_ids=None if rules.node_ids is None else rules.node_ids[first],
+        coordinates=None if rules.coordinates is None else rules.coordinates[first],
+    )
+    return coarse, coarse_rules
+
+
+def _refine_level(
+    level: Level,
+    labels: np.ndarray,
+    rules: ResolvedConstraints,
+    refine: bool,
+    rng: np.random.Generator,
+) -> Refinement:
+    """Boundary refinement of one level, with the finest network's volumes (none: 0 passes)."""
+    return refine_boundary(
+        level.adjacency,
+        labels,
+        sizes=level.sizes,
+        min_size=rules.min_size,
+        max_size=rules.max_size,
+        movable=~level.held,
+        volumes=level.volumes,
+        max_passes=REFINE_PASSES if refine else 0,
+        rng=rng,
+    )
+
+
+def _climb(
+    ladder: Ladder,
+    labels: np.ndarray,
+    rules: ResolvedConstraints,
+    refine: bool,
+    rng: np.random.Generator,
+) -> tuple[np.ndarray, list[dict[str, Any]]]:
+    """Refine from the coarsest level down to the finest; one record per level."""
+    records: list[dict[str, Any]] = []
+    for depth in range(len(ladder.levels) - 1, -1, -1):
+        level = ladder.levels[depth]
+        if depth < len(ladder.levels) - 1:
+            assert level.parent is not None
+            labels = labels[level.parent]
+        refined = _refine_level(level, labels, rules, refine, rng)
+        labels = refined.labels
+        records.append(
+            {
+                "level": depth,
+                "nodes": level.n_nodes,
+                "links": level.n_links,
+                "ncut_projected": refined.ncut_before,
+                "ncut": refined.ncut_after,
+            }
+        )
+        logger.debug(
+            "level %d (%d nodes): NCut %.4g -> %.4g",
+            depth,
+            level.n_nodes,
+            refined.ncut_before,
+            refined.ncut_after,
+        )
+    return labels, records
+
+
+def zone_by_levels(
+    work: Network,
+    rules: ResolvedConstraints,
+    k: int,
+    *,
+    zone_coarse: CoarseZoner,
+    refine: bool,
+    rng: np.random.Generator,
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """Zone ``work`` into ``k`` zones by the multilevel scheme; labels and the record.
+
+    Parameters
+    ----------
+    work : Network
+        The network to zone (the merged network of :func:`find_zones`).
+    rules : ResolvedConstraints
+        On the rows of ``work``; its links that must not be cut are already
+        contracted.
+    k : int
+        Number of zones.
+    zone_coarse : callable
+        Zones the coarsest network (:data:`CoarseZoner`).
+    refine : bool
+        Refine at every level; without it the coarse zones are only projected.
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    labels : ndarray of int, shape (n,)
+        Zones of the rows of ``work``.
+    record : dict
+        ``levels`` (nodes, links, normalized cut as projected and after
+        refinement, per level, coarsest first), ``stop`` (why coarsening
+        stopped), ``coarse`` (the decisions of the coarse zoning).
+    """
+    assert rules.pinned is not None
+    ladder = _ladder(work, rules, rules.pinned, k, COARSEST_PER_ZONE, rng, COARSEST_MIN_NODES)
+    coarse, coarse_rules = _coarse_problem(work, rules, ladder)
+    labels, coarse_decisions = zone_coarse(coarse, coarse_rules, k)
+    labels, records = _climb(ladder, np.asarray(labels, dtype=np.int64), rules, refine, rng)
+    record = {
+        "levels": records,
+        "stop": ladder.stop,
+        "coarse": coarse_decisions,
+    }
+    return labels, record
+
+
+def refine_levels(
+    work: Network,
+    labels: np.ndarray,
+    rules: ResolvedConstraints,
+    *,
+    rng: np.random.Generator,
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """One V-cycle on a zoning that keeps ``rules``: coarsen inside its zones, refine upward.
+
+    Nodes of different zones are never merged, so the zoning is exact at every
+    level; the refinement at the coarse levels moves groups of nodes that a
+    refinement of the finest level alone could only move one node at a time.
+
+    Returns
+    -------
+    labels : ndarray of int, shape (n,)
+        The refined zoning, same zone numbers.
+    record : dict
+        ``levels`` as in :func:`zone_by_levels` and ``stop``.
+    """
+    labels = np.asarray(labels, dtype=np.int64)
+    k = int(labels.max()) + 1 if labels.size else 0
+    ladder = _ladder(work, rules, labels, k, CYCLE_PER_ZONE, rng)
+    owner = ladder.owner(len(ladder.levels) - 1)
+    coarse_labels = np.zeros(ladder.coarsest.n_nodes, dtype=np.int64)
+    coarse_labels[owner] = labels
+    refined, records = _climb(ladder, coarse_labels, rules, True, rng)
+    return refined, {"levels": records, "stop": ladder.stop}
+
+
+def refine_by_cycles(
+    work: Network,
+    labels: np.ndarray,
+    rules: ResolvedConstraints,
+    *,
+    rng: np.random.Generator,
+    max_cycles: int = MAX_CYCLES,
+) -> tuple[np.ndarray, dict[str, Any]]:
+    """V-cycles (:func:`refine_levels`) until one lowers the normalized cut by less than :data:`CYCLE_RTOL`.
+
+    Returns the labels and ``{"cycles": [normalized cut after each], "stop": why}``.
+    """
+    labels = np.asarray(labels, dtype=np.int64)
+    k = int(labels.max()) + 1 if labels.size else 0
+    cuts: list[float] = []
+    stop = f"{max_cycles} cycles run (the most allowed)"
+    for _ in range(max_cycles if k > 1 else 0):
+        labels, record = refine_levels(work, labels, rules, rng=rng)
+        before, after = record["levels"][0]["ncut_projected"], record["levels"][-1]["ncut"]
+        cuts.append(after)
+        if after > before * (1.0 - CYCLE_RTOL):
+            stop = f"the last cycle lowered the normalized cut by less than {CYCLE_RTOL:.1%}"
+            break
+    return labels, {"cycles": cuts, "cycles_stop": stop}
+
+
+@dataclass(frozen=True)
+class Path:
+    """Which path :func:`find_zones` takes, and why."""
+
+    multilevel: bool
+    reason: str
+
+
+def choose_path(assign: str, kind: str, n_nodes: int, k: int) -> Path:
+    """The one-level path or the multilevel one (:data:`MULTILEVEL_MIN_ZONES`).
+
+    Raises
+    ------
+    ParameterError
+        For ``assign="multilevel"`` with the directed operator, whose random
+        surfer the coarsening does not keep.
+    """
+    if assign == "multilevel":
+        if kind == "directed":
+            raise parameter_error(
+                "assign",
+                "an assignment of the one-level path for operator='directed' (the "
+                "multilevel path coarsens the undirected links)",
+                assign,
+            )
+        return Path(True, "the multilevel path (asked)")
+    if assign != "auto" or kind == "directed":
+        return Path(False, "the one-level path")
+    if k >= MULTILEVEL_MIN_ZONES:
+        return Path(
+            True,
+            f"the multilevel path: {k} zones, at least {MULTILEVEL_MIN_ZONES} (one level "
+            f"would embed all {n_nodes:,} nodes in {k + 1} eigenvectors)",
+        )
+    return Path(False, f"the one-level path: {k} zones, fewer than {MULTILEVEL_MIN_ZONES}")
+
+
+def split_by_bisection(network: Network, k: int, solver: SolveOptions) -> np.ndarray:
+    """``k`` zones by recursive bisection, shared among the components; no ``k``-pair solve."""
+    per_component, _ = zones_per_component(network, k)
+    offsets = np.concatenate([[0], np.cumsum(per_component)[:-1]]).astype(np.int64)
+    labels = offsets[network.component_labels]
+    for comp, count in enumerate(per_component.tolist()):
+        if count < 2:
+            continue
+        rows = np.flatnonzero(network.component_labels == comp)
+        sub = network if rows.size == network.n_nodes else network.subnetwork(rows)
+        labels[rows] += bisection_labels(
+            sub,
+            count,
+            eigen_method=solver.method,
+            tol=solver.tol,
+            maxiter=solver.maxiter,
+            rng=solver.rng,
+        )
+    return labels
+
+
+def levels_record(record: dict[str, Any], work: Network) -> dict[str, Any]:
+    """``decisions["assign"]`` of the multilevel path: the levels and the cut after each."""
+    levels = record["levels"]
+    cycles = record.get("cycles", [])
+    final = cycles[-1] if cycles else (levels[-1]["ncut"] if levels else 0.0)
+    coarse = record["coarse"]
+    reason = (
+        f"multilevel: {len(levels)} levels from {work.n_nodes:,} nodes down to "
+        f"{levels[0]['nodes']:,}, the coarsest zoned by {coarse.get('assign')}, refined at "
+        f"every level back up (normalized cut {levels[0]['ncut']:.4g} on the coarsest, "
+        f"{levels[-1]['ncut']:.4g} on the finest), then {len(cycles)} V-cycles "
+        f"({final:.4g})"
+    )
+    return {
+        "choice": "multilevel",
+        "reason": reason,
+        "levels": levels,
+        "coarsening_stop": record["stop"],
+        "coarse": {"assign": coarse.get("assign")},
+        "cycles": cycles,
+        "cycles_stop": record.get("cycles_stop", ""),
+    }
