@@ -187,13 +187,14 @@ def _coarser(level: Level, mate: np.ndarray) -> tuple[Level, Level]:
     heads = lead == rows
     parent = (np.cumsum(heads) - 1)[lead]
     m = int(heads.sum())
-    a = level.adjacency.tocoo()
+    a = level.adjacency
+    rows = parent[np.repeat(np.arange(n), np.diff(a.indptr))]
+    cols = parent[a.indices]
+    across = rows != cols  # links inside a coarse node leave the adjacency (not the volume)
     coarse = sp.csr_array(
-        (a.data, (parent[a.row], parent[a.col])), shape=(m, m), dtype=np.float64
+        (a.data[across], (rows[across], cols[across])), shape=(m, m), dtype=np.float64
     )
     coarse.sum_duplicates()
-    coarse.setdiag(0.0)
-    coarse.eliminate_zeros()
     apart = np.full(m, -1, dtype=np.int64)
     np.maximum.at(apart, parent, level.apart)
     sources = np.zeros(m, dtype=bool)

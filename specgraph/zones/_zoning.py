@@ -75,9 +75,11 @@ from ._dominant import (
 from ._levels import (
     COARSE_SPECTRAL_MAX_ZONES,
     choose_path,
+    in_id_order,
     levels_record,
     refine_by_cycles,
     split_by_bisection,
+    within_bounds,
     zone_by_levels,
 )
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
@@ -474,32 +476,33 @@ def _zone_by_levels(
     ) -> tuple[np.ndarray, dict[str, Any]]:
         inner = Merged(coarse, np.arange(coarse.n_nodes), rules, rules.sizes)
         if count > COARSE_SPECTRAL_MAX_ZONES:
-            raw = split_by_bisection(coarse, count, solver)
+            raw = split_by_bisection(coarse, count, solver, rules)
             labels, enforced = enforce_rules(coarse, raw, inner, options.rng)
-            return labels, {"assign": "bisection", "constraints": enforced}
+            return labels, {"assign": "bisection", "constraints": enforced["reason"]}
         step4 = _zone_components(coarse, count, "auto", solver, None)
         quiet = replace(options, refine=False)
         labels, decided = _rules_and_refinement(coarse, inner, step4, quiet, _no_progress)
         choice = decided.get("assign", step4.decisions.get("assign", {})).get("choice")
-        return labels, {"assign": choice, "constraints": decided["constraints"]}
+        return labels, {"assign": choice, "constraints": decided["constraints"]["reason"]}
 
+    # Rows in id order: the zones do not depend on the order the links were read in.
+    ordered, rules, order = in_id_order(work, merged.rules)
     labels, record = zone_by_levels(
-        work,
-        merged.rules,
-        asked,
-        zone_coarse=zone_coarse,
-        refine=options.refine,
-        rng=options.rng,
+        ordered, rules, asked, zone_coarse=zone_coarse, refine=options.refine, rng=options.rng
     )
     stage("constraints")
-    labels, constraints = enforce_rules(work, labels, merged, options.rng)
+    inner = Merged(ordered, np.arange(ordered.n_nodes), rules, rules.sizes)
+    labels = within_bounds(ordered, labels, rules)
+    labels, constraints = enforce_rules(ordered, labels, inner, options.rng)
     decisions: dict[str, dict[str, Any]] = {"constraints": constraints}
     if options.refine:
         stage("refining")
-        labels, cycles = refine_by_cycles(work, labels, merged.rules, rng=options.rng)
+        labels, cycles = refine_by_cycles(ordered, labels, rules, rng=options.rng)
         record.update(cycles)
     decisions["assign"] = levels_record(record, work)
-    return _Assigned({"multilevel": (labels, 0.0)}, [], notes, decisions, asked, labels)
+    by_row = np.empty_like(labels)
+    by_row[order] = labels
+    return _Assigned({"multilevel": (by_row, 0.0)}, [], notes, decisions, asked, by_row)
 
 
 # ------------------------------------------------------------------ steps

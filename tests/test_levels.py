@@ -1,0 +1,268 @@
+"""Multilevel zoning: coarsening, refinement with coarse volumes, the multilevel path, V-cycles.
+
+Sources: networkx's ``normalized_cut_size`` and ``volume`` for the objective
+on the finest network (through :func:`nx_normalized_cut` of test_refine);
+exhaustive enumeration of every labeling of a coarse network of at most 6
+nodes for the optimum, each scored by networkx on the finer network it
+stands for; networkx's ``is_connected`` for zone connectivity; the dense
+product :math:`P^T A P` (numpy) for the coarse links.
+"""
+
+from __future__ import annotations
+
+import itertools
+
+import networkx as nx
+import numpy as np
+import pandas as pd
+import pytest
+import scipy.sparse as sp
+from sklearn.metrics import adjusted_rand_score
+
+from specgraph import Network, gallery, read_edges
+from specgraph.exceptions import ConstraintError, ParameterError
+from specgraph.zones import ZoneConstraints, find_zones
+from specgraph.zones._coarsen import coarsen
+from specgraph.zones._levels import COARSEST_PER_ZONE, MULTILEVEL_MIN_ZONES, choose_path
+from specgraph.zones._refine import ncut_with_volumes, refine_boundary
+
+from test_refine import NCUT_RTOL, nx_graph, nx_normalized_cut
+
+
+def _free(n: int) -> dict[str, np.ndarray]:
+    return {
+        "sizes": np.ones(n),
+        "apart": np.full(n, -1),
+        "sources": np.zeros(n, dtype=bool),
+        "held": np.zeros(n, dtype=bool),
+    }
+
+
+def _weighted(graph: nx.Graph, seed: int) -> sp.csr_array:
+    rng = np.random.default_rng(seed)
+    for u, v in graph.edges:
+        graph[u][v]["weight"] = float(rng.uniform(0.5, 2.0))
+    return sp.csr_array(nx.to_scipy_sparse_array(graph, nodelist=range(len(graph))))
+
+
+# ------------------------------------------------------------------ coarsening
+def test_coarse_links_and_volumes_are_those_of_the_finer_network() -> None:
+    """Coarse links = off-diagonal of P^T A P (dense numpy); volumes = summed fine degrees."""
+    a = gallery.road_like(400, rng=3).adjacency
+    ladder = coarsen(a, **_free(400), cap=np.inf, target=20, rng=np.random.default_rng(0))
+    assert len(ladder.levels) > 2
+    for fine, coarse in itertools.pairwise(ladder.levels):
+        p = np.eye(coarse.n_nodes)[fine.parent]  # (n, m) node-to-coarse-node indicator
+        dense = p.T @ fine.adjacency.toarray() @ p
+        np.fill_diagonal(dense, 0.0)
+        np.testing.assert_allclose(coarse.adjacency.toarray(), dense, rtol=1e-12)
+        np.testing.assert_allclose(coarse.volumes, p.T @ fine.volumes, rtol=1e-12)
+        # every coarse node holds one or two nodes of the level below
+        assert np.bincount(fine.parent).max() <= 2
+    np.testing.assert_allclose(ladder.levels[0].volumes, np.asarray(a.sum(axis=1)).ravel())
+
+
+def test_coarsening_keeps_sources_tags_and_cap_apart() -> None:
+    n = 600
+    a = gallery.road_like(n, rng=5).adjacency
+    rng = np.random.default_rng(1)
+    sources = np.zeros(n, dtype=bool)
+    sources[rng.choice(n, 40, replace=False)] = True
+    apart = np.where(rng.random(n) < 0.3, rng.integers(0, 5, n), -1)
+    sizes = rng.uniform(0.5, 3.0, n)
+    cap = 12.0
+    ladder = coarsen(
+        a, sizes=sizes, apart=apart, sources=sources, held=sources, cap=cap, target=30, rng=rng
+    )
+    assert len(ladder.levels) >= 3 and ladder.coarsest.n_nodes < n / 2
+    owner = ladder.owner(len(ladder.levels) - 1)
+    m = ladder.coarsest.n_nodes
+    assert np.bincount(owner[sources], minlength=m).max() == 1  # never two sources
+    for c in range(m):
+        tags = np.unique(apart[(owner == c) & (apart >= 0)])
+        assert tags.size <= 1  # never two different tags
+    coarse_sizes = np.bincount(owner, weights=sizes, minlength=m)
+    np.testing.assert_allclose(ladder.coarsest.sizes, coarse_sizes)
+    assert coarse_sizes.max() <= cap + 1e-9
+    assert np.array_equal(ladder.coarsest.held, np.bincount(owner[sources], minlength=m) > 0)
+
+
+def test_star_halves_at_every_level() -> None:
+    """A hub with many leaves: matching alone merges one leaf per level; leftover pairing halves it."""
+    n = 1001
+    star = nx.star_graph(n - 1)
+    a = sp.csr_array(nx.to_scipy_sparse_array(star, nodelist=range(n)))
+    ladder = coarsen(a, **_free(n), cap=np.inf, target=10, rng=np.random.default_rng(0))
+    sizes = [level.n_nodes for level in ladder.levels]
+    assert sizes[-1] <= 10
+    assert all(b <= 0.6 * s for s, b in itertools.pairwise(sizes))
+
+
+# ------------------------------------------------- refinement with coarse volumes
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_coarse_ncut_equals_ncut_of_the_projection(seed: int) -> None:
+    """Every labeling of a coarse level has, with its volumes, the networkx NCut of its projection."""
+    graph = nx.gnm_random_graph(10, 22, seed=seed)
+    assert nx.is_connected(graph)
+    a = _weighted(graph, seed)
+    ladder = coarsen(a, **_free(10), cap=np.inf, target=6, rng=np.random.default_rng(seed))
+    owner = ladder.owner(len(ladder.levels) - 1)
+    coarse = ladder.coarsest
+    assert coarse.n_nodes <= 6
+    for labels in itertools.product(range(2), repeat=coarse.n_nodes):
+        labels = np.array(labels)
+        if labels.min() == labels.max():
+            continue
+        fine = labels[owner]
+        assert ncut_with_volumes(coarse.adjacency, labels, 2, coarse.volumes) == pytest.approx(
+            nx_normalized_cut(graph, fine), rel=NCUT_RTOL
+        )
+
+
+def test_refinement_with_volumes_reaches_the_brute_force_optimum() -> None:
+    """Brute force over every connected 2-zone labeling of a coarse level (scored by networkx on
+    the finer graph): from one valid move away from the optimum, refinement with the coarse
+    volumes reaches it (the argument of test_refine's one-move test, now with volumes)."""
+    graph = nx.connected_watts_strogatz_graph(12, 4, 0.3, seed=4)
+    a = _weighted(graph, 4)
+    ladder = coarsen(a, **_free(12), cap=np.inf, target=6, rng=np.random.default_rng(2))
+    coarse, owner = ladder.coarsest, ladder.owner(len(ladder.levels) - 1)
+    m = coarse.n_nodes
+    cgraph = nx.from_scipy_sparse_array(coarse.adjacency)
+    valid, values = [], []
+    for labels in itertools.product(range(2), repeat=m):
+        zones = [[v for v in range(m) if labels[v] == z] for z in range(2)]
+        if all(zones) and all(nx.is_connected(cgraph.subgraph(z)) for z in zones):
+            valid.append(labels)
+            values.append(nx_normalized_cut(graph, np.array(labels)[owner]))
+    optimum = min(values)
+    tried = 0
+    for best in (np.array(v) for v, x in zip(valid, values) if x <= optimum * (1 + NCUT_RTOL)):
+        for node in range(m):
+            start = best.copy()
+            start[node] = 1 - start[node]
+            if tuple(start.tolist()) not in set(valid):
+                continue
+            result = refine_boundary(coarse.adjacency, start, volumes=coarse.volumes, rng=0)
+            assert result.ncut_after == pytest.approx(optimum, rel=NCUT_RTOL)
+            tried += 1
+    assert tried > 0
+
+
+def test_volumes_below_the_degree_are_refused() -> None:
+    a = gallery.path(4).adjacency
+    with pytest.raises(ParameterError, match="volumes"):
+        refine_boundary(a, np.array([0, 0, 1, 1]), volumes=np.ones(4) * 0.5)
+
+
+# ----------------------------------------------------------- the multilevel path
+def _checked(net: Network, zoning, k: int) -> nx.Graph:  # noqa: ANN001 - a Zoning
+    """Every zone connected (networkx) and the reported NCut equal to networkx's."""
+    graph = nx_graph(net.adjacency)
+    labels = np.asarray(zoning.labels)
+    assert zoning.n_zones == k
+    for z in range(k):
+        assert nx.is_connected(graph.subgraph(np.flatnonzero(labels == z).tolist()))
+    assert zoning.scores["normalized_cut"] == pytest.approx(
+        nx_normalized_cut(graph, labels), rel=1e-9
+    )
+    return graph
+
+
+def test_multilevel_zones_are_connected_and_scored_right() -> None:
+    net = gallery.road_like(4000, rng=2)
+    zoning = find_zones(net, 60, assign="multilevel", rng=0)
+    _checked(net, zoning, 60)
+    record = zoning.decisions["assign"]
+    assert record["choice"] == "multilevel"
+    levels = record["levels"]
+    assert levels[-1]["nodes"] == net.n_nodes and levels[0]["nodes"] < net.n_nodes
+    assert zoning.solves == ()  # no solve of the whole network
+    # each level's refinement never raised the cut, nor did any V-cycle
+    assert all(r["ncut"] <= r["ncut_projected"] * (1 + 1e-12) for r in levels)
+    assert np.all(np.diff([levels[-1]["ncut"], *record["cycles"]]) <= 1e-12)
+    assert record["cycles"][-1] == pytest.approx(zoning.scores["normalized_cut"], rel=1e-9)
+
+
+@pytest.mark.parametrize("bounded", [False, True])
+def test_multilevel_keeps_every_rule(bounded: bool) -> None:
+    """Links that must not be cut, fixed nodes, and either one source per zone or size bounds
+    (random sources and tight bounds together are rarely feasible) on a generated network."""
+    net = gallery.road_like(3000, rng=7)
+    k = 50
+    rng = np.random.default_rng(3)
+    ids = net.node_ids
+    src, dst = net.link_ends
+    keep_rows = rng.choice(src.size, 30, replace=False)
+    keep = [(ids[src[i]], ids[dst[i]]) for i in keep_rows]
+    sources = rng.choice(net.n_nodes, k, replace=False)
+    fixed_nodes = sources[:5]
+    fixed = {ids[v]: j for j, v in enumerate(fixed_nodes)}
+    lo, hi = 0.5 * net.n_nodes / k, 1.5 * net.n_nodes / k
+    if bounded:
+        rules = ZoneConstraints(keep_links=keep, fixed=fixed, min_size=lo, max_size=hi)
+    else:
+        rules = ZoneConstraints(sources=ids[sources].tolist(), keep_links=keep, fixed=fixed)
+    zoning = find_zones(net, k, assign="multilevel", constraints=rules, rng=0)
+    _checked(net, zoning, k)
+    labels = np.asarray(zoning.labels)
+    assert all(labels[src[i]] == labels[dst[i]] for i in keep_rows)  # kept links not cut
+    assert np.unique(labels[fixed_nodes]).size == len(fixed_nodes)  # fixed apart
+    if bounded:
+        counts = np.bincount(labels)
+        assert counts.min() >= lo and counts.max() <= hi
+    else:
+        assert np.unique(labels[sources]).size == k  # one source per zone
+
+
+def test_multilevel_refuses_rules_that_cannot_hold() -> None:
+    """Three sources and zones of at most 50 nodes on 2,000 nodes: a zone holds one source,
+    so three zones cannot hold them all (arithmetic)."""
+    net = gallery.road_like(2000, rng=1)
+    rules = ZoneConstraints(sources=net.node_ids[:3].tolist(), max_size=50)
+    with pytest.raises(ConstraintError, match="max_size"):
+        find_zones(net, 3, assign="multilevel", constraints=rules, rng=0)
+
+
+def test_multilevel_is_deterministic_and_ignores_link_order(tmp_path) -> None:  # noqa: ANN001
+    """Same seed, same zones; the same links read in another order give the same zones by id."""
+    net = gallery.road_like(3000, rng=11)
+    first = find_zones(net, 64, assign="multilevel", rng=5)
+    again = find_zones(net, 64, assign="multilevel", rng=5)
+    assert np.array_equal(first.labels, again.labels)
+    table = net.link_table[["source", "target", "weight"]]
+    table.to_csv(tmp_path / "a.csv", index=False)
+    table.sample(frac=1.0, random_state=0).to_csv(tmp_path / "b.csv", index=False)
+    zones = []
+    for name in ("a.csv", "b.csv"):
+        read = read_edges(tmp_path / name, weight="weight")
+        z = find_zones(read, 64, assign="multilevel", rng=5)
+        zones.append(pd.Series(np.asarray(z.labels), index=read.node_ids).sort_index())
+    # The same zones (scikit-learn's adjusted Rand index is 1 exactly for equal
+    # partitions); their numbers may differ where two zones tie in size.
+    assert adjusted_rand_score(zones[0].to_numpy(), zones[1].to_numpy()) == 1.0
+
+
+def test_auto_takes_the_multilevel_path_for_many_zones() -> None:
+    assert choose_path("auto", "normalized", 10_000, MULTILEVEL_MIN_ZONES).multilevel
+    assert not choose_path("auto", "normalized", 10_000, MULTILEVEL_MIN_ZONES - 1).multilevel
+    assert not choose_path("auto", "directed", 10_000, 500).multilevel
+    assert not choose_path("kmeans", "normalized", 10_000, 500).multilevel
+    with pytest.raises(ParameterError, match="directed"):
+        choose_path("multilevel", "directed", 10, 2)
+    net = gallery.road_like(3000, rng=0)
+    zoning = find_zones(net, MULTILEVEL_MIN_ZONES, rng=0)
+    assert zoning.decisions["assign"]["choice"] == "multilevel"
+    assert "multilevel path" in zoning.decisions["assign"]["path"]
+
+
+def test_multilevel_on_several_components() -> None:
+    """Two road networks side by side: zones shared by size, none spans both (networkx)."""
+    a = gallery.road_like(1500, rng=1).adjacency
+    b = gallery.road_like(500, rng=2).adjacency
+    net = Network.from_scipy(sp.block_diag([a, b], format="csr"))
+    zoning = find_zones(net, 60, assign="multilevel", rng=0)
+    _checked(net, zoning, 60)
+    labels = np.asarray(zoning.labels)
+    assert not set(labels[:1500]) & set(labels[1500:])
+    assert COARSEST_PER_ZONE >= 1
