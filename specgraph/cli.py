@@ -232,7 +232,10 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         "--assign",
         choices=("auto", *ASSIGNMENTS),
         default="auto",
-        help="how embedded nodes become zones (default auto)",
+        help="how embedded nodes become zones; 'multilevel' coarsens the network, zones the "
+        "coarsest and refines at every level back up (hundreds to thousands of zones, no "
+        "eigenvectors of the whole network); 'auto' takes it from 48 zones up, otherwise "
+        "compares the others (default auto)",
     )
     group.add_argument(
         "--trees",

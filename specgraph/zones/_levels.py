@@ -110,6 +110,9 @@ CYCLE_RTOL = 2e-3
 #: Most V-cycles after a multilevel zoning: ...
 MAX_CYCLES = 12
 
+#: Most refinement passes at each level: ...
+LEVEL_PASSES = REFINE_PASSES
+
 #: ``assign="auto"`` takes the multilevel path from this many zones up: ...
 MULTILEVEL_MIN_ZONES = 48
 
@@ -206,7 +209,7 @@ def _refine_level(
         max_size=rules.max_size,
         movable=~level.held,
         volumes=level.volumes,
-        max_passes=REFINE_PASSES if refine else 0,
+        max_passes=LEVEL_PASSES if refine else 0,
         rng=rng,
     )
 
@@ -234,6 +237,8 @@ def _climb(
                 "links": level.n_links,
                 "ncut_projected": refined.ncut_before,
                 "ncut": refined.ncut_after,
+                "moves": refined.moves,
+                "passes": refined.passes,
             }
         )
         logger.debug(
