@@ -38,7 +38,7 @@ if TYPE_CHECKING:  # the names below are loaded on first use (PEP 562), see __ge
     from .operators import GraphOperator, laplacian
     from .studies import stability
     from .walks import StationaryResult, stationary_distribution
-    from .zones import LocalZone, Zoning, find_zones, local_zone
+    from .zones import LocalZone, Zoning, find_zones, local_zone, refine_zoning
 
 try:
     __version__ = version("specgraph")
@@ -57,6 +57,7 @@ _LAZY = {
     "Zoning": "zones",
     "find_zones": "zones",
     "local_zone": "zones",
+    "refine_zoning": "zones",
     "Network": "network",
     "StationaryResult": "walks",
     "stationary_distribution": "walks",
@@ -129,6 +130,7 @@ __all__ = [
     "laplacian",
     "local_zone",
     "read_edges",
+    "refine_zoning",
     "score",
     "smallest_eigenpairs",
     "stability",

@@ -62,6 +62,7 @@ from .zones import (
     choose_operator,
     find_zones,
     local_zone,
+    refine_zoning,
 )
 
 __all__ = ["CAUTIONED", "COMMANDS", "GEOJSON_FILES", "REPORT_FILE", "holds_nodes"]
@@ -351,6 +352,47 @@ def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         network, inputs = _read(args)
         logger.info("read %r", network)
         return _zone_and_write(network, inputs, args, argv, step)
+
+
+def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
+    """V-cycles on a zoning read from a node,zone table; the outputs of ``zones``."""
+    with stage_progress(("reading", "reading rules", "refining", "writing"),
+                        enabled=args.progress) as step:
+        step("reading")
+        network, inputs = _read(args)
+        labels, coverage = _zone_labels(network, args)
+        if coverage.unassigned:
+            raise InputError(
+                f"{coverage.unassigned} nodes of the network are in no zone (for example "
+                f"{', '.join(coverage.unassigned_examples)}); refine needs a zone for every "
+                "node: add them to the table, or zone the network afresh with `specgraph zones`",
+                path=args.zones_file,
+            )
+        inputs.append(input_record("zones", args.zones_file))
+        _check_formats(network, args)
+        step("reading rules")
+        constraints = _constraints(network, args)
+        inputs += _rule_inputs(args)
+        step("refining")
+        zoning = refine_zoning(
+            network, labels, constraints=constraints, max_cycles=args.cycles, rng=args.seed
+        )
+        step("writing")
+        record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
+        files, stale = _zoning_files(zoning, record, args, argv, tuple(constraints.sources))
+        written = write_outputs(args.out, files, remove=stale)
+    _warn(zoning.warnings)
+    for name, decision in zoning.decisions.items():
+        logger.info("%s: %s", name, decision["reason"])
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
+    refinement = zoning.decisions["refinement"]
+    return {
+        "out": str(args.out),
+        "scores": zoning.scores,
+        "ncut_before": refinement["ncut_before"],
+        "moved_nodes": refinement["moved_nodes"],
+        "warnings": list(zoning.warnings),
+    }
 
 
 def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -665,6 +707,7 @@ def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 
 COMMANDS = {
     "zones": _cmd_zones,
+    "refine": _cmd_refine,
     "spectrum": _cmd_spectrum,
     "score": _cmd_score,
     "compare": _cmd_compare,
@@ -674,4 +717,4 @@ COMMANDS = {
     "local": _cmd_local,
 }
 #: Commands whose results go to an engineer's decision: their caution is said first.
-CAUTIONED = ("zones", "demo", "score", "stability", "robustness", "local")
+CAUTIONED = ("zones", "refine", "demo", "score", "stability", "robustness", "local")

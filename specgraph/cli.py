@@ -43,9 +43,12 @@ from .studies import DEFAULT_REPEATS, DEFAULT_SPREAD
 from .walks import DEFAULT_DAMPING
 from .zones import (
     ASSIGNMENTS,
+    CYCLE_RTOL,
     DEFAULT_LOCAL_ALPHA,
     DOMINANT_GAP,
     DOMINANT_TREATMENTS,
+    MAX_CYCLES,
+    MULTILEVEL_MIN_ZONES,
     OPERATOR_KINDS,
     TREE_TREATMENTS,
     parse_zone_spec,
@@ -234,8 +237,8 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         default="auto",
         help="how embedded nodes become zones; 'multilevel' coarsens the network, zones the "
         "coarsest and refines at every level back up (hundreds to thousands of zones, no "
-        "eigenvectors of the whole network); 'auto' takes it from 48 zones up, otherwise "
-        "compares the others (default auto)",
+        "eigenvectors of the whole network); 'auto' takes it from "
+        f"{MULTILEVEL_MIN_ZONES} zones up, otherwise compares the others (default auto)",
     )
     group.add_argument(
         "--trees",
@@ -254,6 +257,16 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         "their group or cuts one; 'ignore' leaves them (default auto)",
     )
     group.add_argument(
+        "--no-refine",
+        action="store_true",
+        help="skip the boundary refinement that lowers the normalized cut",
+    )
+    _add_rules(group, reading=reading, trunk=True)
+
+
+def _add_rules(group: Any, *, reading: bool, trunk: bool) -> None:
+    """Size bounds, then (when the command reads a network) the rules read from it."""
+    group.add_argument(
         "--min-size",
         type=_positive_float,
         metavar="N",
@@ -269,11 +282,6 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         "--count-nodes",
         action="store_true",
         help="count --min-size/--max-size in nodes even when --size-col is given",
-    )
-    group.add_argument(
-        "--no-refine",
-        action="store_true",
-        help="skip the boundary refinement that lowers the normalized cut",
     )
     if not reading:
         return
@@ -302,6 +310,8 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         metavar="FILE",
         help="table of node,zone rows fixing those nodes' zones in advance",
     )
+    if not trunk:
+        return
     group.add_argument(
         "--trunk-col",
         metavar="COL",
@@ -364,6 +374,41 @@ def _add_zones_command(commands: Any) -> None:
     _add_report(zones)
     _add_formats(zones)
     _add_common(zones, out="specgraph-zones")
+
+
+def _add_refine_command(commands: Any) -> None:
+    """The ``refine`` subcommand."""
+    raw = argparse.RawDescriptionHelpFormatter
+    refine = commands.add_parser(
+        "refine",
+        help="improve an existing zoning by multilevel V-cycles, keeping its zones and the rules",
+        description="Improve a zoning, whoever made it (node,zone table), by moving groups of "
+        "nodes and single nodes across its boundaries where that lowers the normalized cut; "
+        "every zone stays one zone, and the rules given are kept. Writes the files of `zones`.",
+        epilog=_caution_epilog(
+            "  specgraph refine pipes.csv districts.csv --weight length_m --distance\
+"
+            "      --nodes junctions.csv --size-col connections --min-size 500 --max-size 3000"
+        ),
+        formatter_class=raw,
+    )
+    _add_reading(refine)
+    refine.add_argument("zones_file", metavar="ZONES_CSV", help="node,zone table to improve")
+    refine.add_argument("--zone-col", default="zone", metavar="COL", help="zone column")
+    group = refine.add_argument_group("rules the result keeps")
+    _add_rules(group, reading=True, trunk=False)
+    refine.add_argument(
+        "--cycles",
+        type=_seed,
+        default=MAX_CYCLES,
+        metavar="N",
+        help=f"most V-cycles (default {MAX_CYCLES}); fewer run when one lowers the "
+        f"normalized cut by less than {CYCLE_RTOL:.1%}",
+    )
+    refine.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
+    _add_report(refine)
+    _add_formats(refine)
+    _add_common(refine, out="specgraph-refine")
 
 
 def _add_spectrum_command(commands: Any) -> None:
@@ -583,6 +628,7 @@ def _add_demo_command(commands: Any) -> None:
 #: The subcommands, in the order ``specgraph --help`` lists them.
 _SUBCOMMANDS = (
     _add_zones_command,
+    _add_refine_command,
     _add_spectrum_command,
     _add_score_command,
     _add_compare_command,

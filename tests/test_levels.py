@@ -21,7 +21,7 @@ from sklearn.metrics import adjusted_rand_score
 
 from specgraph import Network, gallery, read_edges
 from specgraph.exceptions import ConstraintError, ParameterError
-from specgraph.zones import ZoneConstraints, find_zones
+from specgraph.zones import ZoneConstraints, find_zones, refine_zoning
 from specgraph.zones._coarsen import coarsen
 from specgraph.zones._levels import COARSEST_PER_ZONE, MULTILEVEL_MIN_ZONES, choose_path
 from specgraph.zones._refine import ncut_with_volumes, refine_boundary
@@ -266,3 +266,82 @@ def test_multilevel_on_several_components() -> None:
     labels = np.asarray(zoning.labels)
     assert not set(labels[:1500]) & set(labels[1500:])
     assert COARSEST_PER_ZONE >= 1
+
+
+# ------------------------------------------------------- V-cycles on a given zoning
+def test_refine_zoning_improves_a_louvain_zoning_and_keeps_its_zones() -> None:
+    """Start from networkx's Louvain communities (an outside zoning): the normalized cut
+    (networkx) falls, every zone stays connected, and each output zone maps to its input zone."""
+    net = gallery.road_like(3000, rng=4)
+    graph = nx_graph(net.adjacency)
+    communities = nx.community.louvain_communities(graph, weight="weight", seed=0)
+    start = np.empty(net.n_nodes, dtype=np.int64)
+    for z, members in enumerate(communities):
+        start[list(members)] = 10 + 3 * z  # any integers >= 0 are zone numbers
+    zoning = refine_zoning(net, start, rng=0)
+    k = len(communities)
+    _checked(net, zoning, k)
+    record = zoning.decisions["refinement"]
+    assert record["ncut_before"] == pytest.approx(nx_normalized_cut(graph, start), rel=1e-9)
+    assert record["ncut_after"] < record["ncut_before"]
+    labels = np.asarray(zoning.labels)
+    origin = np.asarray(record["input_zones"])
+    assert sorted(origin.tolist()) == sorted(10 + 3 * np.arange(k))  # one output zone each
+    assert record["moved_nodes"] == np.count_nonzero(origin[labels] != start)
+    assert zoning.solves == ()
+
+
+def test_refine_zoning_repairs_a_zone_in_two_pieces_and_says_so() -> None:
+    net = gallery.path(40)
+    start = np.r_[np.zeros(10), np.ones(20), np.zeros(10)].astype(int)  # zone 0 in two pieces
+    zoning = refine_zoning(net, start, rng=0)
+    graph = nx_graph(net.adjacency)
+    labels = np.asarray(zoning.labels)
+    for z in range(zoning.n_zones):
+        assert nx.is_connected(graph.subgraph(np.flatnonzero(labels == z).tolist()))
+    assert zoning.decisions["constraints"]["reason"] != "no change was needed"
+
+
+def test_refine_zoning_refuses_wrong_labels() -> None:
+    net = gallery.path(5)
+    with pytest.raises(ParameterError, match="labels"):
+        refine_zoning(net, [0, 1, 1])
+    with pytest.raises(ParameterError, match="labels"):
+        refine_zoning(net, [0, 1, -1, 1, 0])
+
+
+def test_refine_command_writes_the_zones_files_and_refuses_missing_nodes(tmp_path) -> None:  # noqa: ANN001
+    from specgraph.cli import main
+
+    net = gallery.road_like(600, rng=3)
+    edges = tmp_path / "edges.csv"
+    net.link_table[["source", "target", "weight"]].to_csv(edges, index=False)
+    graph = nx_graph(net.adjacency)
+    communities = nx.community.louvain_communities(graph, weight="weight", seed=1)
+    table = pd.DataFrame(
+        [(net.node_ids[v], z) for z, members in enumerate(communities) for v in members],
+        columns=["node", "zone"],
+    )
+    table.to_csv(tmp_path / "zones.csv", index=False)
+    out = tmp_path / "out"
+    args = ["refine", str(edges), str(tmp_path / "zones.csv"), "--weight", "weight"]
+    assert main([*args, "--out", str(out), "--quiet"]) == 0
+    written = pd.read_csv(out / "zones.csv", dtype={"node": str})
+    assert len(written) == net.n_nodes and written["zone"].nunique() == len(communities)
+    assert {"zone_summary.csv", "boundary.csv", "run.json"} <= {p.name for p in out.iterdir()}
+    table.iloc[5:].to_csv(tmp_path / "partial.csv", index=False)
+    partial = ["refine", str(edges), str(tmp_path / "partial.csv"), "--weight", "weight"]
+    assert main([*partial, "--out", str(tmp_path / "bad"), "--quiet"]) == 2
+    assert not (tmp_path / "bad").exists()  # nothing half-written
+
+
+def test_small_zone_warning_scales_with_the_zone_count() -> None:
+    """A thousand-zone zoning is not 'small zones'; one zone of a tenth of the average is."""
+    from specgraph.zones._compare import zone_warnings
+
+    net = gallery.path(10_000)
+    labels = np.repeat(np.arange(200), 50)
+    assert zone_warnings(net, labels, 200, []) == []
+    labels[4:50] = 1  # zone 0 keeps 4 nodes: under a tenth of the average 50
+    warned = zone_warnings(net, labels, 200, [])
+    assert warned[0].startswith("1 of 200 zones hold under 0.05% (10% of an average zone)")

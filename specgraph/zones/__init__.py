@@ -5,6 +5,9 @@ The stages, one module each: :mod:`._trees` (dangling trees), :mod:`._count`
 links that dwarf the rest), :mod:`._embedding` and :mod:`._assign` (from eigenvectors to
 zones), :mod:`._constraints` (the user's rules), :mod:`._refine` (boundary
 moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`);
+:mod:`._coarsen` and :mod:`._levels` are the multilevel path (coarsen, zone the
+coarsest network, refine at every level), which :mod:`._rezone` also runs as
+V-cycles on a given zoning (:func:`refine_zoning`);
 :mod:`._trunk` runs them beside trunk links (feeding mains outside every zone).
 """
 
@@ -46,7 +49,14 @@ from ._local import (
     personalized_push,
 )
 from ._operator import OperatorChoice, choose_operator
+from ._levels import (
+    COARSEST_PER_ZONE,
+    CYCLE_RTOL,
+    MAX_CYCLES,
+    MULTILEVEL_MIN_ZONES,
+)
 from ._refine import Refinement, normalized_cut, refine_boundary
+from ._rezone import refine_zoning
 from ._rules import ResolvedConstraints, ZoneConstraints
 from ._sweep import SweepCut, sweep_cut
 from ._trees import TreeSplit, attach_trees, core_and_trees, trees_worth_stripping
@@ -67,10 +77,14 @@ __all__ = [
     "ASSIGNMENTS",
     "ASSIGN_METHODS",
     "BALANCE_ROUNDS",
+    "COARSEST_PER_ZONE",
+    "CYCLE_RTOL",
     "DEFAULT_LOCAL_ALPHA",
     "DOMINANT_GAP",
     "DOMINANT_TREATMENTS",
     "KMEANS_RESTARTS",
+    "MAX_CYCLES",
+    "MULTILEVEL_MIN_ZONES",
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
@@ -121,6 +135,7 @@ __all__ = [
     "qr_labels",
     "recursive_bisection",
     "refine_boundary",
+    "refine_zoning",
     "sweep_cut",
     "trees_worth_stripping",
     "weight_range",

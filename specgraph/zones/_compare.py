@@ -41,6 +41,7 @@ __all__ = [
     "COMPARED_METHODS",
     "COMPARE_MAX_WORK",
     "NCUT_TIE_RTOL",
+    "SMALL_ZONE_OF_AVERAGE",
     "SMALL_ZONE_SHARE",
     "Candidate",
     "best_assignment",
@@ -79,6 +80,11 @@ NCUT_TIE_RTOL = 1e-9
 #: network without a warning"); such zones are usually a few nodes held by
 #: links far stronger than the rest (couplers), or a dangling branch.
 SMALL_ZONE_SHARE = 0.01
+
+#: With more than ten zones every zone may hold under 1 % of the network; a
+#: zone is then small when it also holds under this share of an average zone
+#: (a thousand zones of 500 to 1,500 nodes drew a warning for all 1,000).
+SMALL_ZONE_OF_AVERAGE = 0.1
 
 
 #: The assignments ``assign="auto"`` compares: every one of the dispatch table
@@ -252,6 +258,13 @@ def best_assignment(
     return best, record
 
 
+def _share_phrase(share: float) -> str:
+    """``'1%'``, or ``'0.01% (a tenth of an average zone)'`` with many zones."""
+    if share >= SMALL_ZONE_SHARE:
+        return f"{SMALL_ZONE_SHARE:.0%}"
+    return f"{share * 100:.2g}% ({SMALL_ZONE_OF_AVERAGE:.0%} of an average zone)"
+
+
 def zone_warnings(
     network: Network, labels: np.ndarray, asked: int, reasons: list[str]
 ) -> list[str]:
@@ -282,7 +295,10 @@ def zone_warnings(
     weights = np.asarray(network.node_weights, dtype=np.float64)
     weight = np.bincount(labels, weights=weights, minlength=zones)
     total = float(weights.sum())
-    small = (nodes < SMALL_ZONE_SHARE * network.n_nodes) | (weight < SMALL_ZONE_SHARE * total)
+    # With many zones, every zone is under 1 % of the network: only those also
+    # under a tenth of an average zone are small then.
+    share = min(SMALL_ZONE_SHARE, SMALL_ZONE_OF_AVERAGE / max(zones, 1))
+    small = (nodes < share * network.n_nodes) | (weight < share * total)
     if small.any():
         listed = ", ".join(
             f"zone {z} ({nodes[z]} nodes, {weight[z] / total:.2%} of the weight)"
@@ -292,7 +308,7 @@ def zone_warnings(
         )
         more = f" and {int(small.sum()) - 5} more" if small.sum() > 5 else ""
         out.append(
-            f"{int(small.sum())} of {zones} zones hold under {SMALL_ZONE_SHARE:.0%} of the "
+            f"{int(small.sum())} of {zones} zones hold under {_share_phrase(share)} of the "
             f"network's nodes or weight: {listed}{more}; such zones are often a few nodes held "
             "together by links far stronger than the rest (min_size merges them)"
         )

@@ -320,7 +320,7 @@ def find_zones(
             lambda record: {
                 **record,
                 "zones": options.record({}, "")["zones"],  # as asked, not capped
-                "constraints": _constraint_record(rules),
+                "constraints": constraint_record(rules),
             },
         )
     return _zone_rules(network, options, rules, stage)
@@ -416,13 +416,13 @@ def _zone_once(
 
     # Step 6: back to nodes, numbered by size, with the zone table and boundary.
     labels = number_by_size(labels_w[merged.groups], network.node_weights)
-    parameters = options.record(_constraint_record(rules), kind)
+    parameters = options.record(constraint_record(rules), kind)
     notes = [
         *([decisions["weights"]["warning"]] if decisions["weights"]["warning"] else []),
         *step4.notes,
         *zone_warnings(network, labels, step4.asked, decisions["constraints"]["notes"]),
     ]
-    return _zoning(network, labels, step4.solves, parameters, decisions, notes)
+    return zoning_of(network, labels, step4.solves, parameters, decisions, notes)
 
 
 def _rules_and_refinement(
@@ -664,7 +664,7 @@ def _component_offsets(work: Network, per_component: np.ndarray) -> np.ndarray:
     return offsets[work.component_labels]
 
 
-def _zoning(
+def zoning_of(
     network: Network,
     labels: np.ndarray,
     solves: list[ComponentSolve],
@@ -736,7 +736,7 @@ def _lower_cut(attached: Zoning, kept: Zoning) -> Zoning:
     return replace(winner, parameters=attached.parameters, decisions=decisions)
 
 
-def _constraint_record(rules: ResolvedConstraints) -> dict[str, Any]:
+def constraint_record(rules: ResolvedConstraints) -> dict[str, Any]:
     assert rules.pinned is not None
     return {
         "min_size": rules.min_size,
