@@ -649,6 +649,7 @@ def every_command(folder: Path) -> dict[str, list[str]]:
         "demo": ["demo", "--seed", str(DEMO_SEED)],
         "spectrum": ["spectrum", edges, "--count", "4"],
         "score": ["score", edges, zones_csv],
+        "refine": ["refine", edges, str(halves)],
         "compare": ["compare", zones_csv, str(halves)],
         "robustness": ["robustness", edges, "--zones-file", zones_csv],
         "stability": ["stability", edges, "--zones", "2", "--repeats", "1"],
