@@ -275,6 +275,8 @@ def _warn(messages: Sequence[str]) -> None:
 # ------------------------------------------------------------------ commands
 #: Stages of a zoning run, as the progress bar counts them.
 ZONING_STAGES = ["reading", "reading rules", "solving", "constraints", "refining", "writing"]
+#: Stages of ``specgraph refine``.
+REFINE_STAGES = ["reading", "reading rules", "refining", "writing"]
 
 
 def _zone_and_write(
@@ -356,8 +358,7 @@ def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 
 def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     """V-cycles on a zoning read from a node,zone table; the outputs of ``zones``."""
-    with stage_progress(("reading", "reading rules", "refining", "writing"),
-                        enabled=args.progress) as step:
+    with stage_progress(REFINE_STAGES, enabled=args.progress) as step:
         step("reading")
         network, inputs = _read(args)
         labels, coverage = _zone_labels(network, args)

@@ -400,10 +400,11 @@ def _add_refine_command(commands: Any) -> None:
     refine.add_argument(
         "--cycles",
         type=_seed,
-        default=MAX_CYCLES,
         metavar="N",
-        help=f"most V-cycles (default {MAX_CYCLES}); fewer run when one lowers the "
-        f"normalized cut by less than {CYCLE_RTOL:.1%}".replace("%", "%%"),
+        help=f"most V-cycles (default {MAX_CYCLES}, fewer above a million nodes); fewer run "
+        f"when two in a row each lower the normalized cut by less than {CYCLE_RTOL:.1%}".replace(
+            "%", "%%"
+        ),
     )
     refine.add_argument("--seed", type=_seed, default=0, help="random seed (default 0)")
     _add_report(refine)

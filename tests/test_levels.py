@@ -18,6 +18,7 @@ import pandas as pd
 import pytest
 import scipy.sparse as sp
 from sklearn.metrics import adjusted_rand_score
+from test_refine import NCUT_RTOL, nx_graph, nx_normalized_cut
 
 from specgraph import Network, gallery, read_edges
 from specgraph.exceptions import ConstraintError, ParameterError
@@ -25,8 +26,6 @@ from specgraph.zones import ZoneConstraints, find_zones, refine_zoning
 from specgraph.zones._coarsen import coarsen
 from specgraph.zones._levels import COARSEST_PER_ZONE, MULTILEVEL_MIN_ZONES, choose_path
 from specgraph.zones._refine import ncut_with_volumes, refine_boundary
-
-from test_refine import NCUT_RTOL, nx_graph, nx_normalized_cut
 
 
 def _free(n: int) -> dict[str, np.ndarray]:
@@ -74,7 +73,8 @@ def test_coarsening_keeps_sources_tags_and_cap_apart() -> None:
     ladder = coarsen(
         a, sizes=sizes, apart=apart, sources=sources, held=sources, cap=cap, target=30, rng=rng
     )
-    assert len(ladder.levels) >= 3 and ladder.coarsest.n_nodes < n / 2
+    assert len(ladder.levels) >= 3
+    assert ladder.coarsest.n_nodes < n / 2
     owner = ladder.owner(len(ladder.levels) - 1)
     m = ladder.coarsest.n_nodes
     assert np.bincount(owner[sources], minlength=m).max() == 1  # never two sources
@@ -88,7 +88,7 @@ def test_coarsening_keeps_sources_tags_and_cap_apart() -> None:
 
 
 def test_star_halves_at_every_level() -> None:
-    """A hub with many leaves: matching alone merges one leaf per level; leftover pairing halves it."""
+    """A hub with many leaves: matching merges one leaf per level; leftover pairing halves it."""
     n = 1001
     star = nx.star_graph(n - 1)
     a = sp.csr_array(nx.to_scipy_sparse_array(star, nodelist=range(n)))
@@ -101,7 +101,7 @@ def test_star_halves_at_every_level() -> None:
 # ------------------------------------------------- refinement with coarse volumes
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_coarse_ncut_equals_ncut_of_the_projection(seed: int) -> None:
-    """Every labeling of a coarse level has, with its volumes, the networkx NCut of its projection."""
+    """Every labeling of a coarse level has, with its volumes, networkx's NCut of its projection."""
     graph = nx.gnm_random_graph(10, 22, seed=seed)
     assert nx.is_connected(graph)
     a = _weighted(graph, seed)
@@ -137,7 +137,10 @@ def test_refinement_with_volumes_reaches_the_brute_force_optimum() -> None:
             values.append(nx_normalized_cut(graph, np.array(labels)[owner]))
     optimum = min(values)
     tried = 0
-    for best in (np.array(v) for v, x in zip(valid, values) if x <= optimum * (1 + NCUT_RTOL)):
+    optimal = [
+        np.array(v) for v, x in zip(valid, values, strict=True) if x <= optimum * (1 + NCUT_RTOL)
+    ]
+    for best in optimal:
         for node in range(m):
             start = best.copy()
             start[node] = 1 - start[node]
@@ -156,7 +159,7 @@ def test_volumes_below_the_degree_are_refused() -> None:
 
 
 # ----------------------------------------------------------- the multilevel path
-def _checked(net: Network, zoning, k: int) -> nx.Graph:  # noqa: ANN001 - a Zoning
+def _checked(net: Network, zoning, k: int) -> nx.Graph:
     """Every zone connected (networkx) and the reported NCut equal to networkx's."""
     graph = nx_graph(net.adjacency)
     labels = np.asarray(zoning.labels)
@@ -176,7 +179,8 @@ def test_multilevel_zones_are_connected_and_scored_right() -> None:
     record = zoning.decisions["assign"]
     assert record["choice"] == "multilevel"
     levels = record["levels"]
-    assert levels[-1]["nodes"] == net.n_nodes and levels[0]["nodes"] < net.n_nodes
+    assert levels[-1]["nodes"] == net.n_nodes
+    assert levels[0]["nodes"] < net.n_nodes
     assert zoning.solves == ()  # no solve of the whole network
     # each level's refinement never raised the cut, nor did any V-cycle
     assert all(r["ncut"] <= r["ncut_projected"] * (1 + 1e-12) for r in levels)
@@ -210,7 +214,8 @@ def test_multilevel_keeps_every_rule(bounded: bool) -> None:
     assert np.unique(labels[fixed_nodes]).size == len(fixed_nodes)  # fixed apart
     if bounded:
         counts = np.bincount(labels)
-        assert counts.min() >= lo and counts.max() <= hi
+        assert counts.min() >= lo
+        assert counts.max() <= hi
     else:
         assert np.unique(labels[sources]).size == k  # one source per zone
 
@@ -224,7 +229,7 @@ def test_multilevel_refuses_rules_that_cannot_hold() -> None:
         find_zones(net, 3, assign="multilevel", constraints=rules, rng=0)
 
 
-def test_multilevel_is_deterministic_and_ignores_link_order(tmp_path) -> None:  # noqa: ANN001
+def test_multilevel_is_deterministic_and_ignores_link_order(tmp_path) -> None:
     """Same seed, same zones; the same links read in another order give the same zones by id."""
     net = gallery.road_like(3000, rng=11)
     first = find_zones(net, 64, assign="multilevel", rng=5)
@@ -310,7 +315,7 @@ def test_refine_zoning_refuses_wrong_labels() -> None:
         refine_zoning(net, [0, 1, -1, 1, 0])
 
 
-def test_refine_command_writes_the_zones_files_and_refuses_missing_nodes(tmp_path) -> None:  # noqa: ANN001
+def test_refine_command_writes_the_zones_files_and_refuses_missing_nodes(tmp_path) -> None:
     from specgraph.cli import main
 
     net = gallery.road_like(600, rng=3)
@@ -327,7 +332,8 @@ def test_refine_command_writes_the_zones_files_and_refuses_missing_nodes(tmp_pat
     args = ["refine", str(edges), str(tmp_path / "zones.csv"), "--weight", "weight"]
     assert main([*args, "--out", str(out), "--quiet"]) == 0
     written = pd.read_csv(out / "zones.csv", dtype={"node": str})
-    assert len(written) == net.n_nodes and written["zone"].nunique() == len(communities)
+    assert len(written) == net.n_nodes
+    assert written["zone"].nunique() == len(communities)
     assert {"zone_summary.csv", "boundary.csv", "run.json"} <= {p.name for p in out.iterdir()}
     table.iloc[5:].to_csv(tmp_path / "partial.csv", index=False)
     partial = ["refine", str(edges), str(tmp_path / "partial.csv"), "--weight", "weight"]

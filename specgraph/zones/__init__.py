@@ -40,6 +40,12 @@ from ._dominant import (
     weight_range,
 )
 from ._embedding import normalized_rows
+from ._levels import (
+    COARSEST_PER_ZONE,
+    CYCLE_RTOL,
+    MAX_CYCLES,
+    MULTILEVEL_MIN_ZONES,
+)
 from ._local import (
     DEFAULT_LOCAL_ALPHA,
     LocalZone,
@@ -49,12 +55,6 @@ from ._local import (
     personalized_push,
 )
 from ._operator import OperatorChoice, choose_operator
-from ._levels import (
-    COARSEST_PER_ZONE,
-    CYCLE_RTOL,
-    MAX_CYCLES,
-    MULTILEVEL_MIN_ZONES,
-)
 from ._refine import Refinement, normalized_cut, refine_boundary
 from ._rezone import refine_zoning
 from ._rules import ResolvedConstraints, ZoneConstraints

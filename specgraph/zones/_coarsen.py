@@ -158,7 +158,9 @@ def _match(indptr, indices, data, volumes, sizes, apart, sources, cap, order):  
 
 
 @njit(cache=True)
-def _pair_leftovers(indptr, indices, data, mate, sizes, apart, sources, cap, order):  # pragma: no cover
+def _pair_leftovers(
+    indptr, indices, data, mate, sizes, apart, sources, cap, order
+):  # pragma: no cover
     """Pair nodes left unmatched through the neighbour each is most tied to (in place)."""
     n = mate.size
     waiting = np.full(n, -1, dtype=np.int64)

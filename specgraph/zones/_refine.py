@@ -306,7 +306,9 @@ def _best_move(
 
 
 @njit(cache=True)
-def _apply_move(v, b, indptr, indices, data, labels, degree, volume, sizes, state):  # pragma: no cover
+def _apply_move(
+    v, b, indptr, indices, data, labels, degree, volume, sizes, state
+):  # pragma: no cover
     """Move ``v`` to zone ``b`` and update the zone totals in ``state``."""
     a = labels[v]
     wa, wb = two_zone_weights(v, a, b, indptr, indices, data, labels)
@@ -369,7 +371,19 @@ def _requeue_neighbours(v, moves, heap, movable, locked, version, rank, args):  
 
 @njit(cache=True)
 def _refine_pass(
-    indptr, indices, data, labels, degree, volume, sizes, movable, queued, rank, state, bounds, limits
+    indptr,
+    indices,
+    data,
+    labels,
+    degree,
+    volume,
+    sizes,
+    movable,
+    queued,
+    rank,
+    state,
+    bounds,
+    limits,
 ):
     """One pass of boundary moves with rollback to the best prefix.
 

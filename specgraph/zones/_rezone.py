@@ -18,10 +18,10 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from .._figures import normalized_cut
-from .._validation import Array, Interval, check_param, check_rng, parameter_error
+from .._validation import Array, Interval, NoneOk, check_param, check_rng, parameter_error
 from ..network import Network
 from ._constraints import refuse_infeasible
-from ._levels import MAX_CYCLES, in_id_order, refine_by_cycles, within_bounds
+from ._levels import in_id_order, refine_by_cycles, within_bounds
 from ._result import Zoning
 from ._rules import ZoneConstraints
 from ._stages import Merged, enforce_rules, merge_together
@@ -37,7 +37,7 @@ def refine_zoning(
     labels: Any,
     *,
     constraints: ZoneConstraints | None = None,
-    max_cycles: int = MAX_CYCLES,
+    max_cycles: int | None = None,
     rng: Any = None,
 ) -> Zoning:
     """Improve a given zoning by multilevel V-cycles, keeping its zones and the rules.
@@ -52,9 +52,11 @@ def refine_zoning(
         Rules the result must keep (sizes, sources, links that must not be cut,
         fixed nodes, connected zones: the default). Trunk links are not
         supported here.
-    max_cycles : int, default=MAX_CYCLES
-        Most V-cycles; they stop earlier when one lowers the normalized cut by
-        less than :data:`~specgraph.zones.CYCLE_RTOL`.
+    max_cycles : int, optional
+        Most V-cycles; by default :data:`~specgraph.zones.MAX_CYCLES`, fewer on
+        networks above a million nodes (``CYCLE_NODE_BUDGET / n``). They stop
+        earlier when two in a row each lower the normalized cut by less than
+        :data:`~specgraph.zones.CYCLE_RTOL`.
     rng : None, int or numpy.random.Generator
         Draws the orders of the matchings and the ties of the refinement.
 
@@ -64,7 +66,8 @@ def refine_zoning(
         Zones numbered by descending size, as every zoning;
         ``decisions["refinement"]`` holds the normalized cut before and after,
         the cut after each cycle and ``input_zones``: the input zone number of
-        each output zone (matched by largest overlap). ``decisions["constraints"]`` says what the rules
+        each output zone (matched by largest overlap).
+        ``decisions["constraints"]`` says what the rules
         changed in the zoning given. No eigen-solve is run (``solves`` is empty).
 
     Raises
@@ -95,12 +98,13 @@ def refine_zoning(
     given = check_param(labels, "labels", [_LABELS])
     if given.size != network.n_nodes:
         raise parameter_error("labels", f"one zone per node ({network.n_nodes})", labels)
-    max_cycles = check_param(max_cycles, "max_cycles", [Interval(int, 0, None)])
+    max_cycles = check_param(max_cycles, "max_cycles", [Interval(int, 0, None), NoneOk()])
     generator = check_rng(rng)
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
     if rules.trunk_pairs.size:
         raise parameter_error(
-            "constraints", "rules without trunk links (zone beside the trunk with find_zones)",
+            "constraints",
+            "rules without trunk links (zone beside the trunk with find_zones)",
             constraints,
         )
     refuse_infeasible(network.adjacency, rules)
@@ -113,8 +117,9 @@ def refine_zoning(
     inner = Merged(ordered, np.arange(ordered.n_nodes), ordered_rules, ordered_rules.sizes)
     kept = within_bounds(ordered, start, ordered_rules)
     kept, decided = enforce_rules(ordered, kept, inner, generator)
-    refined, record = refine_by_cycles(ordered, kept, ordered_rules, rng=generator,
-                                       max_cycles=max_cycles)
+    refined, record = refine_by_cycles(
+        ordered, kept, ordered_rules, rng=generator, max_cycles=max_cycles
+    )
     by_row = np.empty_like(refined)
     by_row[order] = refined
     final = number_by_size(by_row[merged.groups], network.node_weights)
