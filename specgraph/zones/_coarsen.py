@@ -254,15 +254,16 @@ def coarsen(
 
     Examples
     --------
-    A path of 8 nodes halves at every level:
+    A path of 8 nodes, coarsened to 2 (each level merges pairs of neighbours):
 
     >>> from specgraph import gallery
     >>> a = gallery.path(8).adjacency
     >>> free = np.zeros(8, dtype=bool)
     >>> ladder = coarsen(a, sizes=np.ones(8), apart=np.full(8, -1), sources=free, held=free,
     ...                  cap=np.inf, target=2, rng=np.random.default_rng(0))
-    >>> [level.n_nodes for level in ladder.levels]
-    [8, 4, 2]
+    >>> sizes = [level.n_nodes for level in ladder.levels]
+    >>> sizes[0], sizes[-1], all(b >= a / 2 for a, b in zip(sizes, sizes[1:]))
+    (8, 2, True)
     """
     a = sp.csr_array(adjacency)
     volumes = np.asarray(a.sum(axis=1)).ravel()
