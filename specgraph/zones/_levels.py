@@ -386,6 +386,9 @@ class Path:
 
     multilevel: bool
     reason: str
+    #: Whether the one-level path's result is compared with the multilevel
+    #: path's (``assign="auto"`` below :data:`MULTILEVEL_MIN_ZONES`).
+    compare: bool = False
 
 
 def choose_path(assign: str, kind: str, n_nodes: int, k: int) -> Path:
@@ -414,7 +417,12 @@ def choose_path(assign: str, kind: str, n_nodes: int, k: int) -> Path:
             f"the multilevel path: {k} zones, at least {MULTILEVEL_MIN_ZONES} (one level "
             f"would embed all {n_nodes:,} nodes in {k + 1} eigenvectors)",
         )
-    return Path(False, f"the one-level path: {k} zones, fewer than {MULTILEVEL_MIN_ZONES}")
+    return Path(
+        False,
+        f"the one-level path: {k} zones, fewer than {MULTILEVEL_MIN_ZONES}; the multilevel "
+        "path's zones compared with it",
+        compare=kind in ("normalized", "random_walk"),
+    )
 
 
 def split_by_bisection(

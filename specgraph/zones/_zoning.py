@@ -35,7 +35,7 @@ from typing import Any
 
 import numpy as np
 
-from .._figures import boundary_links, overall_scores, zone_table
+from .._figures import boundary_links, normalized_cut, overall_scores, zone_table
 from .._validation import (
     OPEN_UNIT,
     POSITIVE,
@@ -411,6 +411,10 @@ def _zone_once(
         stage("constraints")
         labels_w, step5 = _rules_and_refinement(network, merged, step4, options, stage)
         decisions.update(step5)
+        if path.compare and options.refine and step4.solves:
+            labels_w = _against_levels(
+                network, merged, step4.asked, options, solver, labels_w, decisions
+            )
     if options.assign == "auto" and "assign" in decisions:
         decisions["assign"]["path"] = path.reason
 
@@ -456,6 +460,49 @@ def _rules_and_refinement(
         stage("refining")
         labels_w, decisions["refinement"] = refine_zones(network, merged, labels_w, options.rng)
     return labels_w, decisions
+
+
+def _against_levels(
+    network: Network,
+    merged: Merged,
+    asked: int,
+    options: _Options,
+    solver: SolveOptions,
+    labels_w: np.ndarray,
+    decisions: dict[str, dict[str, Any]],
+) -> np.ndarray:
+    """The one-level zoning or the multilevel one, whichever has the lower normalized cut.
+
+    ``assign="auto"`` below :data:`MULTILEVEL_MIN_ZONES` runs both: the
+    one-level path keeps its eigengap evidence (its solves stay in the
+    zoning), and the multilevel path often cuts less (on
+    ``road_like(100_000)`` at 8 zones, 0.0152 against 0.0222;
+    benchmarks/probe_levels.py). Updates ``decisions`` in place.
+    """
+    one = normalized_cut(network.adjacency, labels_w[merged.groups])
+    try:
+        other = _zone_by_levels(network, merged, asked, options, solver, _no_progress)
+    except ConstraintError as exc:
+        decisions["assign"]["reason"] += f" (the multilevel path could not keep the rules: {exc})"
+        return labels_w
+    multi = normalized_cut(network.adjacency, other.labels[merged.groups])
+    same = int(other.labels.max()) == int(labels_w.max())
+    if same and multi < one * (1.0 - NCUT_TIE_RTOL):
+        one_level = {
+            "choice": decisions["assign"].get("choice"),
+            "ncut": one,
+            "reason": decisions["assign"].get("reason", ""),
+        }
+        decisions.pop("refinement", None)
+        decisions.update(other.decisions)
+        decisions["assign"]["one_level"] = one_level
+        decisions["assign"]["reason"] += (
+            f"; lower than the one-level path's {one:.4g} ({one_level['choice']})"
+        )
+        return other.labels
+    decisions["assign"]["multilevel_ncut"] = multi
+    decisions["assign"]["reason"] += f" (the multilevel path: {multi:.4g})"
+    return labels_w
 
 
 def _zone_by_levels(
