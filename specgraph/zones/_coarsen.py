@@ -180,6 +180,38 @@ def _pair_leftovers(
             waiting[hub] = v
 
 
+@njit(cache=True)
+def _contract(indptr, indices, data, parent, starts, members):  # pragma: no cover - compiled
+    """CSR arrays of :math:`P^T A P` without its diagonal: the links between coarse nodes,
+    parallel links summed, links inside a coarse node dropped (they stay in its volume).
+
+    ``members[starts[c]:starts[c + 1]]`` are the nodes of coarse node ``c``.
+    """
+    m = starts.size - 1
+    out_ptr = np.zeros(m + 1, dtype=np.int64)
+    out_idx = np.empty(indices.size, dtype=np.int64)
+    out_val = np.empty(indices.size)
+    where = np.full(m, -1, dtype=np.int64)  # entry of coarse node d in the current row
+    nz = 0
+    for c in range(m):
+        first = nz
+        for t in range(starts[c], starts[c + 1]):
+            v = members[t]
+            for p in range(indptr[v], indptr[v + 1]):
+                d = parent[indices[p]]
+                if d == c:
+                    continue
+                if where[d] < first:
+                    where[d] = nz
+                    out_idx[nz] = d
+                    out_val[nz] = data[p]
+                    nz += 1
+                else:
+                    out_val[where[d]] += data[p]
+        out_ptr[c + 1] = nz
+    return out_ptr, out_idx[:nz].copy(), out_val[:nz].copy()
+
+
 def _coarser(level: Level, mate: np.ndarray) -> tuple[Level, Level]:
     """The level with its parent map set, and the coarse level it maps to."""
     n = level.n_nodes
@@ -190,13 +222,10 @@ def _coarser(level: Level, mate: np.ndarray) -> tuple[Level, Level]:
     parent = (np.cumsum(heads) - 1)[lead]
     m = int(heads.sum())
     a = level.adjacency
-    rows = parent[np.repeat(np.arange(n), np.diff(a.indptr))]
-    cols = parent[a.indices]
-    across = rows != cols  # links inside a coarse node leave the adjacency (not the volume)
-    coarse = sp.csr_array(
-        (a.data[across], (rows[across], cols[across])), shape=(m, m), dtype=np.float64
-    )
-    coarse.sum_duplicates()
+    members = np.argsort(parent, kind="stable")
+    starts = np.searchsorted(parent[members], np.arange(m + 1))
+    indptr, indices, data = _contract(a.indptr, a.indices, a.data, parent, starts, members)
+    coarse = sp.csr_array((data, indices, indptr), shape=(m, m))
     apart = np.full(m, -1, dtype=np.int64)
     np.maximum.at(apart, parent, level.apart)
     sources = np.zeros(m, dtype=bool)

@@ -68,6 +68,7 @@ __all__ = [
     "CYCLE_RTOL",
     "MAX_CYCLES",
     "MULTILEVEL_MIN_ZONES",
+    "ZONE_FLOOR_SHARE",
     "CoarseZoner",
     "Path",
     "choose_path",
@@ -77,6 +78,7 @@ __all__ = [
     "refine_by_cycles",
     "refine_levels",
     "split_by_bisection",
+    "size_floor",
     "within_bounds",
     "zone_by_levels",
 ]
@@ -103,6 +105,15 @@ COARSEST_MIN_NODES = 200
 #: (one node per zone against three: 1.943 against 1.968 after eight cycles
 #: on the network above).
 CYCLE_PER_ZONE = 1
+
+#: No zone of the multilevel path is let shrink below this share of an
+#: average zone (nor below ``min_size``): the refinement lowers the normalized
+#: cut one move at a time, and a zone that a coarse level left small could be
+#: squeezed down to a few nodes, whose share of the cut stays near 1 while no
+#: single move can empty it (a 2-node zone among 162 on ``road_like(100_000)``
+#: before this floor). Boundary transfers lift zones below it before the rules
+#: step.
+ZONE_FLOOR_SHARE = 0.25
 
 #: V-cycles stop after two in a row each lowered the normalized cut by less
 #: than this share. Their drops are irregular (on ``road_like(100_000)`` at
@@ -219,6 +230,13 @@ def _coarse_problem(
     return coarse, coarse_rules
 
 
+def size_floor(rules: ResolvedConstraints, k: int) -> float:
+    """Smallest zone the multilevel path lets a zone shrink to: ``min_size``, and at least
+    :data:`ZONE_FLOOR_SHARE` of an average zone."""
+    floor = ZONE_FLOOR_SHARE * float(rules.sizes.sum()) / max(k, 1)
+    return max(floor, rules.min_size or 0.0)
+
+
 def _refine_level(
     level: Level,
     labels: np.ndarray,
@@ -227,11 +245,12 @@ def _refine_level(
     rng: np.random.Generator,
 ) -> Refinement:
     """Boundary refinement of one level, with the finest network's volumes (none: 0 passes)."""
+    k = int(labels.max()) + 1 if labels.size else 0
     return refine_boundary(
         level.adjacency,
         labels,
         sizes=level.sizes,
-        min_size=rules.min_size,
+        min_size=min(size_floor(rules, k), rules.max_size or np.inf),
         max_size=rules.max_size,
         movable=~level.held,
         volumes=level.volumes,
@@ -471,14 +490,17 @@ def split_by_bisection(
 def within_bounds(network: Network, labels: np.ndarray, rules: ResolvedConstraints) -> np.ndarray:
     """Zones brought within the size bounds by boundary transfers, keeping their count.
 
+    The lower bound is :func:`size_floor`: ``min_size``, and a quarter of an
+    average zone at least, so that no zone is left a sliver of a few nodes
+    (which the refinement could then only grow).
+
     The rules' own step (:func:`enforce_rules`) merges a zone below
     ``min_size`` into a neighbour where the union fits, which lowers the zone
     count; transfers first (:func:`balance_sizes`) keep the count the user
     asked for, and the rules' step then only has left what transfers could
     not fix.
     """
-    if rules.min_size is None and rules.max_size is None:
-        return labels
+    k = int(labels.max()) + 1 if labels.size else 0
     assert rules.pinned is not None
     movable = rules.pinned < 0
     movable[rules.sources] = False
@@ -486,7 +508,7 @@ def within_bounds(network: Network, labels: np.ndarray, rules: ResolvedConstrain
         network.adjacency,
         labels,
         sizes=rules.sizes,
-        min_size=rules.min_size,
+        min_size=min(size_floor(rules, k), rules.max_size or np.inf),
         max_size=rules.max_size,
         movable=movable,
         connected=rules.connected,
