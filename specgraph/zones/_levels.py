@@ -77,8 +77,8 @@ __all__ = [
     "levels_record",
     "refine_by_cycles",
     "refine_levels",
-    "split_by_bisection",
     "size_floor",
+    "split_by_bisection",
     "within_bounds",
     "zone_by_levels",
 ]
