@@ -40,6 +40,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from ._graph import MISSING_WEIGHT_DEFAULT, read_graph
+from ._links import LinkEnds, encode_links
 from ._validation import check_bool
 from .exceptions import InputError
 
@@ -396,34 +397,15 @@ class Network:
         >>> net.arcs.toarray().tolist()
         [[0.0, 1.0, 0.0], [0.5, 0.0, 2.0], [0.0, 0.0, 0.0]]
         """
-        import pandas as pd
-
-        src = np.asarray([str(s) for s in source], dtype=object)
-        dst = np.asarray([str(t) for t in target], dtype=object)
-        if src.shape != dst.shape:
-            raise InputError("source and target must have the same length")
-        w = np.ones(src.size) if weight is None else np.asarray(weight, dtype=np.float64)
-        if w.shape != src.shape:
-            raise InputError("weight must have one value per link")
-        if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
-            raise InputError("weights must be finite and >= 0")
-        directed = check_bool(directed, "directed")
-        ids, i, j = _index_links(src, dst, node_ids)
-        adjacency, counts = _adjacency_from_links(i, j, w, ids.size, directed=directed)
-        arcs = None
-        if directed:
-            arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
-        table = pd.DataFrame({"source": src, "target": dst, "weight": w})
-        if extra is not None:
-            table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
-        return cls(
-            adjacency,
-            ids,
+        return network_from_ends(
+            encode_links(source, target, node_ids),
+            weight,
             coordinates=coordinates,
             sizes=sizes,
-            links=table,
-            notes={**counts, **(notes or {})},
-            arcs=arcs,
+            extra=extra,
+            notes=notes,
+            directed=directed,
+            factory=cls,
         )
 
     @classmethod
@@ -562,28 +544,68 @@ class Network:
         )
 
 
-def _index_links(
-    src: np.ndarray, dst: np.ndarray, node_ids: Sequence[Any] | None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Map link ends to row indices, fixing the node order."""
+def network_from_ends(
+    ends: LinkEnds,
+    weight: Sequence[float] | np.ndarray | None = None,
+    *,
+    coordinates: np.ndarray | None = None,
+    sizes: np.ndarray | None = None,
+    extra: pd.DataFrame | None = None,
+    notes: Mapping[str, Any] | None = None,
+    directed: bool = False,
+    factory: type[Network] | None = None,
+) -> Network:
+    """:meth:`Network.from_links` on ends already encoded by :func:`specgraph._links.encode_links`.
+
+    Readers that check the ends against their own tables first (naming the
+    file and line of a fault) encode the ids once and build from them here.
+    ``factory`` is the class built (default :class:`Network`). The network's
+    :attr:`~Network.link_ends` are the encoded rows, so they are never looked
+    up again.
+    """
+    n_links = len(ends.source)
+    w = np.ones(n_links) if weight is None else np.asarray(weight, dtype=np.float64)
+    if w.shape != (n_links,):
+        raise InputError("weight must have one value per link")
+    if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
+        raise InputError("weights must be finite and >= 0")
+    directed = check_bool(directed, "directed")
+    i, j = _checked_rows(ends)
+    adjacency, counts = _adjacency_from_links(i, j, w, ends.node_ids.size, directed=directed)
+    arcs = None
+    if directed:
+        arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
     import pandas as pd
 
-    if node_ids is None:
-        interleaved = np.column_stack([src, dst]).ravel()
-        ids = np.asarray(pd.unique(interleaved), dtype=object)
-    else:
-        ids = np.asarray([str(v) for v in node_ids], dtype=object)
-    index = pd.Index(ids)
-    if not index.is_unique:
+    table = pd.DataFrame({"source": ends.source, "target": ends.target, "weight": w})
+    if extra is not None:
+        table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
+    network = (factory or Network)(
+        adjacency,
+        ends.node_ids,
+        coordinates=coordinates,
+        sizes=sizes,
+        links=table,
+        notes={**counts, **(notes or {})},
+        arcs=arcs,
+    )
+    # The table's ends are these rows: set the cached property now (it would
+    # otherwise look every id up again the first time it is read).
+    object.__setattr__(network, "link_ends", (_readonly(i), _readonly(j)))
+    return network
+
+
+def _checked_rows(ends: LinkEnds) -> tuple[np.ndarray, np.ndarray]:
+    """The encoded rows, or the refusal of repeated node ids or of an unknown end."""
+    if not ends.unique or ends.rows is None:
         raise InputError("node ids must be unique")
-    i = index.get_indexer(src)
-    j = index.get_indexer(dst)
+    i, j = ends.rows
     missing = np.flatnonzero((i < 0) | (j < 0))
     if missing.size:
         k = int(missing[0])
-        bad = src[k] if i[k] < 0 else dst[k]
+        bad = ends.end_id(k, 0 if i[k] < 0 else 1)
         raise InputError(f"link {k} names node {bad!r}, which is not among the node ids")
-    return ids, i.astype(np.int64), j.astype(np.int64)
+    return i, j
 
 
 def _adjacency_from_links(
