@@ -620,17 +620,18 @@ def _adjacency_from_links(
     else:
         lo = np.minimum(i[keep], j[keep])
         hi = np.maximum(i[keep], j[keep])
-    pair_keys = lo * n + hi
-    distinct = np.unique(pair_keys).size
-    upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()  # sums repeats
+    # Converting to CSR sums repeated entries, so what is stored is one entry per
+    # distinct pair (kept affinities are > 0: no sum is zero). Counting them there
+    # spares a sort of the pairs (numpy.unique: 1.4 s at 2*10^6 links).
+    upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()
+    upper.sum_duplicates()
     counts = {
         "input_links": int(i.size),
         "self_loops_dropped": int(loops.sum()),
         "zero_weight_links_dropped": int(zero.sum()),
-        "duplicate_links_merged": int(keep.sum() - distinct),
+        "duplicate_links_merged": int(keep.sum() - upper.nnz),
     }
     if directed:
-        upper.sum_duplicates()
         return upper, counts
     return (upper + upper.T).tocsr(), counts
 
