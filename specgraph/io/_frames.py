@@ -15,7 +15,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._links import LinkEnds, encode_links, first_repeated, missing_or_empty
+from .._links import LinkEnds, arrow_text, encode_links, first_repeated, missing_or_empty
 from .._validation import Boolean, Constraint, InstanceOf, NoneOk, check_params, parameter_error
 from ..exceptions import InputError, ParameterError
 from ..network import Network, affinity_from_distance, network_from_ends
@@ -260,10 +260,39 @@ def _check_ids(frame: pd.DataFrame, names: tuple[Hashable, ...], origin: Origin,
         )
 
 
+def _arrow_numbers(series: pd.Series) -> np.ndarray | None:
+    """The numbers of a column of Arrow text when pyarrow reads every cell as what pandas
+    reads, else None (the column then takes pandas' path, which also words the faults).
+
+    pyarrow's cast reads decimal text correctly rounded, as Python's ``float``
+    does (and pandas from 3.1; :func:`_read_exactly` before). It is taken only
+    when every cell is read and the numbers are all finite and none is a
+    negative zero: pandas reads a column of whole numbers as integers, so it
+    reads ``-0`` as 0, and it reads words such as ``inf`` or text with spaces
+    around it by rules of its own. At 2*10^6 cells this took 0.05 s where
+    pandas took 0.8 s.
+    """
+    text = arrow_text(series)
+    if text is None:
+        return None
+    import pyarrow as pa
+
+    try:
+        numbers = np.array(text.cast(pa.float64()).to_numpy(), dtype=np.float64)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        return None
+    if not np.all(np.isfinite(numbers)) or np.any(np.signbit(numbers) & (numbers == 0)):
+        return None
+    return numbers
+
+
 def _parse_numbers(series: pd.Series) -> np.ndarray:
     """Numbers of a column of text or numbers; anything unreadable becomes NaN."""
     if pd.api.types.is_numeric_dtype(series) and not pd.api.types.is_bool_dtype(series):
         return series.to_numpy(dtype=np.float64, na_value=np.nan)
+    read = _arrow_numbers(series)
+    if read is not None:
+        return read
     values = series.to_numpy(dtype=object)
     try:
         parsed = pd.to_numeric(series.astype(object), errors="coerce")
