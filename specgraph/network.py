@@ -100,6 +100,23 @@ def _readonly(array: np.ndarray) -> np.ndarray:
     return array
 
 
+class _InducedIds(np.ndarray):
+    """Node ids that :meth:`Network.subnetwork` took from distinct rows of a network
+    whose adjacency is exactly symmetric: unique strings over an exactly symmetric
+    block, which the constructor need not check again (it keeps a plain array)."""
+
+
+def _distinct_rows(nodes: np.ndarray, n: int) -> bool:
+    """Whether ``nodes`` are distinct row indices in ``0..n-1`` (no negative index)."""
+    if not nodes.size:
+        return True
+    if nodes.min() < 0 or nodes.max() >= n:
+        return False
+    seen = np.zeros(n, dtype=bool)
+    seen[nodes] = True
+    return int(np.count_nonzero(seen)) == nodes.size
+
+
 @dataclass(frozen=True, eq=False, repr=False)
 class Network:
     """An undirected weighted network, frozen once built.
@@ -171,14 +188,23 @@ class Network:
             raise InputError("adjacency must hold finite, non-negative affinities")
         if adjacency.diagonal().any():
             raise InputError("adjacency must have a zero diagonal (no self-loops)")
-        asym = abs(adjacency - adjacency.T)
-        if asym.nnz and asym.max() > SYMMETRY_RTOL * (data.max() if data.size else 1.0):
-            raise InputError("adjacency must be symmetric (an undirected network)")
-        ids = np.asarray([str(i) for i in self.node_ids], dtype=object)
+        induced = isinstance(self.node_ids, _InducedIds)
+        exact = induced  # a principal submatrix of an exactly symmetric matrix is so too
+        if not induced:
+            asym = abs(adjacency - adjacency.T)
+            exact = asym.nnz == 0
+            if asym.nnz and asym.max() > SYMMETRY_RTOL * (data.max() if data.size else 1.0):
+                raise InputError("adjacency must be symmetric (an undirected network)")
+        if induced:
+            ids = np.asarray(self.node_ids).view(np.ndarray)
+        else:
+            ids = np.asarray([str(i) for i in self.node_ids], dtype=object)
         if ids.shape != (n,):
             raise InputError(f"node_ids must hold {n} ids, one per row; got {ids.size}")
-        if len(set(ids.tolist())) != n:
+        if not induced and len(set(ids.tolist())) != n:
             raise InputError("node_ids must be unique")
+        # Not a field: whether sub-networks may skip the symmetry check (see subnetwork).
+        object.__setattr__(self, "_exactly_symmetric", exact)
         for part in (adjacency.data, adjacency.indices, adjacency.indptr):
             _readonly(part)
         object.__setattr__(self, "adjacency", adjacency)
@@ -268,7 +294,7 @@ class Network:
     @cached_property
     def index_of(self) -> Mapping[str, int]:
         """Mapping from node id to row index."""
-        return MappingProxyType({node: i for i, node in enumerate(self.node_ids.tolist())})
+        return MappingProxyType(dict(zip(self.node_ids.tolist(), range(self.n_nodes), strict=True)))
 
     @cached_property
     def link_table(self) -> pd.DataFrame:
@@ -331,9 +357,14 @@ class Network:
         """
         nodes = np.asarray(nodes, dtype=np.int64)
         sub = self.adjacency[nodes][:, nodes]
+        ids = self.node_ids[nodes]
+        if getattr(self, "_exactly_symmetric", False) and _distinct_rows(nodes, self.n_nodes):
+            # Unique ids and an exactly symmetric block by construction: the
+            # constructor skips checking them again (0.2 s and 0.3 s at 10^6 nodes).
+            ids = ids.view(_InducedIds)
         return Network(
             sub,
-            self.node_ids[nodes],
+            ids,
             coordinates=None if self.coordinates is None else self.coordinates[nodes],
             sizes=None if self.sizes is None else self.sizes[nodes],
             arcs=None if self.arcs is None else self.arcs[nodes][:, nodes],
