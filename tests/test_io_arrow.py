@@ -99,6 +99,9 @@ ST = ["source", "target"]
         pytest.param("\nsource,target\nJ1,J2\n", ST, 2, id="blank-line-before-header"),
         pytest.param("source,\nJ1,J2\n", ["source", ""], 1, id="unnamed-column"),
         pytest.param(b"source,target\nJ1,J\xff2\n", ST, 1, id="not-utf8"),
+        pytest.param(
+            'source,target,pipe\nJ1,J2,P1\nJ4,"a\n","c', [*ST, "pipe"], 1, id="unclosed-after-break"
+        ),
     ],
 )
 def test_files_pandas_reads_differently_are_left_to_pandas(
@@ -106,6 +109,20 @@ def test_files_pandas_reads_differently_are_left_to_pandas(
 ) -> None:
     path = write(tmp_path, "edges.csv", text)
     assert _arrow_csv.read_plain_csv(path, names, ",", line) is None
+
+
+@pytest.mark.parametrize("final_end", ["", "\n", "\r\n", "\n\n"])
+def test_quoted_fields_on_every_line_are_read_by_arrow(tmp_path: Path, final_end: str) -> None:
+    # Spreadsheets and databases often quote every text cell; such files, including
+    # doubled quotes and a delimiter inside quotes on the last line, are not left to
+    # pandas only for holding quotes.
+    rows = ['"J1","J2","1.5"', '"J2","J3 ""x""","2"', '"J3","a,b","3"']
+    path = write(tmp_path, "edges.csv", "source,target,weight\n" + "\n".join(rows) + final_end)
+    mine = _arrow_csv.read_plain_csv(path, ["source", "target", "weight"], ",", 1)
+    assert mine is not None
+    reference = pandas_reference(path)
+    assert reference is not None
+    pd.testing.assert_frame_equal(mine, reference, check_column_type=True)
 
 
 def test_one_column_tables_are_left_to_pandas(tmp_path: Path) -> None:

@@ -54,7 +54,7 @@ class _Scan:
 
     quoted: bool  # a double quote anywhere
     lone_cr: bool  # a carriage return not followed by a line feed
-    last_line_quoted: bool  # a double quote on the last line that is not empty
+    last_line: bytes  # the last line that is not empty, without its line end
 
 
 def _scan(path: Path) -> _Scan:
@@ -67,25 +67,55 @@ def _scan(path: Path) -> _Scan:
                 while end and data[end - 1 : end] in (b"\n", b"\r"):
                     end -= 1
                 start = max(data.rfind(b"\n", 0, end), data.rfind(b"\r", 0, end)) + 1
-                return _Scan(quoted, lone_cr, quoted and data.find(_QUOTE, start, end) >= 0)
+                return _Scan(quoted, lone_cr, data[start:end] if quoted else b"")
         except ValueError:  # an empty file cannot be mapped
-            return _Scan(False, False, False)
+            return _Scan(False, False, b"")
 
 
-def _quotes_closed(scan: _Scan, table: Any) -> bool:
-    """Whether no quoted field runs to the end of the file (pandas refuses one; pyarrow not).
+def _ends_inside_quotes(line: str, delimiter: str) -> bool:
+    """Whether a line read from outside any quote ends inside a quoted field.
+
+    Quoting as both parsers read it: a quote opens a quoted field only at the
+    start of a field; inside, two quotes are one quote and one quote closes
+    the field; after it, and anywhere else, a quote is an ordinary character.
+    """
+    inside, field_start, i = False, True, 0
+    while i < len(line):
+        char = line[i]
+        if inside:
+            if char == '"' and line[i + 1 : i + 2] == '"':
+                i += 1
+            elif char == '"':
+                inside = False
+        elif char == '"' and field_start:
+            inside = True
+        field_start = not inside and char == delimiter
+        i += 1
+    return inside
+
+
+def _quotes_closed(scan: _Scan, table: Any, delimiter: str) -> bool:
+    """Whether no quoted field runs on to the end of the file (pandas refuses one; pyarrow not).
 
     A field whose quote never closes takes the rest of the file, so it is the
-    last field pyarrow reads (an earlier column would leave its row short,
-    which pyarrow refuses). It then either holds a line break, or it opened on
-    the last line; a file with neither is taken, any other is left to pandas.
+    last cell pyarrow reads (in an earlier column it would leave its row short,
+    which pyarrow refuses). When no cell of the last row holds a line break,
+    that row is the last line, read from outside any quote: then the field is
+    unclosed exactly when that line ends inside quotes. A last row holding a
+    line break is left to pandas.
     """
     if not scan.quoted:
         return True
-    if scan.last_line_quoted or table.num_rows == 0:
+    if table.num_rows == 0:
         return False
-    last = table.column(table.num_columns - 1)[table.num_rows - 1].as_py()
-    return "\n" not in last and "\r" not in last
+    last_row = [table.column(k)[table.num_rows - 1].as_py() for k in range(table.num_columns)]
+    if any("\n" in cell or "\r" in cell for cell in last_row):
+        return False
+    try:
+        line = scan.last_line.decode("utf-8")
+    except UnicodeDecodeError:
+        return False
+    return not _ends_inside_quotes(line, delimiter)
 
 
 def read_plain_csv(path: Path, names: list[str], delimiter: str, header_line: int) -> Any:
@@ -136,7 +166,7 @@ def read_plain_csv(path: Path, names: list[str], delimiter: str, header_line: in
         table = pcsv.read_csv(path, parse_options=parse, convert_options=convert)
     except (pa.ArrowException, UnicodeDecodeError):
         return None
-    if table.column_names != names or not _quotes_closed(scan, table):
+    if table.column_names != names or not _quotes_closed(scan, table, delimiter):
         return None
     frame: pd.DataFrame = table.to_pandas()
     return frame
