@@ -19,7 +19,9 @@ pa = pytest.importorskip("pyarrow")
 PROPERTY_EXAMPLES = 80
 
 ODD_IDS = ["J1", "007", "NA", "null", "", " ", " J2", "a,b", 'q"t', "x\ny", "ü", "=1", "-2"]
-ids = st.one_of(st.sampled_from(ODD_IDS), st.text(max_size=3))
+# No NUL character: pandas 2.1's unique() takes "a\x00" for "a" (the reference would
+# be wrong; pandas 3.1 and pyarrow tell them apart).
+ids = st.one_of(st.sampled_from(ODD_IDS), st.text(max_size=3).filter(lambda t: "\x00" not in t))
 links = st.lists(st.tuples(ids, ids), min_size=1, max_size=12)
 
 
@@ -37,7 +39,8 @@ def test_arrow_ends_found_from_links_match_pandas(table: list[tuple[str, str]]) 
     ends = encode_links(arrow_series(source), arrow_series(target))
     # Reference (pandas): ids in order of first appearance along the interleaved
     # ends (pandas.unique keeps that order), rows by a pandas hash index.
-    expected = pd.unique(np.column_stack([source, target]).ravel().astype(object))
+    ends_text = [np.array(source, dtype=object), np.array(target, dtype=object)]
+    expected = pd.unique(np.column_stack(ends_text).ravel())
     assert ends.node_ids.tolist() == list(expected)
     assert all(type(v) is str for v in ends.node_ids)
     index = pd.Index(expected)
