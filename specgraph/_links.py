@@ -127,7 +127,8 @@ def _table_column(values: Any, text: Any) -> Any:
     if held:
         return array
     if isinstance(dtype, pd.StringDtype) and dtype.storage == "pyarrow":
-        return dtype.__from_arrow__(text)
+        # pandas' extension-array protocol for Arrow data; pandas-stubs leave it out.
+        return dtype.__from_arrow__(text)  # type: ignore[attr-defined]
     return text.to_numpy(zero_copy_only=False)
 
 
@@ -141,6 +142,20 @@ def _interleaved(source: Any, target: Any) -> Any:
     both = pa.concat_arrays([*source.chunks, *target.chunks])
     order = np.column_stack([np.arange(m), np.arange(m) + m]).ravel()
     return both.take(pa.array(order))
+
+
+def _first_appearance_order(i: np.ndarray, j: np.ndarray) -> bool:
+    """Whether rows ``i``, ``j`` number the ids by first appearance along the interleaved ends.
+
+    pyarrow's ``unique`` keeps that order (its hash table hands out numbers as
+    values arrive); checked in O(links) rather than relied on: in that order,
+    each end's row is at most one more than every row before it.
+    """
+    rows = np.column_stack([i, j]).ravel()
+    if not rows.size:
+        return True
+    before = np.maximum.accumulate(np.concatenate([[-1], rows[:-1]]))
+    return bool(np.all(rows <= before + 1))
 
 
 def _arrow_ends(source: Any, target: Any, node_ids: Any) -> LinkEnds | None:
@@ -169,6 +184,8 @@ def _arrow_ends(source: Any, target: Any, node_ids: Any) -> LinkEnds | None:
     n_listed, n_links = len(rows) - 2 * len(texts[0]), len(texts[0])
     unique = bool(np.array_equal(rows[:n_listed], np.arange(n_listed)))
     ends = rows[n_listed:]
+    if node_ids is None and not _first_appearance_order(ends[:n_links], ends[n_links:]):
+        return None
     return LinkEnds(
         node_ids=np.asarray(ids.to_numpy(zero_copy_only=False), dtype=object),
         source=_table_column(source, texts[0]),

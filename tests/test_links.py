@@ -10,7 +10,13 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from specgraph import Network
-from specgraph._links import NOT_A_NODE, arrow_text, encode_links, first_repeated
+from specgraph._links import (
+    NOT_A_NODE,
+    _first_appearance_order,
+    arrow_text,
+    encode_links,
+    first_repeated,
+)
 from specgraph.exceptions import InputError
 
 pa = pytest.importorskip("pyarrow")
@@ -72,6 +78,25 @@ def test_arrow_ends_against_a_node_list_match_pandas(
     if python.rows is not None and ends.rows is not None:
         for mine, reference in zip(ends.rows, python.rows, strict=True):
             np.testing.assert_array_equal(mine, reference)
+
+
+@settings(max_examples=PROPERTY_EXAMPLES, deadline=None)
+@given(
+    pairs=st.lists(st.tuples(st.integers(0, 6), st.integers(0, 6)), min_size=1, max_size=10),
+    shuffle=st.randoms(use_true_random=False),
+)
+def test_first_appearance_check_matches_a_dictionary(pairs: list[tuple[int, int]], shuffle) -> None:
+    # Rows numbered by first appearance along the interleaved ends (a Python dict
+    # hands out numbers in arrival order), then relabelled by a random permutation:
+    # the check holds exactly when the relabelling changed nothing that was seen.
+    numbering: dict[int, int] = {}
+    for v in (end for pair in pairs for end in pair):
+        numbering.setdefault(v, len(numbering))
+    order = list(range(len(numbering)))
+    shuffle.shuffle(order)
+    i = np.array([order[numbering[s]] for s, _ in pairs])
+    j = np.array([order[numbering[t]] for _, t in pairs])
+    assert _first_appearance_order(i, j) == (order == sorted(order))
 
 
 def test_unknown_end_gets_the_not_a_node_row() -> None:
