@@ -434,16 +434,20 @@ def _write_temp(folder: Path, name: str, content: Content) -> Path:
         newline=None if binary else "",
     ) as handle:
         temp = Path(handle.name)
+        # The file object itself: writers that write row by row (pandas' CSV writer
+        # calls write once per row) skip the temporary-file wrapper's forwarding
+        # function (0.19 s of 0.75 s writing a 10^6-row zones.csv).
+        stream = handle.file
         try:
             if isinstance(content, bytes | str):
-                handle.write(content)
+                stream.write(content)
             elif isinstance(content, pd.DataFrame):
                 table = neutralize_frame(content)
-                table.to_csv(handle, index=False, lineterminator="\n", quoting=_quoting(table))
+                table.to_csv(stream, index=False, lineterminator="\n", quoting=_quoting(table))
             else:
-                json.dump(content, handle, indent=2, allow_nan=False)
-                handle.write("\n")
-            handle.flush()
+                json.dump(content, stream, indent=2, allow_nan=False)
+                stream.write("\n")
+            stream.flush()
             os.fsync(handle.fileno())
         except BaseException:
             handle.close()

@@ -40,6 +40,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from ._graph import MISSING_WEIGHT_DEFAULT, read_graph
+from ._links import LinkEnds, encode_links
 from ._validation import check_bool
 from .exceptions import InputError
 
@@ -97,6 +98,23 @@ def affinity_from_distance(distance: np.ndarray) -> tuple[np.ndarray, dict[str, 
 def _readonly(array: np.ndarray) -> np.ndarray:
     array.flags.writeable = False
     return array
+
+
+class _InducedIds(np.ndarray):
+    """Node ids that :meth:`Network.subnetwork` took from distinct rows of a network
+    whose adjacency is exactly symmetric: unique strings over an exactly symmetric
+    block, which the constructor need not check again (it keeps a plain array)."""
+
+
+def _distinct_rows(nodes: np.ndarray, n: int) -> bool:
+    """Whether ``nodes`` are distinct row indices in ``0..n-1`` (no negative index)."""
+    if not nodes.size:
+        return True
+    if nodes.min() < 0 or nodes.max() >= n:
+        return False
+    seen = np.zeros(n, dtype=bool)
+    seen[nodes] = True
+    return int(np.count_nonzero(seen)) == nodes.size
 
 
 @dataclass(frozen=True, eq=False, repr=False)
@@ -170,14 +188,23 @@ class Network:
             raise InputError("adjacency must hold finite, non-negative affinities")
         if adjacency.diagonal().any():
             raise InputError("adjacency must have a zero diagonal (no self-loops)")
-        asym = abs(adjacency - adjacency.T)
-        if asym.nnz and asym.max() > SYMMETRY_RTOL * (data.max() if data.size else 1.0):
-            raise InputError("adjacency must be symmetric (an undirected network)")
-        ids = np.asarray([str(i) for i in self.node_ids], dtype=object)
+        induced = isinstance(self.node_ids, _InducedIds)
+        exact = induced  # a principal submatrix of an exactly symmetric matrix is so too
+        if not induced:
+            asym = abs(adjacency - adjacency.T)
+            exact = asym.nnz == 0
+            if asym.nnz and asym.max() > SYMMETRY_RTOL * (data.max() if data.size else 1.0):
+                raise InputError("adjacency must be symmetric (an undirected network)")
+        if induced:
+            ids = np.asarray(self.node_ids).view(np.ndarray)
+        else:
+            ids = np.asarray([str(i) for i in self.node_ids], dtype=object)
         if ids.shape != (n,):
             raise InputError(f"node_ids must hold {n} ids, one per row; got {ids.size}")
-        if len(set(ids.tolist())) != n:
+        if not induced and len(set(ids.tolist())) != n:
             raise InputError("node_ids must be unique")
+        # Not a field: whether sub-networks may skip the symmetry check (see subnetwork).
+        object.__setattr__(self, "_exactly_symmetric", exact)
         for part in (adjacency.data, adjacency.indices, adjacency.indptr):
             _readonly(part)
         object.__setattr__(self, "adjacency", adjacency)
@@ -267,7 +294,7 @@ class Network:
     @cached_property
     def index_of(self) -> Mapping[str, int]:
         """Mapping from node id to row index."""
-        return MappingProxyType({node: i for i, node in enumerate(self.node_ids.tolist())})
+        return MappingProxyType(dict(zip(self.node_ids.tolist(), range(self.n_nodes), strict=True)))
 
     @cached_property
     def link_table(self) -> pd.DataFrame:
@@ -330,9 +357,14 @@ class Network:
         """
         nodes = np.asarray(nodes, dtype=np.int64)
         sub = self.adjacency[nodes][:, nodes]
+        ids = self.node_ids[nodes]
+        if getattr(self, "_exactly_symmetric", False) and _distinct_rows(nodes, self.n_nodes):
+            # Unique ids and an exactly symmetric block by construction: the
+            # constructor skips checking them again (0.2 s and 0.3 s at 10^6 nodes).
+            ids = ids.view(_InducedIds)
         return Network(
             sub,
-            self.node_ids[nodes],
+            ids,
             coordinates=None if self.coordinates is None else self.coordinates[nodes],
             sizes=None if self.sizes is None else self.sizes[nodes],
             arcs=None if self.arcs is None else self.arcs[nodes][:, nodes],
@@ -396,34 +428,15 @@ class Network:
         >>> net.arcs.toarray().tolist()
         [[0.0, 1.0, 0.0], [0.5, 0.0, 2.0], [0.0, 0.0, 0.0]]
         """
-        import pandas as pd
-
-        src = np.asarray([str(s) for s in source], dtype=object)
-        dst = np.asarray([str(t) for t in target], dtype=object)
-        if src.shape != dst.shape:
-            raise InputError("source and target must have the same length")
-        w = np.ones(src.size) if weight is None else np.asarray(weight, dtype=np.float64)
-        if w.shape != src.shape:
-            raise InputError("weight must have one value per link")
-        if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
-            raise InputError("weights must be finite and >= 0")
-        directed = check_bool(directed, "directed")
-        ids, i, j = _index_links(src, dst, node_ids)
-        adjacency, counts = _adjacency_from_links(i, j, w, ids.size, directed=directed)
-        arcs = None
-        if directed:
-            arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
-        table = pd.DataFrame({"source": src, "target": dst, "weight": w})
-        if extra is not None:
-            table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
-        return cls(
-            adjacency,
-            ids,
+        return network_from_ends(
+            encode_links(source, target, node_ids),
+            weight,
             coordinates=coordinates,
             sizes=sizes,
-            links=table,
-            notes={**counts, **(notes or {})},
-            arcs=arcs,
+            extra=extra,
+            notes=notes,
+            directed=directed,
+            factory=cls,
         )
 
     @classmethod
@@ -562,28 +575,68 @@ class Network:
         )
 
 
-def _index_links(
-    src: np.ndarray, dst: np.ndarray, node_ids: Sequence[Any] | None
-) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Map link ends to row indices, fixing the node order."""
+def network_from_ends(
+    ends: LinkEnds,
+    weight: Sequence[float] | np.ndarray | None = None,
+    *,
+    coordinates: np.ndarray | None = None,
+    sizes: np.ndarray | None = None,
+    extra: pd.DataFrame | None = None,
+    notes: Mapping[str, Any] | None = None,
+    directed: bool = False,
+    factory: type[Network] | None = None,
+) -> Network:
+    """:meth:`Network.from_links` on ends already encoded by :func:`specgraph._links.encode_links`.
+
+    Readers that check the ends against their own tables first (naming the
+    file and line of a fault) encode the ids once and build from them here.
+    ``factory`` is the class built (default :class:`Network`). The network's
+    :attr:`~Network.link_ends` are the encoded rows, so they are never looked
+    up again.
+    """
+    n_links = len(ends.source)
+    w = np.ones(n_links) if weight is None else np.asarray(weight, dtype=np.float64)
+    if w.shape != (n_links,):
+        raise InputError("weight must have one value per link")
+    if w.size and not (np.all(np.isfinite(w)) and w.min() >= 0):
+        raise InputError("weights must be finite and >= 0")
+    directed = check_bool(directed, "directed")
+    i, j = _checked_rows(ends)
+    adjacency, counts = _adjacency_from_links(i, j, w, ends.node_ids.size, directed=directed)
+    arcs = None
+    if directed:
+        arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
     import pandas as pd
 
-    if node_ids is None:
-        interleaved = np.column_stack([src, dst]).ravel()
-        ids = np.asarray(pd.unique(interleaved), dtype=object)
-    else:
-        ids = np.asarray([str(v) for v in node_ids], dtype=object)
-    index = pd.Index(ids)
-    if not index.is_unique:
+    table = pd.DataFrame({"source": ends.source, "target": ends.target, "weight": w})
+    if extra is not None:
+        table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
+    network = (factory or Network)(
+        adjacency,
+        ends.node_ids,
+        coordinates=coordinates,
+        sizes=sizes,
+        links=table,
+        notes={**counts, **(notes or {})},
+        arcs=arcs,
+    )
+    # The table's ends are these rows: set the cached property now (it would
+    # otherwise look every id up again the first time it is read).
+    object.__setattr__(network, "link_ends", (_readonly(i), _readonly(j)))
+    return network
+
+
+def _checked_rows(ends: LinkEnds) -> tuple[np.ndarray, np.ndarray]:
+    """The encoded rows, or the refusal of repeated node ids or of an unknown end."""
+    if not ends.unique or ends.rows is None:
         raise InputError("node ids must be unique")
-    i = index.get_indexer(src)
-    j = index.get_indexer(dst)
+    i, j = ends.rows
     missing = np.flatnonzero((i < 0) | (j < 0))
     if missing.size:
         k = int(missing[0])
-        bad = src[k] if i[k] < 0 else dst[k]
+        bad = ends.end_id(k, 0 if i[k] < 0 else 1)
         raise InputError(f"link {k} names node {bad!r}, which is not among the node ids")
-    return ids, i.astype(np.int64), j.astype(np.int64)
+    return i, j
 
 
 def _adjacency_from_links(
@@ -598,17 +651,18 @@ def _adjacency_from_links(
     else:
         lo = np.minimum(i[keep], j[keep])
         hi = np.maximum(i[keep], j[keep])
-    pair_keys = lo * n + hi
-    distinct = np.unique(pair_keys).size
-    upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()  # sums repeats
+    # Converting to CSR sums repeated entries, so what is stored is one entry per
+    # distinct pair (kept affinities are > 0: no sum is zero). Counting them there
+    # spares a sort of the pairs (numpy.unique: 1.4 s at 2*10^6 links).
+    upper = sp.coo_array((w[keep], (lo, hi)), shape=(n, n)).tocsr()
+    upper.sum_duplicates()
     counts = {
         "input_links": int(i.size),
         "self_loops_dropped": int(loops.sum()),
         "zero_weight_links_dropped": int(zero.sum()),
-        "duplicate_links_merged": int(keep.sum() - distinct),
+        "duplicate_links_merged": int(keep.sum() - upper.nnz),
     }
     if directed:
-        upper.sum_duplicates()
         return upper, counts
     return (upper + upper.T).tocsr(), counts
 

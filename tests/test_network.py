@@ -193,6 +193,38 @@ def test_subnetwork_matches_networkx_subgraph(weighted_graph) -> None:
     expected = nx.to_numpy_array(graph.subgraph(nodes), nodelist=nodes, weight="weight")
     np.testing.assert_array_equal(sub.adjacency.toarray(), expected)
     assert sub.node_ids.tolist() == [str(v) for v in nodes]
+    assert type(sub.node_ids) is np.ndarray
+    assert not sub.node_ids.flags.writeable
+    # A sub-network of a sub-network (the path recursive bisection takes).
+    inner = sub.subnetwork(np.array([4, 1, 2]))
+    kept = [nodes[4], nodes[1], nodes[2]]
+    expected = nx.to_numpy_array(graph.subgraph(kept), nodelist=kept, weight="weight")
+    np.testing.assert_array_equal(inner.adjacency.toarray(), expected)
+
+
+def test_subnetwork_on_repeated_rows_is_refused_as_before() -> None:
+    net = Network.from_links(["a", "b"], ["b", "c"])
+    with pytest.raises(InputError, match="unique"):
+        net.subnetwork(np.array([0, 1, 0]))
+    # Negative rows count from the end, as numpy indexing does.
+    assert net.subnetwork(np.array([-1, 0])).node_ids.tolist() == ["c", "a"]
+
+
+def test_subnetwork_of_a_nearly_symmetric_network_is_checked_again() -> None:
+    # The parent passes the symmetry check (asymmetry 5e-7 <= SYMMETRY_RTOL * 1e6),
+    # but the block on c, d alone does not (5e-7 > SYMMETRY_RTOL * 1): only blocks of
+    # an exactly symmetric adjacency skip the check.
+    dense = np.zeros((4, 4))
+    dense[0, 1] = dense[1, 0] = 1e6
+    dense[2, 3], dense[3, 2] = 1.0, 1.0 + 5e-7
+    net = Network(sp.csr_array(dense), np.array(["a", "b", "c", "d"], dtype=object))
+    with pytest.raises(InputError, match="symmetric"):
+        net.subnetwork(np.array([2, 3]))
+
+
+def test_index_of_maps_each_id_to_its_row() -> None:
+    net = Network.from_links(["b", "c", "a"], ["a", "a", "d"])
+    assert dict(net.index_of) == {v: i for i, v in enumerate(net.node_ids.tolist())}
 
 
 # ----------------------------------------------------------- immutability
