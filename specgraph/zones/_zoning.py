@@ -36,22 +36,7 @@ from typing import Any
 import numpy as np
 
 from .._figures import boundary_links, normalized_cut, overall_scores, zone_table
-from .._validation import (
-    OPEN_UNIT,
-    POSITIVE,
-    Boolean,
-    Constraint,
-    InstanceOf,
-    Interval,
-    IsCallable,
-    NoneOk,
-    Options,
-    check_int,
-    check_params,
-    check_rng,
-    parameter_error,
-)
-from ..eigen import DEFAULT_TOL, METHODS, EigenResult
+from ..eigen import DEFAULT_TOL, EigenResult
 from ..exceptions import ConstraintError
 from ..network import Network
 from ..walks import DEFAULT_DAMPING
@@ -64,9 +49,7 @@ from ._compare import (
     zone_warnings,
 )
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
-from ._count import parse_zone_spec
 from ._dominant import (
-    DOMINANT_TREATMENTS,
     WeightSurvey,
     coupler_trouble,
     dominant_contraction,
@@ -83,9 +66,15 @@ from ._levels import (
     zone_by_levels,
 )
 from ._operator import NORMALIZED_LIKE, OPERATOR_KINDS, choose_operator
+from ._options import (
+    ASSIGNMENTS,
+    TREE_TREATMENTS,
+    ZONING_CONSTRAINTS,
+    ZoningOptions,
+    checked_options,
+)
 from ._result import ComponentSolve, Zoning
 from ._stages import (
-    _ASSIGNERS,
     Merged,
     SolveOptions,
     assign_with,
@@ -116,29 +105,6 @@ __all__ = [
 
 logger = logging.getLogger(__name__)
 
-#: Assignment methods (besides ``"auto"``): the dispatch table's, in its
-#: order, then the multilevel path (:mod:`._levels`).
-ASSIGNMENTS = (*_ASSIGNERS, "multilevel")
-#: Treatments of dangling trees (besides ``"auto"``).
-TREE_TREATMENTS = ("attach", "keep")
-
-#: What each keyword option of :func:`find_zones` accepts, as a table (the
-#: declarative checks of :mod:`specgraph._validation`); studies that re-run
-#: zoning check their options against the same table.
-ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
-    "operator": [Options(("auto", *OPERATOR_KINDS))],
-    "assign": [Options(("auto", *ASSIGNMENTS))],
-    "trees": [Options(("auto", *TREE_TREATMENTS))],
-    "dominant": [Options(DOMINANT_TREATMENTS)],
-    "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
-    "refine": [Boolean()],
-    "eigen_method": [Options(METHODS)],
-    "tol": [POSITIVE],
-    "maxiter": [Interval(int, 1, None), NoneOk()],
-    "damping": [OPEN_UNIT],
-    "progress": [IsCallable(), NoneOk()],
-}
-
 
 def number_by_size(labels: np.ndarray, weights: np.ndarray) -> np.ndarray:
     """Renumber zones ``0..k-1`` by descending size, ties by first node.
@@ -154,23 +120,6 @@ def number_by_size(labels: np.ndarray, weights: np.ndarray) -> np.ndarray:
     new = np.empty_like(order)
     new[order] = np.arange(order.size)
     return new[compact].astype(np.int64)
-
-
-def _check_spec(zones: Any, n: int) -> int | str | range:
-    """The zone count, ``'auto'`` or a range of counts (capped at ``n``), checked."""
-    if isinstance(zones, str):
-        spec = parse_zone_spec(zones)
-    elif isinstance(zones, range):
-        spec = zones
-        if len(spec) == 0 or spec.step != 1 or spec.start < 2:
-            raise parameter_error("zones", "a range of consecutive counts from 2 up", zones)
-    else:
-        spec = check_int(zones, "zones", minimum=1, maximum=max(n, 1))
-    if isinstance(spec, range) and spec.start > n:
-        raise parameter_error("zones", f"a range starting at most at n_nodes={n}", zones)
-    if isinstance(spec, range):
-        spec = range(spec.start, min(spec.stop, n + 1))
-    return spec
 
 
 def find_zones(
@@ -293,7 +242,7 @@ def find_zones(
     >>> zoning.boundary[["source", "target"]].to_numpy().tolist()
     [['4', '5']]
     """
-    options = _checked_options(
+    options = checked_options(
         network,
         zones,
         operator=operator,
@@ -327,7 +276,10 @@ def find_zones(
 
 
 def _zone_rules(
-    network: Network, options: _Options, rules: ResolvedConstraints, stage: Callable[[str], None]
+    network: Network,
+    options: ZoningOptions,
+    rules: ResolvedConstraints,
+    stage: Callable[[str], None],
 ) -> Zoning:
     """Steps 2 to 8 of :func:`find_zones` on resolved rules."""
     refuse_infeasible(network.adjacency, rules)  # what arithmetic decides, before any solve
@@ -355,7 +307,7 @@ def _zone_rules(
 
 def _zone_trees(
     network: Network,
-    options: _Options,
+    options: ZoningOptions,
     rules: ResolvedConstraints,
     stage: Callable[[str], None],
     survey: WeightSurvey,
@@ -380,7 +332,7 @@ def _zone_trees(
 
 def _zone_once(
     network: Network,
-    options: _Options,
+    options: ZoningOptions,
     rules: ResolvedConstraints,
     stage: Callable[[str], None],
     survey: WeightSurvey,
@@ -433,7 +385,7 @@ def _rules_and_refinement(
     network: Network,
     merged: Merged,
     step4: _Assigned,
-    options: _Options,
+    options: ZoningOptions,
     stage: Callable[[str], None],
 ) -> tuple[np.ndarray, dict[str, dict[str, Any]]]:
     """Step 5: the rules, then the refinement, of the one assignment or of each compared."""
@@ -466,7 +418,7 @@ def _against_levels(
     network: Network,
     merged: Merged,
     asked: int,
-    options: _Options,
+    options: ZoningOptions,
     solver: SolveOptions,
     labels_w: np.ndarray,
     decisions: dict[str, dict[str, Any]],
@@ -509,7 +461,7 @@ def _zone_by_levels(
     network: Network,
     merged: Merged,
     k: int,
-    options: _Options,
+    options: ZoningOptions,
     solver: SolveOptions,
     stage: Callable[[str], None],
 ) -> _Assigned:
@@ -552,72 +504,8 @@ def _zone_by_levels(
     return _Assigned({"multilevel": (by_row, 0.0)}, [], notes, decisions, asked, by_row)
 
 
-# ------------------------------------------------------------------ steps
-@dataclass(frozen=True)
-class _Options:
-    """The options of one :func:`find_zones` call, checked (step 1)."""
-
-    spec: int | str | range
-    operator: str
-    assign: str
-    trees: str
-    dominant: str
-    refine: bool
-    eigen_method: str
-    tol: float
-    maxiter: int | None
-    damping: float
-    rng: np.random.Generator
-
-    def record(self, constraints: dict[str, Any], kind: str) -> dict[str, Any]:
-        """The :attr:`Zoning.parameters` record: the options as given, the rules as read."""
-        spec = self.spec
-        return {
-            "zones": spec if not isinstance(spec, range) else f"{spec.start}:{spec.stop - 1}",
-            "operator": self.operator,
-            "assign": self.assign,
-            "trees": self.trees,
-            "dominant": self.dominant,
-            "refine": self.refine,
-            "constraints": constraints,
-            "eigen_method": self.eigen_method,
-            "tol": self.tol,
-            "maxiter": self.maxiter,
-            **({"damping": self.damping} if kind == "directed" else {}),
-        }
-
-
-def _checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) -> _Options:
-    """Step 1 of :func:`find_zones`: every option checked against :data:`ZONING_CONSTRAINTS`."""
-    if network.n_nodes == 0:
-        raise parameter_error("network", "a network of at least one node", network)
-    spec = _check_spec(zones, network.n_nodes)
-    checked = check_params(given, ZONING_CONSTRAINTS)
-    if checked["operator"] == "directed" and not network.directed:
-        raise parameter_error(
-            "network",
-            "a directed network for operator='directed' (one read with directed=True, which "
-            "keeps its arcs)",
-            network,
-            shown="an undirected network",
-        )
-    return _Options(
-        spec,
-        checked["operator"],
-        checked["assign"],
-        checked["trees"],
-        checked["dominant"],
-        checked["refine"],
-        checked["eigen_method"],
-        checked["tol"],
-        checked["maxiter"],
-        checked["damping"],
-        check_rng(rng),
-    )
-
-
 def _merge_and_choose_operator(
-    network: Network, rules: ResolvedConstraints, options: _Options, survey: WeightSurvey
+    network: Network, rules: ResolvedConstraints, options: ZoningOptions, survey: WeightSurvey
 ) -> tuple[Merged, str, dict[str, dict[str, Any]]]:
     """Steps 2-3a: merge what must stay together, choose the operator; their decisions."""
     spec = options.spec
@@ -738,7 +626,7 @@ def _no_progress(stage: str) -> None:
     """Stand-in for ``progress=None``: stages pass silently."""
 
 
-def _kept_trees_worth_trying(zoning: Zoning, options: _Options) -> bool:
+def _kept_trees_worth_trying(zoning: Zoning, options: ZoningOptions) -> bool:
     """Whether :func:`find_zones` also zones with the dangling trees kept (step 7).
 
     Only where the ``auto`` tree rule attached trees, the operator is a
