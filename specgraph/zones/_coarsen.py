@@ -111,6 +111,9 @@ class Ladder:
 
     levels: tuple[Level, ...]
     stop: str
+    #: Whether a level paired leftover nodes that share no link (their coarse
+    #: node is not connected: moving it can split a zone of a finer level).
+    paired: bool = False
 
     @property
     def coarsest(self) -> Level:
@@ -305,6 +308,7 @@ def coarsen(
         np.asarray(held, dtype=bool),
     )
     levels: list[Level] = []
+    paired = False
     stop = f"reached {target:,} nodes or fewer"
     while level.n_nodes > target:
         b = level.adjacency
@@ -313,6 +317,7 @@ def coarsen(
         mate = _match(b.indptr, b.indices, b.data, level.volumes, *args, order)
         if np.count_nonzero(mate >= 0) < STALL_SHARE * level.n_nodes:
             _pair_leftovers(b.indptr, b.indices, b.data, mate, *args, order)
+            paired = True
         here, up = _coarser(level, mate)
         if up.n_nodes > MIN_SHRINK * level.n_nodes:
             stop = (
@@ -324,4 +329,4 @@ def coarsen(
         levels.append(here)
         level = up
     levels.append(level)
-    return Ladder(tuple(levels), stop)
+    return Ladder(tuple(levels), stop, paired)
