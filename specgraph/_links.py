@@ -159,13 +159,13 @@ def _first_appearance_order(i: np.ndarray, j: np.ndarray) -> bool:
 
 
 def _arrow_ends(source: Any, target: Any, node_ids: Any) -> LinkEnds | None:
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
     texts = [arrow_text(source), arrow_text(target)]
     ids = None if node_ids is None else arrow_text(node_ids)
     if texts[0] is None or texts[1] is None or (node_ids is not None and ids is None):
-        return None
+        return None  # not Arrow text, or pyarrow (optional) not installed
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
     if any(text.null_count for text in [*texts, *([] if ids is None else [ids])]):
         return None  # missing ids: the Python path words them as pandas does
     if len(texts[0]) != len(texts[1]):

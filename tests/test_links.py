@@ -182,3 +182,26 @@ def test_link_ends_given_at_construction_match_a_lookup() -> None:
     np.testing.assert_array_equal(net.link_ends[1], index.get_indexer(net.link_table["target"]))
     for ends in net.link_ends:
         assert not ends.flags.writeable
+
+
+def test_reading_works_without_pyarrow(tmp_path, monkeypatch) -> None:  # noqa: ANN001
+    """pyarrow is optional (the parquet extra): with it hidden, the Python path reads the
+    same network (a fresh install without the extra failed in the demo)."""
+    import builtins
+
+    from specgraph import read_edges
+
+    path = tmp_path / "e.csv"
+    path.write_text("source,target,weight\na,b,1\nb,c,2\nc,a,3\n")
+    with_arrow = read_edges(path, weight="weight")
+    real_import = builtins.__import__
+
+    def no_pyarrow(name, *args, **kwargs):  # noqa: ANN001, ANN002, ANN003, ANN202
+        if name == "pyarrow" or name.startswith("pyarrow."):
+            raise ImportError(name)
+        return real_import(name, *args, **kwargs)
+
+    monkeypatch.setattr(builtins, "__import__", no_pyarrow)
+    without = read_edges(path, weight="weight")
+    assert list(without.node_ids) == list(with_arrow.node_ids)
+    assert (without.adjacency != with_arrow.adjacency).nnz == 0
