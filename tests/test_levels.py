@@ -220,6 +220,17 @@ def test_multilevel_keeps_every_rule(bounded: bool) -> None:
         assert np.unique(labels[sources]).size == k  # one source per zone
 
 
+def test_multilevel_with_a_lower_bound_below_one_coarse_node() -> None:
+    """``min_size=1`` is smaller than a coarse node: the coarsest zoning gets no lower bound
+    (it once got a bound of 0 and divided by it); every zone still has a node (arithmetic)."""
+    net = gallery.road_like(1500, rng=4)
+    zoning = find_zones(
+        net, 60, assign="multilevel", constraints=ZoneConstraints(min_size=1), rng=0
+    )
+    _checked(net, zoning, 60)
+    assert np.bincount(np.asarray(zoning.labels)).min() >= 1
+
+
 def test_multilevel_refuses_rules_that_cannot_hold() -> None:
     """Three sources and zones of at most 50 nodes on 2,000 nodes: a zone holds one source,
     so three zones cannot hold them all (arithmetic)."""

@@ -184,7 +184,7 @@ def test_link_ends_given_at_construction_match_a_lookup() -> None:
         assert not ends.flags.writeable
 
 
-def test_reading_works_without_pyarrow(tmp_path, monkeypatch) -> None:  # noqa: ANN001
+def test_reading_works_without_pyarrow(tmp_path, monkeypatch) -> None:
     """pyarrow is optional (the parquet extra): with it hidden, the Python path reads the
     same network (a fresh install without the extra failed in the demo)."""
     import builtins
@@ -196,7 +196,7 @@ def test_reading_works_without_pyarrow(tmp_path, monkeypatch) -> None:  # noqa: 
     with_arrow = read_edges(path, weight="weight")
     real_import = builtins.__import__
 
-    def no_pyarrow(name, *args, **kwargs):  # noqa: ANN001, ANN002, ANN003, ANN202
+    def no_pyarrow(name, *args, **kwargs):
         if name == "pyarrow" or name.startswith("pyarrow."):
             raise ImportError(name)
         return real_import(name, *args, **kwargs)

@@ -221,8 +221,10 @@ def _coarse_problem(
     # always come within them exactly; the finest level's rules step moves
     # single nodes and brings every zone within the bounds themselves.
     grain = float(level.sizes.max(initial=0.0))
+    # A lower bound that one coarse node already covers is no bound (None, not 0).
+    low = None if rules.min_size is None else rules.min_size - grain
     coarse_rules = ResolvedConstraints(
-        None if rules.min_size is None else max(0.0, rules.min_size - grain),
+        low if low is not None and low > 0 else None,
         None if rules.max_size is None else rules.max_size + grain,
         level.sizes,
         sources=np.unique(owner[rules.sources]),
