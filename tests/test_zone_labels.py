@@ -359,3 +359,19 @@ def test_pos_dict_faults_are_named() -> None:
         Network.from_networkx(graph, pos={**pos, 2: (0.0, float("nan"))})
     with pytest.raises(ParameterError, match="pos"):
         Network.from_networkx(graph, pos=3)  # type: ignore[arg-type]
+
+
+def test_parquet_zone_columns_of_numbers_and_names(tmp_path: Path) -> None:
+    pytest.importorskip("pyarrow")
+    frame = pd.DataFrame({"node": ["QJ-1", "QJ-2", "QJ-3"], "zone": [4, 0, 4]})
+    frame.to_parquet(tmp_path / "numbers.parquet")
+    assert read_zone_file(tmp_path / "numbers.parquet") == {"QJ-1": 4, "QJ-2": 0, "QJ-3": 4}
+    frame.assign(zone=["Old Quay", "07", "Old Quay"]).to_parquet(tmp_path / "names.parquet")
+    assert read_zone_file(tmp_path / "names.parquet") == {
+        "QJ-1": "Old Quay",
+        "QJ-2": "07",
+        "QJ-3": "Old Quay",
+    }
+    frame.assign(zone=[4, -1, 4]).to_parquet(tmp_path / "negative.parquet")
+    with pytest.raises(InputError, match="negative number"):
+        read_zone_file(tmp_path / "negative.parquet")
