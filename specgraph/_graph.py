@@ -29,6 +29,7 @@ if TYPE_CHECKING:
 __all__ = [
     "GRAPH_LINK_COLUMNS",
     "MISSING_WEIGHT_DEFAULT",
+    "POSITION_EXAMPLES",
     "RENAMED_PREFIX",
     "GraphLinks",
     "read_graph",
@@ -81,6 +82,10 @@ class GraphLinks:
     coordinates: np.ndarray | None
     renamed: dict[str, str]
 
+
+#: Nodes named as examples when a mapping of positions misses some (as many as
+#: :data:`specgraph.diagnostics.EXAMPLES_SHOWN` names; a message stays one line).
+POSITION_EXAMPLES = 5
 
 #: What a graph argument must be: networkx's graph protocol, by duck typing.
 _GRAPH = HasMethods(("edges", "nodes"), "a networkx graph")
@@ -276,7 +281,7 @@ def _refuse_unplaced(nodes: list[Any], positions: Mapping[Any, Any]) -> None:
     """Refuse a mapping of positions that misses nodes of the graph, naming the first few."""
     missing = [node for node in nodes if node not in positions]
     if missing:
-        shown = ", ".join(repr(node) for node in missing[:5])
+        shown = ", ".join(repr(node) for node in missing[:POSITION_EXAMPLES])
         raise InputError(
             f"pos has no position for {len(missing)} of the graph's {len(nodes)} nodes "
             f"(first: {shown}); give every node one (networkx's layouts, such as "
