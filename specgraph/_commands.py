@@ -208,7 +208,9 @@ def _constraints(network: Network, args: argparse.Namespace) -> ZoneConstraints:
         )
     fixed = None
     if getattr(args, "fixed", None):
-        fixed = read_zone_file(args.fixed, node=args.node_col, network=network, option="--fixed")
+        fixed = read_zone_file(
+            args.fixed, node=args.node_col, network=network, option="--fixed", whole_numbers=True
+        )
     by_size = network.sizes is not None and not args.count_nodes
     return ZoneConstraints(
         min_size=args.min_size,

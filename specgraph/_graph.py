@@ -13,13 +13,13 @@ running back up.
 
 from __future__ import annotations
 
-from collections.abc import Hashable
+from collections.abc import Hashable, Mapping
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from ._validation import HasMethods, check_param
+from ._validation import HasMethods, InstanceOf, NoneOk, Text, check_param
 from .exceptions import InputError
 
 if TYPE_CHECKING:
@@ -29,6 +29,7 @@ if TYPE_CHECKING:
 __all__ = [
     "GRAPH_LINK_COLUMNS",
     "MISSING_WEIGHT_DEFAULT",
+    "POSITION_EXAMPLES",
     "RENAMED_PREFIX",
     "GraphLinks",
     "read_graph",
@@ -82,8 +83,18 @@ class GraphLinks:
     renamed: dict[str, str]
 
 
+#: Nodes named as examples when a mapping of positions misses some (as many as
+#: :data:`specgraph.diagnostics.EXAMPLES_SHOWN` names; a message stays one line).
+POSITION_EXAMPLES = 5
+
 #: What a graph argument must be: networkx's graph protocol, by duck typing.
 _GRAPH = HasMethods(("edges", "nodes"), "a networkx graph")
+#: What ``pos`` may be: a node attribute's name, or a mapping node -> (x, y).
+_POSITIONS = [
+    Text(),
+    InstanceOf((Mapping,), "a mapping from each node to its (x, y)", by_type=True),
+    NoneOk(),
+]
 
 
 def read_graph(
@@ -92,7 +103,7 @@ def read_graph(
     weight: str | None,
     distance: bool,
     size: str | None,
-    pos: str | None,
+    pos: str | Mapping[Any, Any] | None,
     missing_weight: float | None,
 ) -> GraphLinks:
     """Read the edges, edge attributes and node attributes of a networkx graph.
@@ -106,8 +117,12 @@ def read_graph(
         Edge attribute holding the weight; ``None`` gives every edge 1.
     distance : bool
         The weight is a length: it must then be ``> 0`` (an affinity may be 0).
-    size, pos : str or None
-        Node attributes holding sizes and ``(x, y)`` positions.
+    size : str or None
+        Node attribute holding sizes.
+    pos : str, mapping or None
+        Node attribute holding ``(x, y)`` positions, or a mapping from every
+        node to its ``(x, y)`` (what ``networkx.spring_layout`` returns;
+        positions of nodes not in the graph are not used).
     missing_weight : float or None
         Weight of an edge without the ``weight`` attribute; ``None`` refuses
         such an edge, naming it.
@@ -126,6 +141,7 @@ def read_graph(
         The message names the edge (its number and ends) or the node.
     """
     check_param(graph, "graph", [_GRAPH])
+    check_param(pos, "pos", _POSITIONS)
     import pandas as pd
 
     source, target, values, rows = [], [], [], []
@@ -139,8 +155,8 @@ def read_graph(
     columns = list(dict.fromkeys(key for row in rows for key in row))
     nodes = list(graph.nodes)
     return GraphLinks(
-        source=np.asarray(source, dtype=object),
-        target=np.asarray(target, dtype=object),
+        source=_objects(source),
+        target=_objects(target),
         values=np.asarray(values, dtype=np.float64),
         extra=pd.DataFrame(rows, columns=columns) if columns else None,
         node_ids=nodes,
@@ -148,6 +164,15 @@ def read_graph(
         coordinates=None if pos is None else _node_positions(graph, nodes, pos),
         renamed=renamed,
     )
+
+
+def _objects(items: list[Any]) -> np.ndarray:
+    """A one-dimensional object array of ``items``, tuple nodes kept whole
+    (``numpy.asarray`` would make a list of pairs a two-column array)."""
+    array = np.empty(len(items), dtype=object)
+    for row, item in enumerate(items):
+        array[row] = item
+    return array
 
 
 def _edge_value(
@@ -229,10 +254,17 @@ def _node_sizes(graph: nx.Graph, nodes: list[Any], attribute: str) -> np.ndarray
     return sizes
 
 
-def _node_positions(graph: nx.Graph, nodes: list[Any], attribute: str) -> np.ndarray:
+def _node_positions(
+    graph: nx.Graph, nodes: list[Any], attribute: str | Mapping[Any, Any]
+) -> np.ndarray:
+    if isinstance(attribute, Mapping):
+        _refuse_unplaced(nodes, attribute)
     xy = np.empty((len(nodes), 2))
     for row, node in enumerate(nodes):
-        value = _node_value(graph, node, attribute)
+        if isinstance(attribute, Mapping):
+            value, where = attribute[node], "its position in pos"
+        else:
+            value, where = _node_value(graph, node, attribute), f"attribute {attribute!r}"
         try:
             x, y = value
             xy[row] = float(x), float(y)
@@ -240,7 +272,18 @@ def _node_positions(graph: nx.Graph, nodes: list[Any], attribute: str) -> np.nda
             xy[row] = np.nan
         if not np.all(np.isfinite(xy[row])):
             raise InputError(
-                f"node {node!r}: attribute {attribute!r} must be a pair of finite numbers "
-                f"(x, y); got {value!r}"
+                f"node {node!r}: {where} must be a pair of finite numbers (x, y); got {value!r}"
             )
     return xy
+
+
+def _refuse_unplaced(nodes: list[Any], positions: Mapping[Any, Any]) -> None:
+    """Refuse a mapping of positions that misses nodes of the graph, naming the first few."""
+    missing = [node for node in nodes if node not in positions]
+    if missing:
+        shown = ", ".join(repr(node) for node in missing[:POSITION_EXAMPLES])
+        raise InputError(
+            f"pos has no position for {len(missing)} of the graph's {len(nodes)} nodes "
+            f"(first: {shown}); give every node one (networkx's layouts, such as "
+            "spring_layout(G), do), or pass pos=None"
+        )

@@ -16,11 +16,16 @@ its edge; both read the graph with the same code); and the way back: :func:`zone
 :func:`annotate_graph` and :func:`zones_frame`.
 
 Node ids are compared as strings, as everywhere in specgraph: a graph node
-``7`` is the network's node ``"7"``.
+``7`` is the network's node ``"7"``. A network read from a graph keeps the
+graph's own node objects (:attr:`Network.graph_nodes`), and the way back
+gives them: :func:`zone_sets` of a graph with integer or tuple nodes holds
+those integers or tuples, so ``networkx.community.modularity(graph,
+zone_sets(zoning))`` works on it.
 """
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -46,7 +51,7 @@ def network_from_graph(
     weight: str | None = "weight",
     distance: bool = False,
     size: str | None = None,
-    pos: str | None = None,
+    pos: str | Mapping[Any, Any] | None = None,
 ) -> Network:
     """Build a :class:`~specgraph.Network` from a networkx graph, keeping its edge attributes.
 
@@ -93,8 +98,8 @@ def network_from_graph(
 
 
 @validate_params({"zoning": _ZONING})
-def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
-    """The zones as node sets: item ``z`` holds the ids of zone ``z``.
+def zone_sets(zoning: Zoning) -> list[frozenset[Any]]:
+    """The zones as node sets: item ``z`` holds the nodes of zone ``z``.
 
     Parameters
     ----------
@@ -102,19 +107,33 @@ def zone_sets(zoning: Zoning) -> list[frozenset[str]]:
 
     Returns
     -------
-    list of frozenset of str
+    list of frozenset
         One set per zone, zones in number order (descending size); the sets
         are disjoint and cover every node, the form networkx's
-        ``community.modularity`` and ``is_partition`` take.
+        ``community.modularity`` and ``is_partition`` take. For a network
+        read from a networkx graph the sets hold the graph's own node
+        objects (integers, tuples...: :attr:`Network.graph_nodes`); for any
+        other network, the node ids (text).
 
     Examples
     --------
-    >>> from specgraph import find_zones, gallery
-    >>> sets = zone_sets(find_zones(gallery.barbell(3), 2, rng=0))
-    >>> [sorted(s) for s in sets]
-    [['0', '1', '2'], ['3', '4', '5']]
+    >>> import networkx as nx
+    >>> from specgraph import find_zones
+    >>> net = Network.from_links(["a", "b", "c", "d"], ["b", "c", "d", "e"])
+    >>> [sorted(s) for s in zone_sets(find_zones(net, 2, rng=0))]
+    [['a', 'b', 'c'], ['d', 'e']]
+    >>> g = nx.barbell_graph(3, 0)
+    >>> zoning = find_zones(network_from_graph(g, weight=None), 2, rng=0)
+    >>> [sorted(s) for s in zone_sets(zoning)]
+    [[0, 1, 2], [3, 4, 5]]
+    >>> round(nx.community.modularity(g, zone_sets(zoning)), 6)
+    0.357143
     """
+    graph_nodes = zoning.network.graph_nodes
     ids = zoning.network.node_ids
+    if graph_nodes is not None:
+        ids = np.empty(len(graph_nodes), dtype=object)
+        ids[:] = graph_nodes  # element by element: tuple nodes stay tuples
     order = np.argsort(zoning.labels, kind="stable")
     bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
     return [

@@ -291,6 +291,12 @@ class Network:
     def component_labels(self) -> np.ndarray:
         return self._components[1]
 
+    @property
+    def graph_nodes(self) -> tuple[Any, ...] | None:
+        """The graph's own node objects in row order, for a network read from networkx
+        (:meth:`from_networkx`); None otherwise (sub-networks do not keep them)."""
+        return getattr(self, "_graph_nodes", None)
+
     @cached_property
     def index_of(self) -> Mapping[str, int]:
         """Mapping from node id to row index."""
@@ -323,12 +329,14 @@ class Network:
         dst = index.get_indexer(table["target"].to_numpy(dtype=object))
         return _readonly(src.astype(np.int64)), _readonly(dst.astype(np.int64))
 
-    def __reduce__(self) -> tuple[Any, tuple[Any, ...]]:
+    def __reduce__(self) -> tuple[Any, tuple[Any, ...], dict[str, Any] | None]:
         """Pickle by the constructor's arguments (for joblib, Dask and multiprocessing).
 
         ``notes`` is held read-only (a mapping proxy, which pickle refuses);
-        it travels as a plain dict and the constructor checks everything again.
+        it travels as a plain dict and the constructor checks everything again;
+        the graph's node objects (:attr:`graph_nodes`) travel as state.
         """
+        state = {"_graph_nodes": self.graph_nodes} if self.graph_nodes is not None else None
         return (
             _rebuild_network,
             (
@@ -340,6 +348,7 @@ class Network:
                 dict(self.notes),
                 self.arcs,
             ),
+            state,
         )
 
     def __repr__(self) -> str:
@@ -492,7 +501,7 @@ class Network:
         weight: str | None = "weight",
         distance: bool = False,
         size: str | None = None,
-        pos: str | None = None,
+        pos: str | Mapping[Any, Any] | None = None,
         missing_weight: float | None = MISSING_WEIGHT_DEFAULT,
     ) -> Network:
         """Build a network from a networkx graph (directed graphs are made undirected).
@@ -506,8 +515,10 @@ class Network:
         Parameters
         ----------
         graph : networkx.Graph
-            Any networkx graph; node labels become string ids. Multigraphs'
-            parallel edges are summed (the input policy of this class).
+            Any networkx graph; node labels become string ids (the graph's
+            own node objects are kept in :attr:`graph_nodes`, so zonings
+            give them back). Multigraphs' parallel edges are summed (the
+            input policy of this class).
         weight : str or None, default="weight"
             Edge attribute holding the weight (finite, >= 0). ``None`` gives
             every link weight 1.
@@ -516,8 +527,9 @@ class Network:
             :func:`affinity_from_distance`.
         size : str, optional
             Node attribute holding node sizes (finite, >= 0).
-        pos : str, optional
-            Node attribute holding ``(x, y)`` coordinates.
+        pos : str or mapping, optional
+            Node attribute holding ``(x, y)`` coordinates, or a mapping from
+            every node to its ``(x, y)``, such as ``nx.spring_layout(graph)``.
         missing_weight : float or None, default=1.0
             Weight of an edge without the ``weight`` attribute (networkx's
             own convention is 1); ``None`` refuses such an edge, naming it
@@ -534,7 +546,7 @@ class Network:
             A weight, size or position is missing (where refused) or not a
             finite number in range; the message names the edge or node.
         ParameterError
-            ``graph`` is not a networkx graph.
+            ``graph`` is not a networkx graph, or ``pos`` neither a name nor a mapping.
 
         Examples
         --------
@@ -563,7 +575,7 @@ class Network:
             values, notes["weight_conversion"] = affinity_from_distance(values)
         if links.renamed:
             notes["renamed_attributes"] = dict(links.renamed)
-        return cls.from_links(
+        network = cls.from_links(
             links.source,
             links.target,
             values,
@@ -573,6 +585,8 @@ class Network:
             extra=links.extra,
             notes=notes,
         )
+        object.__setattr__(network, "_graph_nodes", tuple(links.node_ids))
+        return network
 
 
 def network_from_ends(

@@ -1050,10 +1050,8 @@ def test_score_duplicate_node(capsys: pytest.CaptureFixture[str], tmp_path: Path
     )
 
 
-@pytest.mark.parametrize(
-    "cell", ["north", "-1", "0.5", ""], ids=["text", "negative", "half", "empty"]
-)
-def test_score_zone_not_whole(
+@pytest.mark.parametrize("cell", ["-1", "", "  "], ids=["negative", "empty", "spaces"])
+def test_score_zone_negative_or_empty(
     capsys: pytest.CaptureFixture[str], tmp_path: Path, cell: str
 ) -> None:
     edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
@@ -1066,6 +1064,20 @@ def test_score_zone_not_whole(
         zones,
         names=["districts.csv", "line 4", "column 'zone' (column 2)"],
     )
+
+
+@pytest.mark.parametrize("cell", ["north", "0.5", "00"], ids=["text", "half", "padded"])
+def test_score_zone_text_is_a_name(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, cell: str
+) -> None:
+    """A zone that is not a plain whole number makes every zone a name, written back as is."""
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    zones = write(tmp_path, "districts.csv", ZONES_OK.replace("J3,0", f"J3,{cell}"))
+    out = tmp_path / "out"
+    code, err = run(capsys, out, "score", edges, zones)
+    assert code == 0, err
+    table = pd.read_csv(out / "zone_scores.csv", dtype=str, keep_default_na=False)
+    assert cell in table["zone"].tolist()
 
 
 def test_score_missing_zone_column(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:

@@ -68,7 +68,8 @@ def test_score_partial_zoning_reports_unassigned(
     [
         ("node,zone\nBJ-000,0\nXX-1,1\n", ["not nodes", "XX-1"]),
         ("node,zone\nBJ-000,0\nBJ-000,1\n", ["listed again"]),
-        ("node,zone\nBJ-000,0\nBJ-001,one\n", ["not a whole number"]),
+        ("node,zone\nBJ-000,0\nBJ-001,-1\n", ["negative number", "line 3"]),
+        ("node,zone\nBJ-000,North\nBJ-001,\n", ["zone is empty", "line 3"]),
     ],
 )
 def test_score_bad_zone_files_exit_2(

@@ -52,12 +52,24 @@ def test_zone_file_reads_whole_numbers(tmp_path: Path) -> None:
     assert read_zone_file(path) == {"A": 0, "B": 2, "C": 2}
 
 
+def test_zone_file_reads_names_exactly(tmp_path: Path) -> None:
+    """Any text is a zone label, compared exactly: "7" and "07" are two zones."""
+    path = write(tmp_path, "z.csv", "node,zone\nA,North Heights\nB,07\nC,7\nD,1.5\n")
+    assert read_zone_file(path) == {"A": "North Heights", "B": "07", "C": "7", "D": "1.5"}
+    # One zero-padded code makes every label text, the plain numbers included.
+    path = write(tmp_path, "y.csv", "node,zone\nA,07\nB,7\n")
+    assert read_zone_file(path) == {"A": "07", "B": "7"}
+    # Rules such as --fixed still read whole numbers, any way written.
+    assert read_zone_file(path, whole_numbers=True) == {"A": 7, "B": 7}
+
+
 @pytest.mark.parametrize(
     ("body", "line", "column", "words"),
     [
         ("A,0\nA,1\n", 3, "node", "listed again"),
-        ("A,0\nB,1.5\n", 3, "zone", "not a whole number"),
-        ("A,0\nB,-1\n", 3, "zone", "not a whole number"),
+        ("A,0\nB,-1\n", 3, "zone", "negative number"),
+        ("A,North\n\nB,\n", 4, "zone", "is empty"),
+        ("A,North\nB,   \n", 3, "zone", "is empty"),
         ("A,0\nB,\n", 3, "zone", "is empty"),
         ("A,0\n,1\n", 3, "node", "node id is empty"),
     ],
@@ -66,9 +78,17 @@ def test_zone_file_errors(tmp_path: Path, body: str, line: int, column: str, wor
     path = write(tmp_path, "z.csv", "node,zone\n" + body)
     with pytest.raises(InputError) as info:
         read_zone_file(path)
+    assert Path(str(info.value.path)).name == "z.csv"
     assert info.value.line == line
     assert info.value.column == column
     assert words in str(info.value)
+
+
+def test_zone_file_whole_numbers_refuses_text(tmp_path: Path) -> None:
+    path = write(tmp_path, "z.csv", "node,zone\nA,0\nB,1.5\n")
+    with pytest.raises(InputError, match="not a whole number") as info:
+        read_zone_file(path, whole_numbers=True)
+    assert info.value.line == 3
 
 
 def test_flagged_links_from_edge_table(tmp_path: Path) -> None:

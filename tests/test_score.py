@@ -347,8 +347,12 @@ def test_labels_from_mapping_refuses_unknown_ids_with_count_and_path():
 
 
 def test_labels_from_mapping_refuses_bad_zones():
-    with pytest.raises(InputError, match="integers >= 0"):
+    with pytest.raises(InputError, match="zone numbers >= 0"):
         labels_from_mapping(gallery.path(3), {"0": -1})
+    with pytest.raises(InputError, match="all text or all whole numbers"):
+        labels_from_mapping(gallery.path(3), {"0": 1, "1": "North"})
+    with pytest.raises(InputError, match="non-empty"):
+        labels_from_mapping(gallery.path(3), {"0": ""})
 
 
 def test_importance_is_pagerank_summed_per_zone() -> None:

@@ -18,9 +18,9 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, min_weight_full_bipartite_matching
 
-from .. import _figures
+from .._labels import code_labels
 from .._validation import Array, check_param, parameter_error
-from ..exceptions import InputError
+from ..exceptions import InputError, ParameterError
 from ._score import EXAMPLES_SHOWN
 
 __all__ = [
@@ -176,8 +176,8 @@ def variation_of_information(counts: np.ndarray) -> float:
 _PER_NODE = "finite numbers >= 0, one per node"
 
 
-def _check_labels(labels: Any, name: str) -> np.ndarray:
-    return _figures.check_labels(labels, name=name, unassigned=True)
+def _check_labels(labels: Any, name: str) -> tuple[np.ndarray, np.ndarray | None]:
+    return code_labels(labels, name=name, unassigned=True)
 
 
 def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
@@ -185,10 +185,12 @@ def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
 
     Parameters
     ----------
-    labels_a, labels_b : array-like of int, shape (n,)
-        Zone of each node in zonings A and B (any integers ``>= 0``, kept as
-        given), ``-1`` for a node in no zone; node ``i`` is the same node in
-        both. Nodes unassigned in either are left out and counted.
+    labels_a, labels_b : array-like of int or str, shape (n,)
+        Zone of each node in zonings A and B, kept as given: any integers
+        ``>= 0`` (``-1`` for a node in no zone) or text labels such as
+        district names (``None`` for a node in no zone); node ``i`` is the
+        same node in both. Nodes unassigned in either are left out and
+        counted.
     weights : array-like of float, shape (n,), optional
         Node sizes (for example connections served). When given, the overlap
         table gains a ``size`` column and shares, splits, merges and the
@@ -236,8 +238,8 @@ def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
     >>> result.matched[["zone_a", "zone_b", "nodes"]].to_numpy().tolist()
     [[0, 5, 2], [1, 7, 2]]
     """
-    a = _check_labels(labels_a, "labels_a")
-    b = _check_labels(labels_b, "labels_b")
+    a, names_a = _check_labels(labels_a, "labels_a")
+    b, names_b = _check_labels(labels_b, "labels_b")
     if b.size != a.size:
         expected = f"the length of labels_a ({a.size})"
         raise parameter_error("labels_b", expected, labels_b, shown=str(b.size), verb="have")
@@ -252,6 +254,7 @@ def compare(labels_a: Any, labels_b: Any, *, weights: Any = None) -> Comparison:
         None if w is None else w[in_a & in_b],
         only_a=np.flatnonzero(in_a & ~in_b),
         only_b=np.flatnonzero(in_b & ~in_a),
+        names=(names_a, names_b),
     )
 
 
@@ -263,8 +266,10 @@ def compare_frames(mapping_a: Mapping[str, int], mapping_b: Mapping[str, int]) -
 
     Parameters
     ----------
-    mapping_a, mapping_b : mapping of str to int
-        Node id to zone number (``>= 0``), as from :func:`specgraph.io.read_zone_file`.
+    mapping_a, mapping_b : mapping of str to int or str
+        Node id to zone: whole numbers (``>= 0``) or text labels (district
+        names), as from :func:`specgraph.io.read_zone_file`; each mapping may
+        use either, the two need not agree.
 
     Returns
     -------
@@ -273,16 +278,20 @@ def compare_frames(mapping_a: Mapping[str, int], mapping_b: Mapping[str, int]) -
     Raises
     ------
     InputError
-        When the two mappings share no node, or a zone is not an integer ``>= 0``.
+        When the two mappings share no node, or a zone is neither an integer
+        ``>= 0`` nor non-empty text.
 
     Examples
     --------
     >>> result = compare_frames({"p": 1, "q": 1, "r": 2}, {"q": 4, "r": 5, "s": 5})
     >>> result.nodes_compared, result.examples_only_in_a, result.examples_only_in_b
     (2, ('p',), ('s',))
+    >>> named = compare_frames({"p": "North", "q": "South"}, {"p": 0, "q": 1})
+    >>> named.matched[["zone_a", "zone_b"]].to_numpy().tolist()
+    [['North', 0], ['South', 1]]
     """
-    ids_a, zones_a = _mapping_arrays(mapping_a, "mapping_a")
-    ids_b, zones_b = _mapping_arrays(mapping_b, "mapping_b")
+    ids_a, zones_a, names_a = _mapping_arrays(mapping_a, "mapping_a")
+    ids_b, zones_b, names_b = _mapping_arrays(mapping_b, "mapping_b")
     where_b = pd.Index(ids_b).get_indexer(ids_a)
     common = where_b >= 0
     in_a = np.zeros(ids_b.size, dtype=bool)
@@ -298,15 +307,23 @@ def compare_frames(mapping_a: Mapping[str, int], mapping_b: Mapping[str, int]) -
         None,
         only_a=ids_a[~common],
         only_b=ids_b[~in_a],
+        names=(names_a, names_b),
     )
 
 
-def _mapping_arrays(mapping: Mapping[str, int], name: str) -> tuple[np.ndarray, np.ndarray]:
+def _mapping_arrays(
+    mapping: Mapping[str, Any], name: str
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """Ids, zone codes and zone names (None for whole numbers) of a node-to-zone mapping."""
     ids = np.asarray([str(key) for key in mapping], dtype=object)
-    zones = np.asarray(list(mapping.values()))
-    if zones.size and (not np.issubdtype(zones.dtype, np.integer) or zones.min() < 0):
-        raise InputError(f"{name} must map node ids to integer zones >= 0")
-    return ids, zones.astype(np.int64)
+    try:
+        codes, names = code_labels(np.asarray(list(mapping.values()), dtype=object), name=name)
+    except ParameterError as error:
+        why = str(error).rstrip(".")
+        raise InputError(
+            f"{name} must map node ids to zones: whole numbers >= 0 or non-empty text ({why})"
+        ) from None
+    return ids, codes, names
 
 
 def _compare_common(
@@ -316,12 +333,17 @@ def _compare_common(
     *,
     only_a: np.ndarray,
     only_b: np.ndarray,
+    names: tuple[np.ndarray | None, np.ndarray | None] = (None, None),
 ) -> Comparison:
-    """Every figure of :class:`Comparison` from the labels of the common nodes."""
+    """Every figure of :class:`Comparison` from the label codes of the common nodes
+    (``names``: the text label of each code of A and of B, None for whole numbers)."""
     if a.size == 0:
         raise InputError("no node is in a zone in both zonings; nothing to compare")
     zones_a, ia = np.unique(a, return_inverse=True)
     zones_b, ib = np.unique(b, return_inverse=True)
+    # Codes of text labels are in sorted text order, so the tables list names in that order.
+    shown_a = zones_a if names[0] is None else names[0][zones_a]
+    shown_b = zones_b if names[1] is None else names[1][zones_b]
     # One sort of the pair codes gives the nonzero cells of the contingency table.
     codes, cell_of = np.unique(ia * zones_b.size + ib, return_inverse=True)
     row, col = codes // zones_b.size, codes % zones_b.size
@@ -330,7 +352,7 @@ def _compare_common(
     with np.errstate(divide="ignore", invalid="ignore"):
         share_a = np.nan_to_num(amount / np.bincount(row, weights=amount)[row])
         share_b = np.nan_to_num(amount / np.bincount(col, weights=amount)[col])
-    overlap = pd.DataFrame({"zone_a": zones_a[row], "zone_b": zones_b[col], "nodes": nodes})
+    overlap = pd.DataFrame({"zone_a": shown_a[row], "zone_b": shown_b[col], "nodes": nodes})
     if w is not None:
         overlap["size"] = amount
     overlap["share_of_a"] = share_a
@@ -374,7 +396,7 @@ def _pieces(overlap: pd.DataFrame, whole: str, part: str, share: str) -> pd.Data
     spans = list(zip(starts.tolist(), ends.tolist(), strict=True))
     return pd.DataFrame(
         {
-            whole: owners[starts].astype(np.int64),
+            whole: owners[starts],
             "pieces": (ends - starts).astype(np.int64),
             f"zones_{part[-1]}": np.asarray(
                 [", ".join(map(str, parts[i:j])) for i, j in spans], dtype=object

@@ -48,12 +48,14 @@ import pandas as pd
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
+from .._labels import code_labels
 from .._validation import check_choice, check_int, check_positive_float, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
 from ._cuts import CutStructure, cut_structure
 from ._groups import STACKED_LIMIT, _Groups, _stacked_laplacians
+from ._linkcols import carried_link_columns
 from ._quality import check_labels
 from ._resistance import RESISTANCE_METHODS, SKETCH_ROWS, LinkResistances, _resistances
 from ._spectral import cheeger_bounds
@@ -140,7 +142,8 @@ class Robustness:
         conductance), ``bridges``, ``articulation_nodes``. Eigenvalues are
         NaN for a single-node component.
     zones : pandas.DataFrame or None
-        With ``labels``: one row per zone ``0..k-1``: ``zone``, ``nodes``,
+        With ``labels``: one row per zone ``0..k-1`` (per name, in sorted
+        text order, for text labels): ``zone``, ``nodes``,
         ``size``, ``pieces`` (connected pieces of the zone's induced
         sub-network), ``connected``, ``algebraic_connectivity``,
         ``normalized_connectivity``, ``cheeger_low``, ``cheeger_high``; 0 for
@@ -149,7 +152,8 @@ class Robustness:
         Every bridge, most harmful first: ``source``, ``target``, ``weight``,
         ``cut_nodes``, ``cut_size`` (what its failure cuts off, see
         :class:`CutStructure`), ``cut_end`` (the end on the cut-off side),
-        ``component``.
+        ``component``, then the columns carried from the input link table
+        (a pipe or line id; see :func:`carried_link_columns`).
     nodes : pandas.DataFrame
         Every articulation node, most harmful first: ``node``, ``pieces``,
         ``cut_nodes``, ``cut_size`` (all pieces but the largest),
@@ -161,7 +165,8 @@ class Robustness:
         (:math:`|u_2(i) - u_2(j)|` for the unit Fiedler vector of ``L`` on
         the component; arbitrary within the eigenspace when
         :math:`\\lambda_2` is repeated), ``estimated`` (leverage from the
-        sketch). Ranked bridges first by what they cut off, then by leverage.
+        sketch), then the columns carried from the input link table. Ranked
+        bridges first by what they cut off, then by leverage.
     record : dict
         Counts, methods and residuals, for the run record.
     """
@@ -231,8 +236,10 @@ def robustness(
     Parameters
     ----------
     network : Network
-    labels : ndarray of int, shape (n_nodes,), optional
-        Zone of each node (from 0); adds per-zone algebraic connectivity.
+    labels : array-like of int or str, shape (n_nodes,), optional
+        Zone of each node: numbers from 0, or text labels such as district
+        names (kept as given in :attr:`Robustness.zones`, in sorted text
+        order); adds per-zone algebraic connectivity.
     top : int, default=DEFAULT_TOP
         Bottleneck links to list, ``>= 0``.
     rng : None, int or numpy.random.Generator
@@ -288,7 +295,7 @@ def robustness(
     check_choice(eigen_method, "eigen_method", METHODS)
     sketch_rows = check_int(sketch_rows, "sketch_rows", minimum=1)
     generator = check_rng(rng)
-    zone_labels = None if labels is None else check_labels(network, labels)
+    zone_labels, zone_names = (None, None) if labels is None else _zone_codes(network, labels)
 
     cuts = cut_structure(network)
     groups = _Groups.of(network.component_labels, network.n_components)
@@ -303,8 +310,16 @@ def robustness(
     zone_spectra: list[_Spectra] = []
     if zone_labels is not None:
         zones, zone_spectra = _zone_table(network, zone_labels, tol, generator, eigen_method)
+        if zone_names is not None:
+            zones["zone"] = zone_names[zones["zone"].to_numpy()]
 
     ids = network.node_ids
+    bridges = _bridge_table(network, cuts)
+    links = _link_table(ids, cuts, resistances, combinatorial.vector, top)
+    carried, renamed = carried_link_columns(
+        network, (bridges, links), taken=(*bridges.columns, *links.columns)
+    )
+    bridges, links = carried
     record = {
         "bridges": cuts.n_bridges,
         "articulation_nodes": int(cuts.articulation.size),
@@ -320,18 +335,33 @@ def robustness(
         ),
         "tol": tol,
     }
+    if renamed:
+        record["renamed_link_columns"] = renamed
     return Robustness(
         algebraic_connectivity=_whole(network, combinatorial.values),
         normalized_connectivity=_whole(network, normalized.values),
         components=_component_table(network, cuts, combinatorial.values, normalized.values),
         zones=zones,
-        bridges=_bridge_table(network, cuts),
+        bridges=bridges,
         nodes=_node_table(network, cuts),
-        links=_link_table(ids, cuts, resistances, combinatorial.vector, top),
+        links=links,
         record=record,
         structure=cuts,
         node_ids=ids,
     )
+
+
+def _zone_codes(network: Network, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
+    """Zones ``0..k-1`` of each node, and the user's name of each (None for zone numbers).
+
+    Zone numbers are checked as before (every node in a zone numbered from 0;
+    a number with no node gets a row of NaN); text labels are coded in sorted
+    text order (:func:`specgraph._labels.code_labels`).
+    """
+    codes, names = code_labels(labels, n_nodes=network.n_nodes)
+    if names is None:
+        return check_labels(network, codes), None
+    return codes, names
 
 
 def _whole(network: Network, values: np.ndarray) -> float:

@@ -10,8 +10,10 @@ so a figure does not change when an unrelated part of the network is left
 unassigned, and modularity sums over the zones only (the outside set has no
 term).
 
-Zone numbers are the user's: they need not start at 0 nor be consecutive, and
-every table keeps them. Every figure comes from the engine of
+Zone labels are the user's: numbers that need not start at 0 nor be
+consecutive, or names of any text (a district's name, ``"DMA-07"``; ``None``
+for a node in no zone), and every table keeps them as given (names listed in
+sorted text order; see :mod:`specgraph._labels`). Every figure comes from the engine of
 :mod:`specgraph._figures` that :func:`~specgraph.diagnostics.zone_table` uses too
 (a few passes over the adjacency, no sort), so scoring costs little next to an
 eigen-solve; the optional eigengap is the one costly part. ``UNASSIGNED`` is
@@ -30,9 +32,10 @@ import pandas as pd
 
 from .. import _figures
 from .._figures import UNASSIGNED
+from .._labels import code_labels, named
 from .._validation import check_choice, check_positive_float, check_rng, parameter_error
 from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
-from ..exceptions import InputError
+from ..exceptions import InputError, ParameterError
 from ..network import Network
 from ..operators import laplacian
 from ..walks import DEFAULT_DAMPING, stationary_distribution
@@ -124,8 +127,8 @@ class Scorecard:
     Attributes
     ----------
     zones : pandas.DataFrame
-        One row per zone, ordered by zone number, with columns ``zone`` (the
-        user's number), ``nodes``, ``size``, ``internal_weight``,
+        One row per zone, ordered by zone number (or name, in text order),
+        with columns ``zone`` (the user's number or name), ``nodes``, ``size``, ``internal_weight``,
         ``boundary_weight``, ``boundary_links``, ``conductance``,
         ``ncut_share``, ``modularity_share``, ``connected``, ``volume``,
         ``importance`` (when computed), then ``sources`` when sources were
@@ -159,23 +162,26 @@ class Scorecard:
 
 
 def labels_from_mapping(
-    network: Network, mapping: Mapping[str, int], *, path: str | Path | None = None
+    network: Network, mapping: Mapping[str, Any], *, path: str | Path | None = None
 ) -> tuple[np.ndarray, LabelCoverage]:
     """Turn a node-to-zone mapping into one label per network node.
 
     Parameters
     ----------
     network : Network
-    mapping : mapping of str to int
-        Node id to zone number (``>= 0``), for example from
-        :func:`specgraph.io.read_zone_file`.
+    mapping : mapping of str to int or str
+        Node id to zone: all whole numbers (``>= 0``) or all text (a
+        district's name), for example from :func:`specgraph.io.read_zone_file`.
     path : str or Path, optional
         The file the mapping came from, named in error messages.
 
     Returns
     -------
-    labels : ndarray of int64, shape (n_nodes,)
-        Zone of each node, ``-1`` for nodes absent from the mapping.
+    labels : ndarray, shape (n_nodes,)
+        Zone of each node: int64 with ``-1`` for nodes absent from the mapping
+        when the zones are whole numbers; object (the text labels) with
+        ``None`` for absent nodes when they are text. Every function that
+        takes labels takes either.
     coverage : LabelCoverage
         How many network nodes the mapping leaves unassigned, with examples.
 
@@ -183,7 +189,8 @@ def labels_from_mapping(
     ------
     InputError
         When ids of the mapping are not network nodes (the message gives their
-        number and the first few), or a zone is not an integer ``>= 0``.
+        number and the first few), or a zone is neither a whole number ``>= 0``
+        nor non-empty text (or the zones mix the two).
 
     Examples
     --------
@@ -191,16 +198,15 @@ def labels_from_mapping(
     >>> labels, coverage = labels_from_mapping(gallery.path(4), {"0": 7, "1": 7, "3": 2})
     >>> labels.tolist(), coverage.unassigned, coverage.unassigned_examples
     ([7, 7, -1, 2], 1, ('2',))
+    >>> labels_from_mapping(gallery.path(3), {"0": "North", "1": "DMA-07"})[0].tolist()
+    ['North', 'DMA-07', None]
     """
     if not mapping:
         raise InputError(
             "the zone table has no rows; give one row per node with its zone", path=path
         )
     ids = np.asarray([str(key) for key in mapping], dtype=object)
-    zones = np.asarray(list(mapping.values()))
-    if zones.size and (not np.issubdtype(zones.dtype, np.integer) or zones.min() < 0):
-        bad = zones[0] if not np.issubdtype(zones.dtype, np.integer) else zones.min()
-        raise InputError(f"zones must be integers >= 0; got {bad!r}", path=path)
+    codes, names = _mapping_codes(list(mapping.values()), path)
     rows = _rows_of(network, ids)
     unknown = np.flatnonzero(rows < 0)
     if unknown.size:
@@ -211,21 +217,33 @@ def labels_from_mapping(
             path=path,
         )
     labels = np.full(network.n_nodes, UNASSIGNED, dtype=np.int64)
-    labels[rows] = zones
+    labels[rows] = codes
     missing = np.flatnonzero(labels == UNASSIGNED)
     coverage = LabelCoverage(
         listed=int(ids.size),
         unassigned=int(missing.size),
         unassigned_examples=tuple(network.node_ids[missing[:EXAMPLES_SHOWN]].tolist()),
     )
-    return labels, coverage
+    return named(labels, names), coverage
 
 
-def _check_user_labels(network: Network, labels: Any) -> np.ndarray:
-    labels = _figures.check_labels(labels, n_nodes=network.n_nodes, unassigned=True)
-    if not np.any(labels >= 0):
+def _mapping_codes(zones: list[Any], path: str | Path | None) -> tuple[np.ndarray, Any]:
+    """Codes and names (:func:`specgraph._labels.code_labels`) of a mapping's zones, or the
+    refusal as an :class:`InputError` naming the file."""
+    try:
+        return code_labels(np.asarray(zones, dtype=object), name="zones")
+    except ParameterError as error:
+        raise InputError(
+            f"{str(error).rstrip('.')} (a zone is a whole number >= 0 or a non-empty name)",
+            path=path,
+        ) from None
+
+
+def _check_user_labels(network: Network, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
+    codes, names = code_labels(labels, n_nodes=network.n_nodes, unassigned=True)
+    if not np.any(codes >= 0):
         raise InputError("labels assign no node to a zone; nothing to score")
-    return labels
+    return codes, names
 
 
 def outlier_flags(table: pd.DataFrame) -> np.ndarray:
@@ -331,9 +349,10 @@ def score(
     Parameters
     ----------
     network : Network
-    labels : array-like of int, shape (n_nodes,)
-        Zone number of each node (any integers ``>= 0``, kept as given), or
-        ``-1`` for a node in no zone. See the module notes for how unassigned
+    labels : array-like of int or str, shape (n_nodes,)
+        Zone of each node, kept as given: any integers ``>= 0`` (``-1`` for a
+        node in no zone), or text labels such as district names (``None``
+        for a node in no zone). See the module notes for how unassigned
         nodes count.
     sources : sequence of str, optional
         Node ids of sources (feeds, substations, depots); each zone's count is
@@ -360,7 +379,8 @@ def score(
     Raises
     ------
     ParameterError
-        For labels of the wrong shape or type, or below ``-1``.
+        For labels of the wrong shape or type, below ``-1``, empty text, or
+        a mix of numbers and text.
     InputError
         When no node is assigned, or a source is not a network node.
     ConvergenceError
@@ -418,13 +438,15 @@ def score(
     >>> round(card.overall["modularity"], 6)  # 2 * (3/7 - (7/14)**2)
     0.357143
     """
-    labels = _check_user_labels(network, labels)
+    codes, names = _check_user_labels(network, labels)
     tol = check_positive_float(tol, "tol")
     check_choice(eigen_method, "eigen_method", METHODS)
     generator = check_rng(rng)
-    assigned = labels >= 0
-    numbers, coded = _with_outside_set(labels, assigned)
+    assigned = codes >= 0
+    numbers, coded = _with_outside_set(codes, assigned)
     k = int(numbers.size)
+    if names is not None:
+        numbers = names[numbers]
     figures = _figures.zone_figures(network, coded, k + 1)
     zones, terms = _zone_frame(network, numbers, figures)
     source_figures = _source_figures(network, sources, coded, k, zones)

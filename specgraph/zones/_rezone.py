@@ -18,6 +18,7 @@ import numpy as np
 from scipy.optimize import linear_sum_assignment
 
 from .._figures import normalized_cut
+from .._labels import code_labels
 from .._validation import Array, Interval, NoneOk, check_param, check_rng, parameter_error
 from ..network import Network
 from ._constraints import refuse_infeasible
@@ -45,9 +46,10 @@ def refine_zoning(
     Parameters
     ----------
     network : Network
-    labels : array of int, shape (n_nodes,)
+    labels : array of int or str, shape (n_nodes,)
         Zone of each node, any integers ``>= 0`` (for example a utility's
-        district numbers); every node needs one.
+        district numbers) or text labels (its district names); every node
+        needs one.
     constraints : ZoneConstraints, optional
         Rules the result must keep (sizes, sources, links that must not be cut,
         fixed nodes, connected zones: the default). Trunk links are not
@@ -65,15 +67,16 @@ def refine_zoning(
     Zoning
         Zones numbered by descending size, as every zoning;
         ``decisions["refinement"]`` holds the normalized cut before and after,
-        the cut after each cycle and ``input_zones``: the input zone number of
-        each output zone (matched by largest overlap).
+        the cut after each cycle and ``input_zones``: the input zone (number
+        or name, as given) of each output zone (matched by largest overlap).
         ``decisions["constraints"]`` says what the rules
         changed in the zoning given. No eigen-solve is run (``solves`` is empty).
 
     Raises
     ------
     ParameterError
-        For labels of the wrong length or not integers ``>= 0``, or trunk links.
+        For labels of the wrong length, neither integers ``>= 0`` nor
+        non-empty text, or trunk links.
     ConstraintError
         When the rules cannot hold (the message says which and why).
 
@@ -94,10 +97,11 @@ def refine_zoning(
     [0, 0, 0, 0, 0, 1, 1, 1, 1, 1]
     >>> zoning.decisions["refinement"]["input_zones"]
     [0, 1]
+    >>> named = refine_zoning(net, ["West"] * 4 + ["East"] * 6, rng=0)
+    >>> named.decisions["refinement"]["input_zones"]
+    ['West', 'East']
     """
-    given = check_param(labels, "labels", [_LABELS])
-    if given.size != network.n_nodes:
-        raise parameter_error("labels", f"one zone per node ({network.n_nodes})", labels)
+    given, names = _given_labels(network, labels)
     max_cycles = check_param(max_cycles, "max_cycles", [Interval(int, 0, None), NoneOk()])
     generator = check_rng(rng)
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
@@ -109,6 +113,8 @@ def refine_zoning(
         )
     refuse_infeasible(network.adjacency, rules)
     inputs, compact = np.unique(given, return_inverse=True)
+    if names is not None:
+        inputs = names[inputs]  # the user's names, in sorted text order
     merged = merge_together(network, rules, rules.keep_pairs)
     ordered, ordered_rules, order = in_id_order(merged.network, merged.rules)
     first = np.full(merged.network.n_nodes, network.n_nodes, dtype=np.int64)
@@ -131,6 +137,17 @@ def refine_zoning(
     }
     parameters = {"constraints": constraint_record(rules), "max_cycles": max_cycles}
     return zoning_of(network, final, [], parameters, decisions, [])
+
+
+def _given_labels(network: Network, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
+    """Codes of the zoning given and the user's names of them (None for zone numbers)."""
+    array = np.asarray(labels)
+    if array.dtype.kind in "OUS" and array.size:
+        return code_labels(array, n_nodes=network.n_nodes)
+    given = check_param(labels, "labels", [_LABELS])
+    if given.size != network.n_nodes:
+        raise parameter_error("labels", f"one zone per node ({network.n_nodes})", labels)
+    return given, None
 
 
 def _record(
