@@ -46,7 +46,7 @@ from __future__ import annotations
 
 from collections.abc import Callable
 from dataclasses import dataclass, replace
-from typing import Any, Protocol
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -82,10 +82,8 @@ ROLE_FRAGMENTS = "fragments"
 FRAGMENT_COLUMNS = ("node", "fragment", "nodes", "size")
 
 
-class ZoneRest(Protocol):
-    """Zones a network under rules with a zone count: :func:`find_zones`' own steps."""
-
-    def __call__(self, network: Network, rules: ResolvedConstraints, spec: Any) -> Zoning: ...
+#: Zones a network under rules with a zone count: :func:`find_zones`' own steps.
+ZoneRest = Callable[[Network, ResolvedConstraints, Any], Zoning]
 
 
 def _largest_count(spec: Any, rules: ResolvedConstraints, n_nodes: int) -> int:
@@ -379,6 +377,7 @@ def fragment_table(zoning: Zoning) -> pd.DataFrame | None:
     Examples
     --------
     >>> from specgraph import Network, find_zones
+    >>> from specgraph.zones import ZoneConstraints
     >>> net = Network.from_links(["a", "b", "c", "x"], ["b", "c", "d", "y"])
     >>> zoning = find_zones(net, 1, constraints=ZoneConstraints(min_size=3))
     >>> fragment_table(zoning).to_numpy().tolist()
