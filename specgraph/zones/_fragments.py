@@ -94,7 +94,7 @@ def _largest_count(spec: Any, rules: ResolvedConstraints, n_nodes: int) -> int:
         return max(spec)
     if rules.sources.size:
         return int(rules.sources.size)  # 'auto' with sources: one zone per source
-    return max(default_candidates(n_nodes))
+    return max(default_candidates(n_nodes), default=1)  # a tiny network: one zone
 
 
 def fragment_limit(total: float, spec: Any, rules: ResolvedConstraints) -> tuple[float, str]:
