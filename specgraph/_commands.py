@@ -30,6 +30,7 @@ from .diagnostics import (
 from .eigen import smallest_eigenpairs
 from .exceptions import InputError, ParameterError
 from .export import (
+    FRAGMENTS_FILE,
     eigen_record,
     eigen_table,
     input_record,
@@ -245,6 +246,7 @@ def _zone_options(args: argparse.Namespace, constraints: ZoneConstraints) -> dic
         "assign": args.assign,
         "trees": args.trees,
         "dominant": args.dominant,
+        "fragments": args.fragments,
         "constraints": constraints,
         "refine": not args.no_refine,
         "tol": args.tol,
@@ -347,6 +349,8 @@ def _zoning_files(
         files.update(zoning_parquet(zoning))
     else:
         stale += [str(Path(name).with_suffix(".parquet")) for name in tables]
+    if FRAGMENTS_FILE not in tables:  # no fragments set aside: no listing of an earlier run
+        stale += [FRAGMENTS_FILE, str(Path(FRAGMENTS_FILE).with_suffix(".parquet"))]
     return files, stale
 
 

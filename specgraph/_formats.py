@@ -14,9 +14,10 @@ import pandas as pd
 
 from ._validation import parameter_error
 from .exceptions import OutputError
-from .zones import Zoning
+from .zones import Zoning, fragment_table
 
 __all__ = [
+    "FRAGMENTS_FILE",
     "boundary_geojson",
     "jsonable",
     "nodes_geojson",
@@ -29,6 +30,10 @@ __all__ = [
 ]
 
 
+#: The listing of the stray fragments set aside (:func:`specgraph.zones.fragment_table`).
+FRAGMENTS_FILE = "fragments.csv"
+
+
 def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
     """The contract's CSV tables of a zoning, by file name.
 
@@ -36,14 +41,19 @@ def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
     (``source,target,weight,zone_a,zone_b`` then carried input columns),
     ``zone_summary.csv`` (``zone,nodes,size,internal_weight,boundary_weight,
     conductance,connected`` then more) and ``spectrum.csv``
-    (``index,eigenvalue,residual`` then more).
+    (``index,eigenvalue,residual`` then more); when stray fragments were set
+    aside, ``fragments.csv`` (``node,fragment,nodes,size``, :data:`FRAGMENTS_FILE`).
     """
-    return {
+    tables = {
         "zones.csv": zoning.to_frame(),
         "boundary.csv": zoning.boundary,
         "zone_summary.csv": zoning.zones,
         "spectrum.csv": zoning.spectrum(),
     }
+    fragments = fragment_table(zoning)
+    if fragments is not None:
+        tables[FRAGMENTS_FILE] = fragments
+    return tables
 
 
 def jsonable(value: Any) -> Any:

@@ -47,6 +47,7 @@ from .zones import (
     DEFAULT_LOCAL_ALPHA,
     DOMINANT_GAP,
     DOMINANT_TREATMENTS,
+    FRAGMENT_TREATMENTS,
     MAX_CYCLES,
     MULTILEVEL_MIN_ZONES,
     OPERATOR_KINDS,
@@ -255,6 +256,15 @@ def _add_zoning(parser: argparse.ArgumentParser, *, reading: bool) -> None:
         "couplers): 'contract' merges their ends before the solve so no zone is a coupler's "
         "two ends; 'auto' does so only where zoning with them free leaves a zone inside "
         "their group or cuts one; 'ignore' leaves them (default auto)",
+    )
+    group.add_argument(
+        "--fragments",
+        choices=FRAGMENT_TREATMENTS,
+        default="set_aside",
+        help="connected components too small to be zones (stray pieces, isolated nodes of "
+        "the node table): 'set_aside' puts them in one extra zone numbered last (role "
+        "'fragments', listed in fragments.csv) and gives every zone asked to the rest; "
+        "'zone' zones every component, one zone each at least (default set_aside)",
     )
     group.add_argument(
         "--no-refine",

@@ -366,6 +366,9 @@ class ZoneSplitter(ClusterMixin, BaseEstimator):
             operator=self.operator,
             assign=self.assign,
             trees=self.trees,
+            # Every sample gets one of the zones asked for, as scikit-learn clusterers
+            # do: no unzoned fragments group (a component still gets a zone of its own).
+            fragments="zone",
             refine=bool(self.refine),
             eigen_method=self.eigen_method,
             tol=float(self.tol),

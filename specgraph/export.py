@@ -52,6 +52,7 @@ import pandas as pd
 
 from . import _figures
 from ._formats import (
+    FRAGMENTS_FILE,
     boundary_geojson,
     jsonable,
     nodes_geojson,
@@ -74,6 +75,7 @@ __all__ = [
     "CAUTION",
     "FORMULA_ESCAPE",
     "FORMULA_TRIGGERS",
+    "FRAGMENTS_FILE",
     "RUN_RECORD_KEYS",
     "boundary_geojson",
     "eigen_record",

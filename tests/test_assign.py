@@ -422,10 +422,11 @@ def test_auto_falls_back_to_the_rule_above_the_limit(monkeypatch: pytest.MonkeyP
 
 
 def test_warns_of_a_zone_under_one_percent() -> None:
-    # Two cliques of 120 nodes and a separate pair: the pair is its own zone,
-    # 2 of 242 nodes (0.8 %, under SMALL_ZONE_SHARE).
+    # Two cliques of 120 nodes and a separate pair: zoned as any component
+    # (fragments="zone"; by default such a pair is a stray fragment, set aside),
+    # the pair is its own zone, 2 of 242 nodes (0.8 %, under SMALL_ZONE_SHARE).
     graph = nx.disjoint_union(nx.barbell_graph(120, 0), nx.path_graph(2))
-    zoning = find_zones(Network.from_networkx(graph, weight=None), 3, rng=0)
+    zoning = find_zones(Network.from_networkx(graph, weight=None), 3, rng=0, fragments="zone")
     assert zoning.n_zones == 3
     assert sum(1 for w in zoning.warnings if "under 1%" in w) == 1
     # No warning when every zone is large (the barbell alone).

@@ -910,9 +910,11 @@ def test_fixed_zone_not_whole(capsys: pytest.CaptureFixture[str], tmp_path: Path
             ["min_size", "component", "7"],
             id="network-below-min",
         ),
+        # A component below min_size is refused only when fragments are zoned; by
+        # default it is set aside as a stray fragment (tests/test_fragments.py).
         pytest.param(
             PATH_AND_PAIR,
-            ["--min-size", "3"],
+            ["--min-size", "3", "--fragments", "zone"],
             ["min_size", "component", "'J6'"],
             id="component-below-min",
         ),

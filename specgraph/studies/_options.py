@@ -53,6 +53,7 @@ class ZoningOptions:
     assign : {'auto', 'kmeans', 'qr', 'bisection', 'kmeans_rw'}, default='auto'
     trees : {'auto', 'attach', 'keep'}, default='auto'
     dominant : {'auto', 'contract', 'ignore'}, default='auto'
+    fragments : {'set_aside', 'zone'}, default='set_aside'
     constraints : ZoneConstraints, optional
     refine : bool, default=True
     eigen_method : {'auto', 'dense', 'lanczos', 'lanczos_flip', 'multilevel'}, default='auto'
@@ -75,6 +76,7 @@ class ZoningOptions:
     assign: str = "auto"
     trees: str = "auto"
     dominant: str = "auto"
+    fragments: str = "set_aside"
     constraints: ZoneConstraints | None = None
     refine: bool = True
     eigen_method: str = "auto"

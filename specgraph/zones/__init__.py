@@ -8,7 +8,8 @@ moves), and :mod:`._zoning`, which runs them in order (:func:`find_zones`);
 :mod:`._coarsen` and :mod:`._levels` are the multilevel path (coarsen, zone the
 coarsest network, refine at every level), which :mod:`._rezone` also runs as
 V-cycles on a given zoning (:func:`refine_zoning`);
-:mod:`._trunk` runs them beside trunk links (feeding mains outside every zone).
+:mod:`._trunk` runs them beside trunk links (feeding mains outside every zone);
+:mod:`._fragments` sets aside stray components too small to be zones.
 """
 
 from ._allocate import allocate_zones
@@ -40,6 +41,7 @@ from ._dominant import (
     weight_range,
 )
 from ._embedding import normalized_rows
+from ._fragments import FRAGMENT_TREATMENTS, ROLE_FRAGMENTS, fragment_limit, fragment_table
 from ._levels import (
     COARSEST_PER_ZONE,
     CYCLE_RTOL,
@@ -82,11 +84,13 @@ __all__ = [
     "DEFAULT_LOCAL_ALPHA",
     "DOMINANT_GAP",
     "DOMINANT_TREATMENTS",
+    "FRAGMENT_TREATMENTS",
     "KMEANS_RESTARTS",
     "MAX_CYCLES",
     "MULTILEVEL_MIN_ZONES",
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
+    "ROLE_FRAGMENTS",
     "TREE_TREATMENTS",
     "WEIGHT_RANGE_WARN",
     "ZONING_CONSTRAINTS",
@@ -124,6 +128,8 @@ __all__ = [
     "enforce_constraints",
     "find_dominant_links",
     "find_zones",
+    "fragment_limit",
+    "fragment_table",
     "kmeans_labels",
     "local_zone",
     "normalized_cut",

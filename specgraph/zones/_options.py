@@ -26,6 +26,7 @@ from ..eigen import METHODS
 from ..network import Network
 from ._count import parse_zone_spec
 from ._dominant import DOMINANT_TREATMENTS
+from ._fragments import FRAGMENT_TREATMENTS
 from ._operator import OPERATOR_KINDS
 from ._rules import ZoneConstraints
 from ._stages import _ASSIGNERS
@@ -53,6 +54,7 @@ ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
     "assign": [Options(("auto", *ASSIGNMENTS))],
     "trees": [Options(("auto", *TREE_TREATMENTS))],
     "dominant": [Options(DOMINANT_TREATMENTS)],
+    "fragments": [Options(FRAGMENT_TREATMENTS)],
     "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
     "refine": [Boolean()],
     "eigen_method": [Options(METHODS)],
@@ -89,6 +91,7 @@ class ZoningOptions:
     assign: str
     trees: str
     dominant: str
+    fragments: str
     refine: bool
     eigen_method: str
     tol: float
@@ -105,6 +108,7 @@ class ZoningOptions:
             "assign": self.assign,
             "trees": self.trees,
             "dominant": self.dominant,
+            "fragments": self.fragments,
             "refine": self.refine,
             "constraints": constraints,
             "eigen_method": self.eigen_method,
@@ -134,6 +138,7 @@ def checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) -> 
         checked["assign"],
         checked["trees"],
         checked["dominant"],
+        checked["fragments"],
         checked["refine"],
         checked["eigen_method"],
         checked["tol"],

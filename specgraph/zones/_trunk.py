@@ -53,6 +53,8 @@ __all__ = [
     "ROLE_TRUNK",
     "SMALL_PIECE_SHARE",
     "TrunkSplit",
+    "district_rules",
+    "mark_inlets",
     "split_at_trunk",
     "zone_beside_trunk",
 ]
@@ -229,9 +231,7 @@ def zone_beside_trunk(
     labels[rows] = inner.labels
     table = zone_table(network, labels)
     boundary = boundary_links(network, labels)
-    inlet = (boundary["zone_a"].to_numpy() == k) | (boundary["zone_b"].to_numpy() == k)
-    name = INLET_COLUMN if INLET_COLUMN not in boundary.columns else f"trunk_{INLET_COLUMN}"
-    boundary[name] = inlet
+    inlet = mark_inlets(boundary, k)
     inlets = _inlets_per_zone(boundary, inlet, k)
     table["role"] = np.where(np.arange(k + 1) == k, ROLE_TRUNK, ROLE_DISTRICT)
     table["inlets"] = inlets
@@ -255,6 +255,18 @@ def zone_beside_trunk(
         decisions={**inner.decisions, "trunk": decision},
         warnings=tuple(notes),
     )
+
+
+def mark_inlets(boundary: pd.DataFrame, k: int) -> np.ndarray:
+    """Mark the links of ``boundary`` with an end in the trunk zone ``k`` (in place).
+
+    The column is :data:`INLET_COLUMN`, or ``trunk_inlet`` when the input link
+    table already carried a column of that name; returns the marks.
+    """
+    inlet = (boundary["zone_a"].to_numpy() == k) | (boundary["zone_b"].to_numpy() == k)
+    name = INLET_COLUMN if INLET_COLUMN not in boundary.columns else f"trunk_{INLET_COLUMN}"
+    boundary[name] = inlet
+    return np.asarray(inlet, dtype=bool)
 
 
 def _inlets_per_zone(boundary: pd.DataFrame, inlet: np.ndarray, k: int) -> np.ndarray:

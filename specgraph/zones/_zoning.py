@@ -20,7 +20,9 @@ modules named below):
 
 With trunk links (feeding mains kept outside every zone), these steps zone
 the network beside them and the trunk becomes one more zone
-(:mod:`._trunk`).
+(:mod:`._trunk`). Before all of this, connected components too small to be
+zones (stray fragments, isolated nodes) are set aside as one more zone,
+numbered last, unless ``fragments="zone"`` (:mod:`._fragments`).
 
 Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 """
@@ -55,6 +57,7 @@ from ._dominant import (
     dominant_contraction,
     survey_weights,
 )
+from ._fragments import FRAGMENT_TREATMENTS, zone_beside_fragments
 from ._levels import (
     COARSE_SPECTRAL_MAX_ZONES,
     choose_path,
@@ -93,6 +96,7 @@ from ._trunk import zone_beside_trunk
 
 __all__ = [
     "ASSIGNMENTS",
+    "FRAGMENT_TREATMENTS",
     "NORMALIZED_LIKE",
     "OPERATOR_KINDS",
     "TREE_TREATMENTS",
@@ -130,6 +134,7 @@ def find_zones(
     assign: str = "auto",
     trees: str = "auto",
     dominant: str = "auto",
+    fragments: str = "set_aside",
     constraints: ZoneConstraints | None = None,
     refine: bool = True,
     eigen_method: str = "auto",
@@ -148,8 +153,9 @@ def find_zones(
         Number of zones. ``'auto'`` reads it from the eigengaps of the
         normalized Laplacian (:func:`choose_zone_count`), choosing among
         ``2..min(50, n/2)``; a ``range`` (e.g. ``range(8, 21)``) chooses
-        within it. With sources and ``'auto'``, one zone per source. An
-        int below the number of connected components is raised to it (with
+        within it. With sources and ``'auto'``, one zone per source. Stray
+        fragments set aside (see ``fragments``) are not counted; an int below
+        the number of the other connected components is raised to it (with
         a warning); constraints may merge or split zones (with a note).
 
     Returns
@@ -205,6 +211,19 @@ def find_zones(
         ``decisions["weights"]`` records the spread of the affinities and the
         links found, and a warning is given when the largest affinity exceeds
         :data:`~specgraph.zones.WEIGHT_RANGE_WARN` times the median.
+    fragments : {'set_aside', 'zone'}, default='set_aside'
+        Connected components too small to be zones (stray pieces of an
+        export, isolated nodes of a node table): under 1 % of the network, or
+        under a tenth of an average zone with many zones, or under
+        ``min_size`` (:func:`~specgraph.zones._fragments.fragment_limit`),
+        and holding no source, fixed node or trunk link. ``'set_aside'``
+        zones the rest with the zone count asked (shared among the other
+        components in proportion to their size) and puts the fragments in
+        one more zone, numbered last, with ``role`` ``'fragments'`` in the
+        zone table (:mod:`._fragments`; a warning and
+        ``decisions["fragments"]`` say what was set aside). ``'zone'`` zones
+        every component, one zone each at least (a count below the number of
+        components is raised to it, with a warning).
     constraints : ZoneConstraints, optional
         Size bounds, sources, links that must not be cut, fixed zones, and
         connectivity (default: every zone connected, nothing else). With
@@ -249,6 +268,7 @@ def find_zones(
         assign=assign,
         trees=trees,
         dominant=dominant,
+        fragments=fragments,
         refine=refine,
         eigen_method=eigen_method,
         tol=tol,
@@ -260,19 +280,30 @@ def find_zones(
     )
     stage = progress if progress is not None else _no_progress
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
-    if rules.trunk_pairs.size:  # districts beside the trunk links (module _trunk)
-        return zone_beside_trunk(
-            network,
-            rules,
-            options.spec,
-            lambda net, rest, spec: _zone_rules(net, replace(options, spec=spec), rest, stage),
-            lambda record: {
-                **record,
-                "zones": options.record({}, "")["zones"],  # as asked, not capped
-                "constraints": constraint_record(rules),
-            },
-        )
-    return _zone_rules(network, options, rules, stage)
+
+    def as_asked(record: dict[str, Any]) -> dict[str, Any]:
+        return {
+            **record,
+            "zones": options.record({}, "")["zones"],  # as asked, not capped
+            "constraints": constraint_record(rules),
+        }
+
+    def zone_all(net: Network, rest: ResolvedConstraints, spec: Any) -> Zoning:
+        if rest.trunk_pairs.size:  # districts beside the trunk links (module _trunk)
+            return zone_beside_trunk(
+                net,
+                rest,
+                spec,
+                lambda sub, inner, count: _zone_rules(
+                    sub, replace(options, spec=count), inner, stage
+                ),
+                as_asked,
+            )
+        return _zone_rules(net, replace(options, spec=spec), rest, stage)
+
+    if options.fragments == "set_aside":  # stray components set aside (module _fragments)
+        return zone_beside_fragments(network, rules, options.spec, zone_all, as_asked)
+    return zone_all(network, rules, options.spec)
 
 
 def _zone_rules(
