@@ -37,6 +37,7 @@ from .export import (
     parquet_available,
     run_record,
     scorecard_tables,
+    write_figures,
     write_outputs,
     zoning_geojson,
     zoning_parquet,
@@ -298,7 +299,9 @@ def _zone_and_write(
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     sources = tuple(dict.fromkeys([*constraints.sources, *markers]))
     files, stale = _zoning_files(zoning, record, args, argv, sources)
+    figures = _figure_files(args, zoning, sources=sources)
     written = write_outputs(args.out, files, remove=stale)
+    written += write_figures(args.out, figures)
     _warn(zoning.warnings)
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
@@ -346,6 +349,15 @@ def _zoning_files(
     else:
         stale += [str(Path(name).with_suffix(".parquet")) for name in tables]
     return files, stale
+
+
+def _figure_files(args: argparse.Namespace, zoning: Zoning, **options: Any) -> dict[str, bytes]:
+    """With --figures, every figure as PNG and SVG bytes (rendered before anything is written)."""
+    if not getattr(args, "figures", False):
+        return {}
+    from .report import figure_files, report_figures  # matplotlib: loaded only for figures
+
+    return figure_files(report_figures(zoning, **options))
 
 
 def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -639,7 +651,9 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
             sources=constraints.sources,
             title="Zoning stability report",
         )
+    figures = _figure_files(args, reference, sources=constraints.sources, stability=result)
     written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
+    written += write_figures(args.out, figures)
     _warn(result.warnings)
     overall = result.overall
     logger.info(

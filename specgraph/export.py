@@ -51,6 +51,7 @@ import numpy as np
 import pandas as pd
 
 from . import _figures
+from ._figure_files import write_figures
 from ._formats import (
     boundary_geojson,
     jsonable,
@@ -89,6 +90,7 @@ __all__ = [
     "recover_outputs",
     "run_record",
     "scorecard_tables",
+    "write_figures",
     "write_outputs",
     "zones_geojson",
     "zoning_geojson",
@@ -127,6 +129,7 @@ _LIBRARIES = (
     "defusedxml",
     "tqdm",
     "matplotlib",
+    "shapely",
     "pyarrow",
 )
 
@@ -444,6 +447,9 @@ def _write_temp(folder: Path, name: str, content: Content) -> Path:
             elif isinstance(content, pd.DataFrame):
                 table = neutralize_frame(content)
                 table.to_csv(stream, index=False, lineterminator="\n", quoting=_quoting(table))
+            elif name.endswith(".geojson"):  # compact: GeoJSON files hold every node
+                json.dump(content, stream, separators=(",", ":"), allow_nan=False)
+                stream.write("\n")
             else:
                 json.dump(content, stream, indent=2, allow_nan=False)
                 stream.write("\n")
