@@ -17,13 +17,14 @@ from __future__ import annotations
 
 from collections.abc import Mapping
 from pathlib import Path
+from typing import Literal
 
 __all__ = ["FIGURES_FOLDER", "FIGURE_FORMATS", "FIGURE_STEMS", "figure_names", "write_figures"]
 
 #: Subfolder of an output folder that receives the figure files.
 FIGURES_FOLDER = "figures"
 #: File formats of every figure: PNG for documents and slides, SVG to zoom and edit.
-FIGURE_FORMATS = ("png", "svg")
+FIGURE_FORMATS: tuple[Literal["png", "svg"], ...] = ("png", "svg")
 #: Every figure a run may write, by file stem (:func:`specgraph.report.report_figures`).
 FIGURE_STEMS = ("spectrum", "zone_bars", "zone_map", "stability")
 

@@ -28,7 +28,7 @@ from matplotlib.collections import PathCollection
 from matplotlib.colors import to_hex
 from mpl_toolkits.axes_grid1.anchored_artists import AnchoredSizeBar
 
-from specgraph import find_zones, gallery, stability
+from specgraph import Network, find_zones, gallery, stability
 from specgraph.diagnostics import boundary_links, overall_scores, zone_table
 from specgraph.io import read_geojson_lines
 from specgraph.report import (
@@ -219,7 +219,12 @@ def test_scale_bar_in_coordinate_units_when_units_are_unknown(zoned16) -> None:
     assert figure.axes[0].get_xlabel() == "x (coordinate units)"
     label = _scale_bar(figure).txt_label.get_text()
     assert label == "0.1 coordinate units"  # a fifth of the unit square, rounded down to 1-2-5
-    metres = zone_map_figure(zoned16, units="metres")
+    net = zoned16.network
+    stated = Network(
+        net.adjacency, net.node_ids, coordinates=net.coordinates,
+        notes={"coordinate_units": "metres"},
+    )  # fmt: skip
+    metres = zone_map_figure(zoning_of(stated, zoned16.labels))
     assert metres.axes[0].get_xlabel() == "x (m)"
     assert _scale_bar(metres).txt_label.get_text() == "0.1 m"
 
@@ -272,8 +277,6 @@ def test_longitude_latitude_maps_say_degrees_and_measure_kilometres(tmp_path: Pa
 # ------------------------------------------------------------------ spectrum
 def test_spectrum_is_on_a_log_axis_with_the_chosen_gap_marked() -> None:
     graph = nx.random_partition_graph([40, 40, 40, 40], 0.3, 0.004, seed=3)
-    from specgraph import Network
-
     zoning = find_zones(Network.from_networkx(graph), "auto", rng=0)
     figure = spectrum_figure(zoning)
     top = figure.axes[0]

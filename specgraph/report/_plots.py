@@ -46,8 +46,10 @@ Every map carries a scale bar and says in which units its axes are
 * otherwise the units of a node table's x and y columns are not known: the
   axes say "coordinate units" and the scale bar is in those units.
 
-``units='metres'`` (projected coordinates in metres) or ``units='degrees'``
-states the units instead.
+A network states its units in its notes, ``notes={"coordinate_units":
+"metres"}`` (projected coordinates in metres) or ``"degrees"``, which every
+map then follows (before the rule); :func:`coordinate_units` takes
+``units=`` to state them for one call.
 
 Colours
 -------
@@ -122,6 +124,7 @@ __all__ = [
     "PALETTE",
     "PALETTE_REFERENCE",
     "SPECTRUM_SERIES_MAX",
+    "UNITS_NOTE",
     "ZERO_EIGENVALUE",
     "CoordinateUnits",
     "ZoneColouring",
@@ -208,6 +211,9 @@ SPECTRUM_SERIES_MAX = 8
 FIGURE_DPI = 150
 
 _MAP_SIZE = (8.0, 8.0)
+#: Key of :attr:`Network.notes` that states the coordinates' units
+#: (``'metres'`` or ``'degrees'``) for every map.
+UNITS_NOTE = "coordinate_units"
 #: Longitude and latitude bounds (degrees), as the GeoJSON reader checks them.
 _LONGITUDE_BOUND = 180.0
 _LATITUDE_BOUND = 90.0
@@ -369,7 +375,9 @@ def figure_bytes(figure: Figure, *, format: Literal["png", "svg"] = "png") -> by
 
 
 def figure_files(
-    figures: Mapping[str, Figure], *, formats: Sequence[Literal["png", "svg"]] = FIGURE_FORMATS
+    figures: Mapping[str, Figure],
+    *,
+    formats: Sequence[Literal["png", "svg"]] = FIGURE_FORMATS,
 ) -> dict[str, bytes]:
     """Every figure in every format, by file name: ``{"zone_map.png": b"...", ...}``.
 
@@ -720,7 +728,8 @@ def coordinate_units(network: Network, *, units: Units = "auto") -> CoordinateUn
     ----------
     network : Network
     units : {'auto', 'degrees', 'metres', 'unknown'}, default='auto'
-        ``'auto'`` applies the rule; any other value states the units.
+        ``'auto'`` applies the rule (the network's
+        ``notes["coordinate_units"]`` first); any other value states the units.
 
     Returns
     -------
@@ -733,10 +742,18 @@ def coordinate_units(network: Network, *, units: Units = "auto") -> CoordinateUn
     'unknown'
     >>> coordinate_units(gallery.road_like(10, rng=0), units="metres").name
     'metres'
+    >>> net = gallery.road_like(10, rng=0)
+    >>> stated = Network(net.adjacency, net.node_ids, coordinates=net.coordinates,
+    ...                  notes={"coordinate_units": "metres"})
+    >>> coordinate_units(stated).name
+    'metres'
     """
     check_choice(units, "units", ("auto", "degrees", "metres", "unknown"))
     if units != "auto":
         return CoordinateUnits(units, "stated (units=)")
+    stated = network.notes.get(UNITS_NOTE)
+    if stated in ("degrees", "metres"):
+        return CoordinateUnits(stated, f"stated by the network (notes[{UNITS_NOTE!r}])")
     geojson = network.notes.get("geojson")
     xy = network.coordinates
     if isinstance(geojson, Mapping) and xy is not None and xy.size:
@@ -929,7 +946,6 @@ def zone_map_figure(
     *,
     sources: Sequence[str] = (),
     colouring: ZoneColouring | None = None,
-    units: Units = "auto",
     raster_above: int = MAP_RASTER_NODES,
     aggregate_above: int = MAP_AGGREGATE_NODES,
     cells: int = MAP_CELLS,
@@ -944,9 +960,6 @@ def zone_map_figure(
         Node ids of supply points, drawn as black stars.
     colouring : ZoneColouring, optional
         Default :func:`zone_colours` of the zoning: touching zones differ.
-    units : {'auto', 'degrees', 'metres', 'unknown'}, default='auto'
-        Units of the coordinates (:func:`coordinate_units`): the axis labels,
-        the scale bar and, for degrees, the aspect.
 
     Returns
     -------
@@ -979,7 +992,7 @@ def zone_map_figure(
     sources = check_param(sources, "sources", [NodeIds()])
     xy = _coordinates(network)
     cells = check_int(cells, "cells", minimum=1)
-    found_units = coordinate_units(network, units=units)
+    found_units = coordinate_units(network)
     detail = _detail(network, raster_above, aggregate_above)
     colouring = colouring or zone_colours(network, zoning.labels)
     labels = zoning.labels
@@ -1128,7 +1141,6 @@ def stability_figure(
     raster_above: int = MAP_RASTER_NODES,
     aggregate_above: int = MAP_AGGREGATE_NODES,
     cells: int = MAP_CELLS,
-    units: Units = "auto",
 ) -> Figure:
     """Per-node confidence on the map, low confidence standing out; bars without coordinates.
 
@@ -1162,8 +1174,6 @@ def stability_figure(
     ----------------
     raster_above, aggregate_above, cells : int
         As for :func:`zone_map_figure`.
-    units : {'auto', 'degrees', 'metres', 'unknown'}, default='auto'
-        As for :func:`zone_map_figure`.
     """
     from ..studies import CORE_CONFIDENCE
 
@@ -1177,7 +1187,7 @@ def stability_figure(
     if network.coordinates is None:
         return _stability_bars(stability.zones)
     xy = network.coordinates
-    found_units = coordinate_units(network, units=units)
+    found_units = coordinate_units(network)
     confidence = nodes["confidence"].to_numpy(dtype=float)
     detail = _detail(network, raster_above, aggregate_above)
     low_xy: np.ndarray
