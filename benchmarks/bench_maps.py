@@ -113,12 +113,13 @@ def main() -> None:
     parser.add_argument("--sizes", type=int, nargs="+", default=[200_000, 1_000_000])
     parser.add_argument("--zones", type=int, default=1_000)
     parser.add_argument("--seed", type=int, default=0)
+    parser.add_argument("--stages", nargs="+", choices=("map", "areas"), default=["map", "areas"])
     args = parser.parse_args()
     context = multiprocessing.get_context("spawn")
     print("| nodes | zones | stage | seconds | held MiB | stage peak MiB | added MiB | output |")
     print("|---:|---:|---|---:|---:|---:|---:|---|")
     for n in args.sizes:
-        for stage in ("map", "areas"):
+        for stage in args.stages:
             queue = context.Queue()
             worker = context.Process(target=_stage, args=(stage, n, args.zones, args.seed, queue))
             worker.start()

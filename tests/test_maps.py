@@ -307,9 +307,14 @@ def test_zero_eigenvalues_are_marked_below_the_log_axis() -> None:
 
 
 # ------------------------------------------------------------------ stability
-def test_low_confidence_nodes_stand_out_on_the_stability_map() -> None:
-    net = gallery.road_like(1_500, rng=6)
-    result = stability(net, 12, repeats=1, rng=0)
+@pytest.fixture(scope="module")
+def stable12():
+    return stability(gallery.road_like(1_500, rng=6), 12, repeats=1, rng=0)
+
+
+def test_low_confidence_nodes_stand_out_on_the_stability_map(stable12) -> None:
+    result = stable12
+    net = result.reference.network
     figure = stability_figure(result.reference, result)
     axes = figure.axes[0]
     weak = [c for c in axes.collections if c.get_gid() == "low-confidence"]
@@ -325,3 +330,24 @@ def test_low_confidence_nodes_stand_out_on_the_stability_map() -> None:
     entries = [t.get_text() for t in axes.get_legend().get_texts()]
     assert entries[0] == f"confidence < {CORE_CONFIDENCE:g} ({expected.shape[0]:,})"
     assert sorted(label_texts(figure)) == list(range(result.reference.n_zones))
+
+
+def test_aggregated_stability_map_marks_the_cells_holding_low_confidence(stable12) -> None:
+    result = stable12
+    net = result.reference.network
+    cells = 10
+    figure = stability_figure(
+        result.reference, result, raster_above=10, aggregate_above=100, cells=cells
+    )
+    weak = next(c for c in figure.axes[0].collections if c.get_gid() == "low-confidence")
+    # Cells by hand: 10 x 10 over the nodes' bounding box; a cell is marked when its least
+    # confident node is below the core level.
+    xy = net.coordinates
+    low, high = xy.min(axis=0), xy.max(axis=0)
+    index = np.minimum(((xy - low) / (high - low) * cells).astype(int), cells - 1)
+    confidence = result.nodes["confidence"].to_numpy()
+    marked = {tuple(i) for i in index[confidence < CORE_CONFIDENCE].tolist()}
+    centres = np.asarray(weak.get_offsets())
+    got = {tuple(v) for v in np.floor((centres - low) / (high - low) * cells).astype(int).tolist()}
+    assert got == marked
+    assert len(centres) == len(marked)

@@ -147,8 +147,9 @@ def test_demo_report_renders_in_chromium(
 
 
 # ------------------------------------------------------------------ maps as SVG files
-#: Half-width (pixels) of the window around a zone number in which its zone's colour is read.
-SAMPLE_RADIUS = 14
+#: Half-width (pixels) of the window around a zone number in which its zone's colour is read:
+#: wider than the number's white box (about 30 x 25 pixels at 1,200 pixels across).
+SAMPLE_RADIUS = 30
 
 
 def _open_svg(browser: Any, path: Path) -> Any:
