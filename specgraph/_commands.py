@@ -38,6 +38,7 @@ from .export import (
     parquet_available,
     run_record,
     scorecard_tables,
+    write_figures,
     write_outputs,
     zoning_geojson,
     zoning_parquet,
@@ -302,7 +303,9 @@ def _zone_and_write(
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     sources = tuple(dict.fromkeys([*constraints.sources, *markers]))
     files, stale = _zoning_files(zoning, record, args, argv, sources)
+    figures = _figure_files(args, zoning, sources=sources)
     written = write_outputs(args.out, files, remove=stale)
+    written += write_figures(args.out, figures)
     _warn(zoning.warnings)
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
@@ -352,6 +355,15 @@ def _zoning_files(
     if FRAGMENTS_FILE not in tables:  # no fragments set aside: no listing of an earlier run
         stale += [FRAGMENTS_FILE, str(Path(FRAGMENTS_FILE).with_suffix(".parquet"))]
     return files, stale
+
+
+def _figure_files(args: argparse.Namespace, zoning: Zoning, **options: Any) -> dict[str, bytes]:
+    """With --figures, every figure as PNG and SVG bytes (rendered before anything is written)."""
+    if not getattr(args, "figures", False):
+        return {}
+    from .report import figure_files, report_figures  # matplotlib: loaded only for figures
+
+    return figure_files(report_figures(zoning, **options))
 
 
 def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
@@ -645,7 +657,9 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
             sources=constraints.sources,
             title="Zoning stability report",
         )
+    figures = _figure_files(args, reference, sources=constraints.sources, stability=result)
     written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
+    written += write_figures(args.out, figures)
     _warn(result.warnings)
     overall = result.overall
     logger.info(

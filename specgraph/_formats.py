@@ -7,12 +7,13 @@ re-exports every public name of this module, where users find them).
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
 
-from ._validation import parameter_error
+from ._areas import zone_areas
+from ._validation import check_choice, parameter_error
 from .exceptions import OutputError
 from .zones import Zoning, fragment_table
 
@@ -158,35 +159,53 @@ def nodes_geojson(zoning: Zoning) -> dict[str, Any]:
     return _collection(features)
 
 
-def zones_geojson(zoning: Zoning) -> dict[str, Any]:
-    """One ``MultiPoint`` feature per zone (its nodes), carrying the zone summary row.
+def zones_geojson(zoning: Zoning, *, geometry: Literal["area", "nodes"] = "area") -> dict[str, Any]:
+    """One feature per zone, its area (or its nodes), carrying the zone summary row.
 
     Parameters
     ----------
     zoning : Zoning
         Of a network with node coordinates.
+    geometry : {'area', 'nodes'}, default='area'
+        ``'area'``: the zone's area as a ``Polygon`` or ``MultiPolygon``,
+        the Voronoi cells of its nodes unioned and clipped to the network's
+        buffered convex hull (:func:`specgraph._areas.zone_areas`, which
+        cites the construction). ``'nodes'``: a ``MultiPoint`` of the zone's
+        node positions.
 
     Returns
     -------
     dict
         A GeoJSON FeatureCollection, zones in number order; properties are
         the columns of ``zoning.zones`` (``zone``, ``nodes``, ``size``,
-        ``conductance``...).
+        ``conductance``...), with ``geometry='area'`` also ``area`` (in the
+        coordinates' units squared) and ``nodes_outside`` (nodes of the zone
+        sharing a position with another zone's node, not covered; 0 almost
+        always).
     """
+    check_choice(geometry, "geometry", ("area", "nodes"))
     xy = _coordinates_of(zoning)
-    order = np.argsort(zoning.labels, kind="stable")
-    bounds = np.searchsorted(zoning.labels[order], np.arange(zoning.n_zones + 1))
-    features = []
-    for z, props in enumerate(_properties(zoning.zones)):
-        points = xy[order[bounds[z] : bounds[z + 1]]].tolist()
-        features.append(
-            {
-                "type": "Feature",
-                "id": z,
-                "geometry": {"type": "MultiPoint", "coordinates": points},
-                "properties": props,
-            }
-        )
+    labels = zoning.labels
+    order = np.argsort(labels, kind="stable")
+    bounds = np.searchsorted(labels[order], np.arange(zoning.n_zones + 1))
+    table = zoning.zones.copy()
+    shapes: list[dict[str, Any]]
+    if geometry == "area":
+        from shapely.geometry import mapping
+
+        found = zone_areas(zoning.network, labels)
+        table["area"] = [float(a.area) for a in found.areas]
+        table["nodes_outside"] = found.nodes_outside
+        shapes = [dict(mapping(a)) for a in found.areas]
+    else:
+        shapes = [
+            {"type": "MultiPoint", "coordinates": xy[order[bounds[z] : bounds[z + 1]]].tolist()}
+            for z in range(zoning.n_zones)
+        ]
+    features = [
+        {"type": "Feature", "id": z, "geometry": shape, "properties": props}
+        for z, (shape, props) in enumerate(zip(shapes, _properties(table), strict=True))
+    ]
     return _collection(features)
 
 
@@ -225,8 +244,10 @@ def boundary_geojson(zoning: Zoning) -> dict[str, Any]:
 def zoning_geojson(zoning: Zoning) -> dict[str, dict[str, Any]]:
     """The GeoJSON files of a zoning, by file name, for :func:`write_outputs`.
 
-    ``zones.geojson`` (:func:`nodes_geojson`), ``zone_summary.geojson``
-    (:func:`zones_geojson`) and ``boundary.geojson`` (:func:`boundary_geojson`).
+    ``zones.geojson`` (:func:`nodes_geojson`: one point per node),
+    ``zone_summary.geojson`` (:func:`zones_geojson`: one area per zone) and
+    ``boundary.geojson`` (:func:`boundary_geojson`). :func:`write_outputs`
+    writes ``.geojson`` files as compact JSON (no indentation).
     """
     return {
         "zones.geojson": nodes_geojson(zoning),

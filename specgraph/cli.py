@@ -347,6 +347,15 @@ def _add_report(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def _add_figures(parser: argparse.ArgumentParser) -> None:
+    parser.add_argument(
+        "--figures",
+        action="store_true",
+        help="also write every figure (zone map, spectrum, zone bars, stability map) as PNG "
+        "and SVG into the output folder's figures/ subfolder",
+    )
+
+
 def _add_formats(parser: argparse.ArgumentParser) -> None:
     group = parser.add_argument_group("extra output formats")
     group.add_argument(
@@ -382,6 +391,7 @@ def _add_zones_command(commands: Any) -> None:
     _add_zoning(zones, reading=True)
     _add_solving(zones, auto=True)
     _add_report(zones)
+    _add_figures(zones)
     _add_formats(zones)
     _add_common(zones, out="specgraph-zones")
 
@@ -575,6 +585,7 @@ def _add_stability_command(commands: Any) -> None:
     )
     _add_solving(stable, auto=True)
     _add_report(stable)
+    _add_figures(stable)
     _add_common(stable, out="specgraph-stability")
 
 
@@ -632,6 +643,7 @@ def _add_demo_command(commands: Any) -> None:
     _add_zoning(demo, reading=False)
     _add_solving(demo, auto=True)
     _add_report(demo)
+    _add_figures(demo)
     _add_formats(demo)
     _add_common(demo, out="specgraph-demo")
 

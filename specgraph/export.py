@@ -51,6 +51,7 @@ import numpy as np
 import pandas as pd
 
 from . import _figures
+from ._figure_files import write_figures
 from ._formats import (
     FRAGMENTS_FILE,
     boundary_geojson,
@@ -91,6 +92,7 @@ __all__ = [
     "recover_outputs",
     "run_record",
     "scorecard_tables",
+    "write_figures",
     "write_outputs",
     "zones_geojson",
     "zoning_geojson",
@@ -129,6 +131,7 @@ _LIBRARIES = (
     "defusedxml",
     "tqdm",
     "matplotlib",
+    "shapely",
     "pyarrow",
 )
 
@@ -446,6 +449,9 @@ def _write_temp(folder: Path, name: str, content: Content) -> Path:
             elif isinstance(content, pd.DataFrame):
                 table = neutralize_frame(content)
                 table.to_csv(stream, index=False, lineterminator="\n", quoting=_quoting(table))
+            elif name.endswith(".geojson"):  # compact: GeoJSON files hold every node
+                json.dump(content, stream, separators=(",", ":"), allow_nan=False)
+                stream.write("\n")
             else:
                 json.dump(content, stream, indent=2, allow_nan=False)
                 stream.write("\n")

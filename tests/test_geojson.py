@@ -3,7 +3,10 @@
 Oracles: brute-force pairwise distances with a hand-written union-find for the
 snapping; hand-computed Pythagorean lengths (3-4-5 and 6-8-10 triangles); the
 standard json module for parse positions and for the validity of what is written;
-pyarrow/pandas as the Parquet reader.
+pyarrow/pandas as the Parquet reader; shapely (GEOS) for the zone areas: each
+area covers its nodes, areas do not overlap, and together they fill the
+network's convex hull buffered by the median link length (the construction of
+specgraph._areas, rebuilt here from shapely and numpy alone).
 """
 
 from __future__ import annotations
@@ -340,8 +343,16 @@ def test_zones_written_as_geojson_read_back(tmp_path):
     assert [f["id"] for f in points["features"]] == net.node_ids.tolist()
 
     areas = strict_json(tmp_path / "out" / "zone_summary.geojson")
-    assert [len(f["geometry"]["coordinates"]) for f in areas["features"]] == [16, 16]
+    assert [f["geometry"]["type"] for f in areas["features"]] == ["Polygon", "Polygon"]
     assert [f["properties"]["nodes"] for f in areas["features"]] == [16, 16]
+    assert [f["properties"]["nodes_outside"] for f in areas["features"]] == [0, 0]
+    # Written compact (no indentation): the text is json.dumps with the tightest separators.
+    for name in ("zones.geojson", "zone_summary.geojson", "boundary.geojson"):
+        text = (tmp_path / "out" / name).read_text("utf-8")
+        assert "\n " not in text
+        assert ", " not in text
+        assert '": ' not in text
+        assert text == json.dumps(json.loads(text), separators=(",", ":")) + "\n"
 
     # Read the boundary back as a line network: the main is the only boundary link.
     back, report = read_geojson_lines(tmp_path / "out" / "boundary.geojson")
@@ -368,6 +379,93 @@ def test_nan_cells_become_null_and_geojson_needs_coordinates(tmp_path):
     for build in (nodes_geojson, zones_geojson, boundary_geojson):
         with pytest.raises(ParameterError, match="node coordinates"):
             build(plain)
+
+
+# ------------------------------------------------------------------ zone areas
+def _areas_and_nodes(zoning: Any) -> tuple[list[Any], Any]:
+    import shapely
+    from shapely.geometry import shape
+
+    collection = json.loads(json.dumps(zones_geojson(zoning), separators=(",", ":")))
+    areas = [shape(f["geometry"]) for f in collection["features"]]
+    assert all(shapely.is_valid(a) for a in areas)
+    return areas, collection
+
+
+def _clip_by_hand(net: Any) -> Any:
+    """The network's convex hull buffered by its median link length, by shapely and numpy."""
+    import shapely
+
+    xy = net.coordinates
+    rows, cols = net.adjacency.tocoo().row, net.adjacency.tocoo().col
+    median = float(np.median(np.hypot(*(xy[rows] - xy[cols]).T)))
+    return shapely.MultiPoint(xy).convex_hull.buffer(median, quad_segs=16)
+
+
+@pytest.mark.parametrize(("n", "k"), [(800, 6), (3_000, 16)])
+def test_zone_areas_cover_their_nodes_do_not_overlap_and_fill_the_buffered_hull(n, k):
+    import shapely
+    from shapely.ops import unary_union
+
+    from specgraph import gallery
+
+    net = gallery.road_like(n, rng=n)
+    zoning = find_zones(net, k, rng=0)
+    areas, collection = _areas_and_nodes(zoning)
+    assert len(areas) == k
+    points = shapely.points(net.coordinates)
+    for zone, area in enumerate(areas):
+        mine = points[zoning.labels == zone]
+        assert shapely.covers(area, mine).all()  # each zone's area covers its nodes
+        others = points[zoning.labels != zone]
+        assert not shapely.contains_properly(area, others).any()  # and no other node inside
+    for a in range(k):
+        for b in range(a + 1, k):
+            assert areas[a].intersection(areas[b]).area <= 1e-9 * areas[a].area
+    clip = _clip_by_hand(net)
+    union = unary_union(areas)
+    assert union.area == pytest.approx(clip.area, rel=1e-9)
+    assert sum(a.area for a in areas) == pytest.approx(clip.area, rel=1e-9)
+    assert union.symmetric_difference(clip).area <= 1e-9 * clip.area
+    reported = [f["properties"]["area"] for f in collection["features"]]
+    np.testing.assert_allclose(reported, [a.area for a in areas], rtol=1e-12)
+
+
+def test_nodes_at_one_position_in_two_zones_are_counted_not_covered():
+    import shapely
+
+    from specgraph import Network
+
+    # A path a-b-c-d with c and d at one position but in different zones.
+    net = Network.from_links(
+        ["a", "b", "c"],
+        ["b", "c", "d"],
+        node_ids=["a", "b", "c", "d"],
+        coordinates=np.array([[0.0, 0.0], [1.0, 0.0], [2.0, 0.0], [2.0, 0.0]]),
+    )
+    from specgraph.diagnostics import boundary_links, overall_scores, zone_table
+    from specgraph.zones import Zoning
+
+    labels = np.array([0, 0, 0, 1])
+    table = zone_table(net, labels)
+    zoning = Zoning(
+        network=net, labels=labels, zones=table, boundary=boundary_links(net, labels),
+        solves=(), scores=overall_scores(table), parameters={},
+    )  # fmt: skip
+    areas, collection = _areas_and_nodes(zoning)
+    assert [f["properties"]["nodes_outside"] for f in collection["features"]] == [0, 1]
+    assert areas[1].is_empty
+    assert shapely.covers(areas[0], shapely.points(net.coordinates[:3])).all()
+
+
+def test_zone_nodes_stay_available_as_points_and_multipoints(tmp_path):
+    net, _ = read_geojson_lines(two_districts(tmp_path))
+    zoning = find_zones(net, 2, rng=0)
+    multi = zones_geojson(zoning, geometry="nodes")
+    assert [f["geometry"]["type"] for f in multi["features"]] == ["MultiPoint"] * 2
+    assert [len(f["geometry"]["coordinates"]) for f in multi["features"]] == [16, 16]
+    with pytest.raises(ParameterError, match="geometry"):
+        zones_geojson(zoning, geometry="hull")
 
 
 # ------------------------------------------------------------------ Parquet

@@ -2,6 +2,10 @@
 
 Checks what a reader would notice first: the page loads without errors in the
 console, the zone map is there and decoded, the summary table is visible.
+Then the zone maps as SVG files, as ``--figures`` writes them, opened on
+their own: on a 16-zone map every zone number is displayed and touching zones
+(by networkx's quotient graph of the network) show different colours in the
+rendered pixels; on a 200,000-node map every zone number is displayed.
 The screenshot is kept as a test artefact: in the folder named by the
 environment variable ``SPECGRAPH_ARTIFACTS`` when set, else in pytest's
 temporary folder.
@@ -21,10 +25,13 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pytest
 
+from specgraph import find_zones, gallery
 from specgraph.cli import REPORT_FILE, main
 from specgraph.demo import load_demo
+from specgraph.report import figure_bytes, zone_colours, zone_map_figure
 
 CHROMIUM = Path("/usr/bin/chromium")
 CHROMEDRIVER = Path("/usr/bin/chromedriver")
@@ -137,3 +144,122 @@ def test_demo_report_renders_in_chromium(
     }
     assert cells["nodes"] == str(n_nodes)
     assert (artifacts / "demo-report.png").stat().st_size > 0
+
+
+# ------------------------------------------------------------------ maps as SVG files
+#: Half-width (pixels) of the window around a zone number in which its zone's colour is read:
+#: wider than the number's white box (about 30 x 25 pixels at 1,200 pixels across).
+SAMPLE_RADIUS = 30
+
+
+def _open_svg(browser: Any, path: Path) -> Any:
+    from selenium.webdriver.support.ui import WebDriverWait
+
+    browser.get(path.resolve().as_uri())
+    WebDriverWait(browser, PAGE_TIMEOUT).until(
+        lambda d: d.execute_script("return document.readyState") == "complete"
+    )
+    # Draw the map 1,200 px wide whatever its own size (the SVG's width is in points).
+    browser.execute_script(
+        "const s = document.documentElement; s.setAttribute('width', '1200px');"
+        "s.setAttribute('height', '1200px');"
+    )
+    return browser
+
+
+def _label_centres(browser: Any, zones: int) -> dict[int, tuple[float, float]]:
+    """Zone number -> centre (CSS pixels) of its displayed label, for every zone."""
+    from selenium.webdriver.common.by import By
+
+    centres = {}
+    for zone in range(zones):
+        element = browser.find_element(By.ID, f"zone-label-{zone}")
+        assert element.is_displayed()
+        box = browser.execute_script(
+            "const r = arguments[0].getBoundingClientRect();"
+            "return [r.left, r.top, r.width, r.height];",
+            element,
+        )
+        assert box[2] > 0
+        assert box[3] > 0
+        assert box[0] >= 0  # inside the drawn map
+        assert box[0] + box[2] <= 1200
+        centres[zone] = (box[0] + box[2] / 2, box[1] + box[3] / 2)
+    return centres
+
+
+def _touching(zoning: Any) -> set[tuple[int, int]]:
+    import networkx as nx
+
+    net = zoning.network
+    graph = nx.Graph()
+    graph.add_nodes_from(range(net.n_nodes))
+    coo = net.adjacency.tocoo()
+    graph.add_edges_from(zip(coo.row.tolist(), coo.col.tolist(), strict=True))
+    parts = [set(np.flatnonzero(zoning.labels == z).tolist()) for z in range(zoning.n_zones)]
+    return {tuple(sorted(e)) for e in nx.quotient_graph(graph, parts, relabel=True).edges()}
+
+
+def _zone_colour_near(pixels: Any, centre: tuple[float, float], palette: list[Any]) -> int:
+    """Index of the palette colour most present around ``centre`` in a screenshot."""
+    x, y = (round(c) for c in centre)
+    window = pixels[
+        max(0, y - SAMPLE_RADIUS) : y + SAMPLE_RADIUS, max(0, x - SAMPLE_RADIUS) : x + SAMPLE_RADIUS
+    ].reshape(-1, 3)
+    distance = np.linalg.norm(window[:, None, :] - np.array(palette)[None, :, :], axis=2)
+    close = distance.min(axis=1) < 12  # exact colour up to rounding, not an anti-aliased blend
+    return int(np.bincount(distance[close].argmin(axis=1), minlength=len(palette)).argmax())
+
+
+def test_16_zone_map_numbers_every_zone_and_touching_zones_differ(
+    browser: Any, artifacts: Path
+) -> None:
+    from PIL import Image
+
+    zoning = find_zones(gallery.road_like(3_000, rng=1), 16, rng=0)
+    path = artifacts / "zone-map-16.svg"
+    path.write_bytes(figure_bytes(zone_map_figure(zoning), format="svg"))
+    _open_svg(browser, path)
+    centres = _label_centres(browser, 16)
+    shot = artifacts / "zone-map-16.png"
+    shot.write_bytes(browser.get_screenshot_as_png())
+    pixels = np.asarray(Image.open(shot).convert("RGB"), dtype=float)
+    ratio = browser.execute_script("return window.devicePixelRatio") or 1
+    assigned = zone_colours(zoning.network, zoning.labels).colours
+    palette = sorted(set(assigned))
+    rgb = [[int(c[i : i + 2], 16) for i in (1, 3, 5)] for c in palette]
+    seen = {
+        z: palette[_zone_colour_near(pixels, (cx * ratio, cy * ratio), rgb)]
+        for z, (cx, cy) in centres.items()
+    }
+    # The browser shows each zone in its assigned colour, so touching zones differ on screen.
+    assert seen == dict(enumerate(assigned))
+    touching = _touching(zoning)
+    assert touching
+    assert all(seen[a] != seen[b] for a, b in touching)
+
+
+def test_200000_node_map_numbers_every_zone(browser: Any, artifacts: Path) -> None:
+    net = gallery.road_like(200_000, rng=4)
+    xy = net.coordinates
+    # A cheap zoning (blocks of a 6 x 4 grid over the unit square), as find_zones would
+    # take minutes here; the map's drawing does not depend on how zones were found.
+    labels = np.minimum((xy[:, 0] * 6).astype(int), 5) + 6 * np.minimum(
+        (xy[:, 1] * 4).astype(int), 3
+    )
+    from specgraph.diagnostics import boundary_links, overall_scores, zone_table
+    from specgraph.zones import Zoning
+
+    table = zone_table(net, labels)
+    zoning = Zoning(
+        network=net, labels=labels, zones=table, boundary=boundary_links(net, labels),
+        solves=(), scores=overall_scores(table), parameters={},
+    )  # fmt: skip
+    path = artifacts / "zone-map-200000.svg"
+    path.write_bytes(figure_bytes(zone_map_figure(zoning), format="svg"))
+    _open_svg(browser, path)
+    centres = _label_centres(browser, 24)
+    (artifacts / "zone-map-200000.png").write_bytes(browser.get_screenshot_as_png())
+    assert len(centres) == 24
+    severe = [entry for entry in browser.get_log("browser") if entry["level"] == "SEVERE"]
+    assert severe == []
