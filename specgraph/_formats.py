@@ -6,12 +6,13 @@ re-exports every public name of this module, where users find them).
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 import pandas as pd
 
+from ._tables import ordered_boundary, supply_columns
 from ._validation import parameter_error
 from .exceptions import OutputError
 from .zones import Zoning
@@ -29,19 +30,25 @@ __all__ = [
 ]
 
 
-def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
+def zoning_tables(zoning: Zoning, *, sources: Sequence[str] = ()) -> dict[str, pd.DataFrame]:
     """The contract's CSV tables of a zoning, by file name.
 
     ``zones.csv`` (``node,zone``), ``boundary.csv``
-    (``source,target,weight,zone_a,zone_b`` then carried input columns),
+    (``source,target,weight,zone_a,zone_b`` then carried input columns; ordered
+    by zone pair, then weight descending: :func:`specgraph._tables.ordered_boundary`),
     ``zone_summary.csv`` (``zone,nodes,size,internal_weight,boundary_weight,
-    conductance,connected`` then more) and ``spectrum.csv``
-    (``index,eigenvalue,residual`` then more).
+    conductance,connected`` then more; with ``sources`` given, also ``sources``
+    and ``supply_points``: :func:`specgraph._tables.supply_columns`) and
+    ``spectrum.csv`` (``index,eigenvalue,residual,component,gap_after``,
+    eigenvalues numbered from 1).
     """
+    summary = zoning.zones
+    if len(sources):
+        summary = supply_columns(summary, zoning.network.node_ids, zoning.labels, sources)
     return {
         "zones.csv": zoning.to_frame(),
-        "boundary.csv": zoning.boundary,
-        "zone_summary.csv": zoning.zones,
+        "boundary.csv": ordered_boundary(zoning.boundary),
+        "zone_summary.csv": summary,
         "spectrum.csv": zoning.spectrum(),
     }
 

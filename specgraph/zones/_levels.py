@@ -50,6 +50,7 @@ from typing import Any
 
 import numpy as np
 
+from .._progress import report_activity
 from .._validation import parameter_error
 from ..network import Network
 from ._assign import bisection_labels
@@ -275,6 +276,7 @@ def _climb(
     """Refine from the coarsest level down to the finest; one record per level."""
     records: list[dict[str, Any]] = []
     for depth in range(len(ladder.levels) - 1, -1, -1):
+        report_activity("refining level", depth)
         level = ladder.levels[depth]
         if depth < len(ladder.levels) - 1:
             assert level.parent is not None
