@@ -321,7 +321,9 @@ def _zone_and_write(
     step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     sources = tuple(dict.fromkeys([*constraints.sources, *markers]))
-    files, stale = _zoning_files(zoning, record, args, argv, sources)
+    files, stale = _zoning_files(
+        zoning, record, args, argv, sources, supply=tuple(constraints.sources)
+    )
     written = write_outputs(args.out, files, remove=stale)
     _warn(record["warnings"])
     for name, decision in zoning.decisions.items():
@@ -378,9 +380,15 @@ def _zoning_files(
     args: argparse.Namespace,
     argv: list[str],
     sources: tuple[str, ...],
+    *,
+    supply: tuple[str, ...] = (),
 ) -> tuple[dict[str, Any], list[str]]:
-    """The files of a zoning run, and the optional files it does not write (stale)."""
-    tables = zoning_tables(zoning, sources=sources)
+    """The files of a zoning run, and the optional files it does not write (stale).
+
+    ``sources`` are marked on the report's map (the demo's works among them);
+    ``supply`` are the supply-point rules, listed per zone in ``zone_summary.csv``.
+    """
+    tables = zoning_tables(zoning, sources=supply)
     files: dict[str, Any] = {**tables, "run.json": record}
     if args.report:
         from .report import build_report  # matplotlib: loaded only for a report
@@ -438,7 +446,8 @@ def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         )
         step("writing")
         record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
-        files, stale = _zoning_files(zoning, record, args, argv, tuple(constraints.sources))
+        supply = tuple(constraints.sources)
+        files, stale = _zoning_files(zoning, record, args, argv, supply, supply=supply)
         written = write_outputs(args.out, files, remove=stale)
     _warn(record["warnings"])
     for name, decision in zoning.decisions.items():

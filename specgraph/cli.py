@@ -55,7 +55,7 @@ from .zones import (
     parse_zone_spec,
 )
 
-__all__ = ["build_parser", "main", "run"]
+__all__ = ["build_parser", "error_object", "main", "run"]
 
 logger = logging.getLogger("specgraph")
 
@@ -174,7 +174,12 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
 
 def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
     parser.add_argument("--out", default=out, metavar="DIR", help=f"output folder (default {out})")
-    parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
+    parser.add_argument(
+        "--json",
+        action="store_true",
+        help="print a JSON summary on stdout; on failure, a JSON error object (type, "
+        "message, exit_code, file, line, column)",
+    )
     parser.add_argument(
         "--quiet", action="store_true", help="only errors on stderr (no messages, no progress bars)"
     )
