@@ -419,7 +419,8 @@ def refine_by_cycles(
         stop = f"{max_cycles} cycles run (the most asked)"
     cuts: list[float] = []
     small = 0
-    for _ in range(max_cycles if k > 1 else 0):
+    for cycle in range(max_cycles if k > 1 else 0):
+        report_activity("V-cycle", cycle + 1)
         previous = labels
         labels, record = refine_levels(work, labels, rules, rng=rng)
         if record["paired"] and rules.connected and _splits_a_zone(work, previous, labels, k):
