@@ -26,6 +26,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from .._validation import InstanceOf, check_choice, check_int, check_param
+from .._wording import count
 from ..exceptions import OutputError
 from ..export import CAUTION, jsonable, run_record, zoning_tables
 from ._plots import (
@@ -395,7 +396,10 @@ def build_report(
         *_reproduce_sections(command, record),
     ]
     net = zoning.network
-    lede = f"{zoning.n_zones} zones of a network of {net.n_nodes:,} nodes and {net.n_links:,} links"
+    lede = (
+        f"{count(zoning.n_zones, 'zone')} of a network of {count(net.n_nodes, 'node')} and "
+        f"{count(net.n_links, 'link')}"
+    )
     return _page(title, lede, "".join(parts))
 
 
@@ -530,7 +534,7 @@ def _map_section(
     body = _figure_html(
         figures["zone_map"],
         image_id="zone-map",
-        alt=f"map of {zoning.n_zones} zones",
+        alt=f"map of {count(zoning.n_zones, 'zone')}",
         caption=_map_caption(
             zoning.network.n_nodes, raster_above, aggregate_above, colouring, bool(sources)
         ),
