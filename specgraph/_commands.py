@@ -329,7 +329,7 @@ def _zone_and_write(
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
     scores = zoning.scores
-    logger.info("%s", zoning_summary(zoning))
+    logger.info("%s", _zoning_summary(zoning))
     logger.info("wrote %s", ", ".join(str(p) for p in written))
     return {
         "out": str(args.out),
@@ -355,7 +355,7 @@ def _assignment(zoning: Zoning) -> str | None:
     return None if choice is None else str(choice)
 
 
-def zoning_summary(zoning: Zoning) -> str:
+def _zoning_summary(zoning: Zoning) -> str:
     """The one-line console summary of a zoning: count, its confidence, method, figures.
 
     Examples: ``8 zones (count confidence: medium; assigned by multilevel),
@@ -452,7 +452,7 @@ def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     _warn(record["warnings"])
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
-    logger.info("%s", zoning_summary(zoning))
+    logger.info("%s", _zoning_summary(zoning))
     logger.info("wrote %s", ", ".join(str(p) for p in written))
     refinement = zoning.decisions["refinement"]
     return {
@@ -730,7 +730,7 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
     _warn(warnings)
     overall = result.overall
-    logger.info("reference: %s", zoning_summary(reference))
+    logger.info("reference: %s", _zoning_summary(reference))
     logger.info(
         "mean node confidence %.3f; adjusted Rand against the reference: seeds %.3f, "
         "perturbed weights %.3f; %s",

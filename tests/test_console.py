@@ -383,3 +383,27 @@ def test_console_says_one_bridge(tmp_path: Path, capsys: pytest.CaptureFixture[s
     text = "\n".join(console(capsys))
     assert "1 bridge, 2 articulation nodes" in text
     assert not re.search(r"\b1 (zones|bridges|nodes|links|boundary links)\b", text)
+
+
+def test_compile_notice_not_with_quiet_or_json(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]
+) -> None:
+    """The command line asks for the compile notice except with --quiet or --json."""
+    import contextlib
+
+    import specgraph.cli as cli
+
+    asked: list[bool] = []
+
+    @contextlib.contextmanager
+    def recorder(*, enabled: bool):  # type: ignore[no-untyped-def]
+        asked.append(enabled)
+        yield
+
+    monkeypatch.setattr(cli, "compile_notice", recorder)
+    edges = write_edges(tmp_path, nx.cycle_graph(8))
+    for extra in ([], ["--quiet"], ["--json"]):
+        out = str(tmp_path / f"out{len(asked)}")
+        assert main(["spectrum", str(edges), "--count", "3", "--out", out, *extra]) == 0
+    capsys.readouterr()
+    assert asked == [True, False, False]
