@@ -20,6 +20,7 @@ from typing import Any
 from ._guard import check_memory
 from ._progress import stage_progress
 from ._validation import parameter_error
+from ._wording import count, figure, plural
 from .diagnostics import (
     compare_frames,
     labels_from_mapping,
@@ -94,11 +95,34 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
         network = _read_geojson(args)
     else:
         network = _read_table(args)
+    _refuse_without_links(network, args.edges)
     check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
     inputs = [input_record("edges", args.edges)]
     if args.nodes:
         inputs.append(input_record("nodes", args.nodes))
     return network, inputs
+
+
+def _refuse_without_links(network: Network, path: str) -> None:
+    """Refuse a network with no link between two distinct nodes: nothing to zone or measure.
+
+    Self-loops (a link from a node to itself) are dropped on reading (they
+    join nothing); a table holding only such links leaves every node alone.
+    """
+    if network.n_links:
+        return
+    loops = int(network.notes.get("self_loops_dropped", 0) or 0)
+    why = (
+        f"every one of its {count(loops, 'link')} joins a node to itself (a self-loop), "
+        if loops
+        else ""
+    )
+    raise InputError(
+        f"the network has no links between distinct nodes: {why}so its "
+        f"{count(network.n_nodes, 'node')} share no link and there is nothing to zone or "
+        "measure; check the source and target columns (--source, --target)",
+        path=path,
+    )
 
 
 def _read_geojson(args: argparse.Namespace) -> Network:
@@ -302,23 +326,59 @@ def _zone_and_write(
     step("writing")
     record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
     sources = tuple(dict.fromkeys([*constraints.sources, *markers]))
-    files, stale = _zoning_files(zoning, record, args, argv, sources)
+    files, stale = _zoning_files(
+        zoning, record, args, argv, sources, supply=tuple(constraints.sources)
+    )
     figures = _figure_files(args, zoning, sources=sources)
     written = write_outputs(args.out, files, remove=stale)
     written += write_figures(args.out, figures)
-    _warn(zoning.warnings)
+    _warn(record["warnings"])
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
     scores = zoning.scores
-    logger.info(
-        "%d zones, normalized cut %.4g, %d boundary links, all zones connected: %s",
-        scores["zones"],
-        scores["normalized_cut"],
-        scores["boundary_links"],
-        "yes" if scores["all_connected"] else "NO",
-    )
+    logger.info("%s", _zoning_summary(zoning))
     logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "scores": scores, "warnings": list(zoning.warnings)}
+    return {
+        "out": str(args.out),
+        "scores": scores,
+        "zone_count": _count_figures(zoning),
+        "assignment": _assignment(zoning),
+        "warnings": list(record["warnings"]),
+    }
+
+
+def _count_figures(zoning: Zoning) -> dict[str, Any]:
+    """The zone count and its confidence (None when the count was given)."""
+    count_decision = zoning.decisions.get("zone_count", {})
+    return {
+        "zones": zoning.n_zones,
+        "confidence": count_decision.get("confidence"),
+    }
+
+
+def _assignment(zoning: Zoning) -> str | None:
+    """The assignment method actually used (``multilevel``, ``qr``, ...), when recorded."""
+    choice = zoning.decisions.get("assign", {}).get("choice")
+    return None if choice is None else str(choice)
+
+
+def _zoning_summary(zoning: Zoning) -> str:
+    """The one-line console summary of a zoning: count, its confidence, method, figures.
+
+    Examples: ``8 zones (count confidence: medium; assigned by multilevel),
+    normalized cut 0.01521, 18 boundary links, all zones connected: yes``.
+    """
+    scores = zoning.scores
+    confidence = _count_figures(zoning)["confidence"]
+    how = [f"count confidence: {confidence}" if confidence else "count as given"]
+    method = _assignment(zoning)
+    if method:
+        how.append(f"assigned by {method}")
+    return (
+        f"{count(scores['zones'], 'zone')} ({'; '.join(how)}), normalized cut "
+        f"{figure(scores['normalized_cut'])}, {count(scores['boundary_links'], 'boundary link')}"
+        f", all zones connected: {'yes' if scores['all_connected'] else 'NO'}"
+    )
 
 
 def _zoning_files(
@@ -327,9 +387,15 @@ def _zoning_files(
     args: argparse.Namespace,
     argv: list[str],
     sources: tuple[str, ...],
+    *,
+    supply: tuple[str, ...] = (),
 ) -> tuple[dict[str, Any], list[str]]:
-    """The files of a zoning run, and the optional files it does not write (stale)."""
-    tables = zoning_tables(zoning)
+    """The files of a zoning run, and the optional files it does not write (stale).
+
+    ``sources`` are marked on the report's map (the demo's works among them);
+    ``supply`` are the supply-point rules, listed per zone in ``zone_summary.csv``.
+    """
+    tables = zoning_tables(zoning, sources=supply)
     files: dict[str, Any] = {**tables, "run.json": record}
     if args.report:
         from .report import build_report  # matplotlib: loaded only for a report
@@ -398,11 +464,13 @@ def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         )
         step("writing")
         record = run_record(zoning, inputs=inputs, command=["specgraph", *argv])
-        files, stale = _zoning_files(zoning, record, args, argv, tuple(constraints.sources))
+        supply = tuple(constraints.sources)
+        files, stale = _zoning_files(zoning, record, args, argv, supply, supply=supply)
         written = write_outputs(args.out, files, remove=stale)
-    _warn(zoning.warnings)
+    _warn(record["warnings"])
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
+    logger.info("%s", _zoning_summary(zoning))
     logger.info("wrote %s", ", ".join(str(p) for p in written))
     refinement = zoning.decisions["refinement"]
     return {
@@ -410,7 +478,7 @@ def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "scores": zoning.scores,
         "ncut_before": refinement["ncut_before"],
         "moved_nodes": refinement["moved_nodes"],
-        "warnings": list(zoning.warnings),
+        "warnings": list(record["warnings"]),
     }
 
 
@@ -453,11 +521,26 @@ def _cmd_spectrum(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         decisions={"operator": choice.as_decision()},
         results={"eigen_solve": eigen_record(result), "suggested_zone_counts": suggested},
     )
-    write_outputs(args.out, {"spectrum.csv": eigen_table(result), "run.json": record})
+    component = 0 if network.n_components == 1 else None
+    table = eigen_table(result, component=component)
+    written = write_outputs(args.out, {"spectrum.csv": table, "run.json": record})
+    logger.info(
+        "%s computed, lambda_1 = %s to lambda_%d = %s (largest scaled residual %.2g)",
+        count(result.k, "eigenvalue"),
+        figure(float(result.values[0])),
+        result.k,
+        figure(float(result.values[-1])),
+        result.max_residual,
+    )
     for row in suggested:
+        k = row["zones"]
         logger.info(
-            "suggested zones: %d (relative eigengap %.2f)", row["zones"], row["relative_gap"]
+            "suggested: %s (gap after lambda_%d, relative eigengap %.2f)",
+            count(k, "zone"),
+            k,
+            row["relative_gap"],
         )
+    logger.info("wrote %s", ", ".join(str(p) for p in written))
     return {"out": str(args.out), "eigenvalues": result.values.tolist(), "suggested": suggested}
 
 
@@ -501,10 +584,9 @@ def _cmd_score(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     written = write_outputs(args.out, files, remove=stale)
     overall = card.overall
     logger.info(
-        "%d zones, normalized cut %.4g, modularity %.4g, %d flagged as outliers, "
-        "all zones connected: %s",
-        overall["zones"],
-        overall["normalized_cut"],
+        "%s, normalized cut %s, modularity %.4g, %d flagged as outliers, all zones connected: %s",
+        count(overall["zones"], "zone"),
+        figure(overall["normalized_cut"]),
         overall["modularity"],
         overall["flagged_zones"],
         "yes" if overall["all_connected"] else "NO",
@@ -544,14 +626,17 @@ def _cmd_compare(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "run.json": record,
     }
     written = write_outputs(args.out, files)
+    splits, merges = len(result.splits), len(result.merges)
     logger.info(
-        "adjusted Rand %.4f, NMI %.4f, variation of information %.4f nats; %d zones of A "
-        "split, %d zones of B merge several of A",
+        "adjusted Rand %.4f, NMI %.4f, variation of information %.4f nats; %s of A "
+        "%s, %s of B %s several of A",
         result.adjusted_rand,
         result.nmi,
         result.variation_of_information,
-        len(result.splits),
-        len(result.merges),
+        count(splits, "zone"),
+        plural(splits, "splits", "split"),
+        count(merges, "zone"),
+        plural(merges, "merges", "merge"),
     )
     logger.info("wrote %s", ", ".join(str(p) for p in written))
     return {"out": str(args.out), "summary": jsonable(summary)}
@@ -590,19 +675,19 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
     stale = [] if result.zones is not None else ["zone_connectivity.csv"]
     written = write_outputs(args.out, files, remove=stale)
     logger.info(
-        "algebraic connectivity %.4g (normalized %.4g); %d bridges, %d articulation nodes",
-        result.algebraic_connectivity,
-        result.normalized_connectivity,
-        len(result.bridges),
-        len(result.nodes),
+        "algebraic connectivity %s (normalized %s); %s, %s",
+        figure(result.algebraic_connectivity),
+        figure(result.normalized_connectivity),
+        count(len(result.bridges), "bridge"),
+        count(len(result.nodes), "articulation node"),
     )
     if len(result.bridges):
         worst = result.bridges.iloc[0]
         logger.info(
-            "worst bridge %s - %s: its failure cuts off %d nodes (size %g)",
+            "worst bridge %s - %s: its failure cuts off %s (size %g)",
             worst["source"],
             worst["target"],
-            worst["cut_nodes"],
+            count(int(worst["cut_nodes"]), "node"),
             worst["cut_size"],
         )
     logger.info("wrote %s", ", ".join(str(p) for p in written))
@@ -629,13 +714,15 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         **options,
     )
     reference = result.reference
+    # One list: the reference zoning's warnings, then the stability study's.
+    warnings = list(dict.fromkeys([*reference.warnings, *result.warnings]))
     record = run_record(
         command=["specgraph", *argv],
         inputs=inputs,
         network=network,
         parameters={**reference.parameters, **options},
         decisions=reference.decisions,
-        warnings=result.warnings,
+        warnings=warnings,
         results={
             "overall": result.overall,
             "eigengap_checks": result.bounds.to_dict(orient="records"),
@@ -653,6 +740,7 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         files[REPORT_FILE] = build_report(
             reference,
             command=shlex.join(["specgraph", *argv]),
+            record=record,
             stability=result,
             sources=constraints.sources,
             title="Zoning stability report",
@@ -660,18 +748,19 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     figures = _figure_files(args, reference, sources=constraints.sources, stability=result)
     written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
     written += write_figures(args.out, figures)
-    _warn(result.warnings)
+    _warn(warnings)
     overall = result.overall
+    logger.info("reference: %s", _zoning_summary(reference))
     logger.info(
         "mean node confidence %.3f; adjusted Rand against the reference: seeds %.3f, "
-        "perturbed weights %.3f; %d unstable zones",
+        "perturbed weights %.3f; %s",
         overall["mean_confidence"],
         overall["seed_ari_mean"],
         overall["perturbed_ari_mean"],
-        len(overall["unstable_zones"]),
+        count(len(overall["unstable_zones"]), "unstable zone"),
     )
     logger.info("wrote %s", ", ".join(str(p) for p in written))
-    return {"out": str(args.out), "overall": jsonable(overall), "warnings": list(result.warnings)}
+    return {"out": str(args.out), "overall": jsonable(overall), "warnings": warnings}
 
 
 #: Said when ``local`` is asked for a directed network.
@@ -688,8 +777,6 @@ LOCAL_IN_PIECES = (
 
 def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     network, inputs = _read(args)
-    if network.directed:
-        _warn([LOCAL_UNDIRECTED])
     options = {"size_limit": args.size_limit, "alpha": args.alpha}
     found = local_zone(network, args.around, **options)
     warnings = [LOCAL_UNDIRECTED] if network.directed else []
@@ -710,17 +797,15 @@ def _cmd_local(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
         "run.json": record,
     }
     written = write_outputs(args.out, files)
-    if not found.connected:
-        _warn([LOCAL_IN_PIECES])
+    _warn(warnings)
     logger.info(
-        "local zone around %s: %d nodes, conductance %.4g, %d boundary links; the walk "
-        "touched %d of %d nodes",
+        "local zone around %s: %s, conductance %s, %s; the walk touched %d of %s",
         ", ".join(found.seeds),
-        len(found.nodes),
-        found.conductance,
-        len(found.boundary),
+        count(len(found.nodes), "node"),
+        figure(found.conductance),
+        count(len(found.boundary), "boundary link"),
         found.touched,
-        network.n_nodes,
+        count(network.n_nodes, "node"),
     )
     logger.info("wrote %s", ", ".join(str(p) for p in written))
     return {"out": str(args.out), "local_zone": jsonable(figures)}
@@ -737,5 +822,6 @@ COMMANDS = {
     "demo": _cmd_demo,
     "local": _cmd_local,
 }
-#: Commands whose results go to an engineer's decision: their caution is said first.
-CAUTIONED = ("zones", "refine", "demo", "score", "stability", "robustness", "local")
+#: Commands whose caution is said first: every one (each result may reach an
+#: engineer's decision, a spectrum and a comparison included).
+CAUTIONED = tuple(COMMANDS)

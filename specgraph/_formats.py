@@ -6,13 +6,14 @@ re-exports every public name of this module, where users find them).
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Mapping, Sequence
 from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
 
 from ._areas import zone_areas
+from ._tables import ordered_boundary, supply_columns
 from ._validation import check_choice, parameter_error
 from .exceptions import OutputError
 from .zones import Zoning, fragment_table
@@ -35,20 +36,26 @@ __all__ = [
 FRAGMENTS_FILE = "fragments.csv"
 
 
-def zoning_tables(zoning: Zoning) -> dict[str, pd.DataFrame]:
+def zoning_tables(zoning: Zoning, *, sources: Sequence[str] = ()) -> dict[str, pd.DataFrame]:
     """The contract's CSV tables of a zoning, by file name.
 
     ``zones.csv`` (``node,zone``), ``boundary.csv``
-    (``source,target,weight,zone_a,zone_b`` then carried input columns),
+    (``source,target,weight,zone_a,zone_b`` then carried input columns; ordered
+    by zone pair, then weight descending: :func:`specgraph._tables.ordered_boundary`),
     ``zone_summary.csv`` (``zone,nodes,size,internal_weight,boundary_weight,
-    conductance,connected`` then more) and ``spectrum.csv``
-    (``index,eigenvalue,residual`` then more); when stray fragments were set
-    aside, ``fragments.csv`` (``node,fragment,nodes,size``, :data:`FRAGMENTS_FILE`).
+    conductance,connected`` then more; with ``sources`` given, also ``sources``
+    and ``supply_points``: :func:`specgraph._tables.supply_columns`) and
+    ``spectrum.csv`` (``index,eigenvalue,residual,component,gap_after``,
+    eigenvalues numbered from 1); when stray fragments were set aside,
+    ``fragments.csv`` (``node,fragment,nodes,size``, :data:`FRAGMENTS_FILE`).
     """
+    summary = zoning.zones
+    if len(sources):
+        summary = supply_columns(summary, zoning.network.node_ids, zoning.labels, sources)
     tables = {
         "zones.csv": zoning.to_frame(),
-        "boundary.csv": zoning.boundary,
-        "zone_summary.csv": zoning.zones,
+        "boundary.csv": ordered_boundary(zoning.boundary),
+        "zone_summary.csv": summary,
         "spectrum.csv": zoning.spectrum(),
     }
     fragments = fragment_table(zoning)

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 import argparse
 import contextlib
+import io
 import json
 import logging
 import math
@@ -25,7 +26,7 @@ from . import __version__
 from ._commands import CAUTIONED, COMMANDS, REPORT_FILE, holds_nodes
 from ._commands import GEOJSON_FILES as GEOJSON_FILES  # re-exported: tests and users name it
 from ._option_names import for_command_line, option_names
-from ._progress import wants_progress
+from ._progress import compile_notice, wants_progress
 from .diagnostics import (
     DEFAULT_TOP,
 )
@@ -55,7 +56,7 @@ from .zones import (
     parse_zone_spec,
 )
 
-__all__ = ["build_parser", "main", "run"]
+__all__ = ["build_parser", "error_object", "main", "run"]
 
 logger = logging.getLogger("specgraph")
 
@@ -174,7 +175,12 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
 
 def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
     parser.add_argument("--out", default=out, metavar="DIR", help=f"output folder (default {out})")
-    parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
+    parser.add_argument(
+        "--json",
+        action="store_true",
+        help="print a JSON summary on stdout; on failure, a JSON error object (type, "
+        "message, exit_code, file, line, column)",
+    )
     parser.add_argument(
         "--quiet", action="store_true", help="only errors on stderr (no messages, no progress bars)"
     )
@@ -600,8 +606,8 @@ def _add_local_command(commands: Any) -> None:
         "(Andersen-Chung-Lang push) and a sweep cut; only the part of the network the walk "
         "reaches is examined.",
         epilog=_caution_epilog(
-            "  specgraph local pipes.csv --around QJ-0412\n"
-            "  specgraph local pipes.csv --around QJ-0412 QJ-0977 --size-limit 300"
+            "  specgraph local pipes.csv --around QJ-00412\n"
+            "  specgraph local pipes.csv --around QJ-00412 QJ-00977 --size-limit 300"
         ),
         formatter_class=raw,
     )
@@ -712,17 +718,71 @@ def main(argv: Sequence[str] | None = None) -> int:
     """Run the command line; return the exit code (callable from tests)."""
     argv = list(sys.argv[1:] if argv is None else argv)
     parser = build_parser()
-    try:
-        args = parser.parse_args(argv)
-        _check_node_options(parser, args)
-    except SystemExit as exc:  # argparse exits 2 on bad usage, 0 on --help
-        return int(exc.code or 0)
+    args, usage_code = _parse(parser, argv)
+    if args is None:
+        return usage_code
     args.progress = wants_progress(quiet=args.quiet)
+    args.compile_notice = not (args.quiet or args.json)
     with _messages_to_stderr(args.quiet):
         code, summary = _dispatch(args, argv, option_names(parser, args.command))
     if summary is not None and args.json:
         print(json.dumps(summary, indent=2))
     return code
+
+
+def _parse(parser: argparse.ArgumentParser, argv: list[str]) -> tuple[Any, int]:
+    """The parsed options, or None and argparse's exit code (2 bad usage, 0 ``--help``).
+
+    With ``--json`` among the arguments, a usage error is also printed as a
+    JSON error object on stdout (:func:`error_object`), as every other error is.
+    """
+    wants_json = "--json" in argv
+    captured = io.StringIO()
+    try:
+        with contextlib.redirect_stderr(captured) if wants_json else contextlib.nullcontext():
+            args = parser.parse_args(argv)
+            _check_node_options(parser, args)
+    except SystemExit as exc:  # argparse exits 2 on bad usage, 0 on --help
+        code = int(exc.code or 0)
+        if wants_json:
+            sys.stderr.write(captured.getvalue())
+            if code:
+                lines = [line for line in captured.getvalue().splitlines() if line.strip()]
+                message = lines[-1] if lines else "bad usage"
+                message = message.split(": error: ", 1)[-1]
+                _print_error("UsageError", message, code)
+        return None, code
+    sys.stderr.write(captured.getvalue())
+    return args, EXIT_OK
+
+
+def error_object(
+    kind: str, message: str, exit_code: int, error: BaseException | None = None
+) -> dict[str, Any]:
+    """The JSON object ``--json`` prints on stdout when a command fails.
+
+    ``{"error": {"type", "message", "exit_code", "file", "line", "column"}}``:
+    ``type`` is the exception's class name (``InputError``, ``ParameterError``,
+    ``ConstraintError``, ``ConvergenceError``..., ``UsageError`` for a command
+    line argparse refused, ``InternalError`` for an unexpected failure);
+    ``file``, ``line`` and ``column`` are null unless the error names them.
+    """
+    return {
+        "error": {
+            "type": kind,
+            "message": message,
+            "exit_code": exit_code,
+            "file": getattr(error, "path", None),
+            "line": getattr(error, "line", None),
+            "column": getattr(error, "column", None),
+        }
+    }
+
+
+def _print_error(
+    kind: str, message: str, exit_code: int, error: BaseException | None = None
+) -> None:
+    print(json.dumps(error_object(kind, message, exit_code, error), indent=2))
 
 
 def _dispatch(
@@ -740,8 +800,10 @@ def _dispatch(
     """
     if args.command in CAUTIONED:
         logger.info("caution: %s", CAUTION)
+    as_json = bool(getattr(args, "json", False))
     try:
-        summary = COMMANDS[args.command](args, argv)
+        with compile_notice(enabled=getattr(args, "compile_notice", False)):
+            summary = COMMANDS[args.command](args, argv)
     except ConvergenceError as exc:
         logger.error("error: %s", exc)
         logger.error(
@@ -750,18 +812,26 @@ def _dispatch(
         )
         _debug_traceback(args)
         _record_not_converged(args, argv, exc)
+        if as_json:
+            _print_error(type(exc).__name__, str(exc), EXIT_NOT_CONVERGED, exc)
         return EXIT_NOT_CONVERGED, None
     except SpecgraphError as exc:
-        logger.error("error: %s", for_command_line(exc, options or {}))
+        message = for_command_line(exc, options or {})
+        logger.error("error: %s", message)
         _debug_traceback(args)
+        if as_json:
+            _print_error(type(exc).__name__, message, EXIT_INPUT, exc)
         return EXIT_INPUT, None
     except Exception as exc:
+        message = " ".join(str(exc).split())
         logger.error(
             "internal error: %s: %s (rerun with --debug and report it)",
             type(exc).__name__,
-            " ".join(str(exc).split()),
+            message,
         )
         _debug_traceback(args)
+        if as_json:
+            _print_error("InternalError", f"{type(exc).__name__}: {message}", EXIT_INTERNAL)
         return EXIT_INTERNAL, None
     return EXIT_OK, summary
 

@@ -65,6 +65,7 @@ from ._formats import (
     zoning_tables,
 )
 from ._guard import FORMULA_ESCAPE, FORMULA_TRIGGERS, neutralize_frame
+from ._tables import spectrum_frame
 from ._validation import NoneOk, check_param, parameter_error
 from .diagnostics import Scorecard
 from .eigen import EigenResult
@@ -370,11 +371,15 @@ def eigen_record(result: EigenResult) -> dict[str, Any]:
     }
 
 
-def eigen_table(result: EigenResult) -> pd.DataFrame:
-    """``index, eigenvalue, residual`` of one eigen-solve (``spectrum.csv``)."""
-    return pd.DataFrame(
-        {"index": range(result.k), "eigenvalue": result.values, "residual": result.residuals}
-    )
+def eigen_table(result: EigenResult, *, component: int | None = None) -> pd.DataFrame:
+    """``spectrum.csv`` of one eigen-solve: the layout ``zones`` writes too.
+
+    Columns ``index`` (from 1: eigenvalues are numbered from 1 everywhere),
+    ``eigenvalue``, ``residual``, ``component`` (the connected component
+    solved; empty for a solve of a whole network of several components) and
+    ``gap_after`` (:func:`specgraph._tables.spectrum_frame`).
+    """
+    return spectrum_frame(result.values, result.residuals, component=component)
 
 
 def scorecard_tables(

@@ -72,14 +72,15 @@ def write_export(
     n_supplies: int = 6,
     seed: int = 0,
 ) -> ExportShaped:
-    """Write ``edges.csv``, ``nodes.csv``, ``districts.csv`` and ``supplies.csv`` into ``folder``."""
+    """Write ``edges.csv``, ``nodes.csv``, ``districts.csv`` and ``supplies.csv`` to ``folder``."""
     rng = np.random.default_rng(seed)
     points = rng.random((n_main, 2)) * 1000.0  # metres
     simplices = Delaunay(points).simplices
     pairs = np.vstack([simplices[:, [0, 1]], simplices[:, [1, 2]], simplices[:, [0, 2]]])
     pairs = np.unique(np.sort(pairs, axis=1), axis=0)
     full = nx.Graph()
-    for (a, b), d in zip(pairs, np.linalg.norm(points[pairs[:, 0]] - points[pairs[:, 1]], axis=1)):
+    lengths = np.linalg.norm(points[pairs[:, 0]] - points[pairs[:, 1]], axis=1)
+    for (a, b), d in zip(pairs, lengths, strict=True):
         full.add_edge(int(a), int(b), length=float(d))
     tree = nx.minimum_spanning_tree(full, weight="length")
     rest = [e for e in full.edges if not tree.has_edge(*e)]

@@ -302,6 +302,16 @@ def test_self_loop_dropped_and_counted(capsys: pytest.CaptureFixture[str], tmp_p
     assert sorted(zones["node"]) == ["J1", "J2", "J3"]
 
 
+@pytest.mark.parametrize("command", ["zones", "spectrum", "robustness"])
+def test_only_self_loops_refused(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, command: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", "source,target\nJ1,J1\nJ2,J2\n")
+    refused(
+        capsys, tmp_path, command, edges, names=["no links between distinct nodes", "self-loop"]
+    )
+
+
 # ---------------------------------------------------------------------- ids
 def test_leading_zeros_kept(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     edges = write(tmp_path, "edges.csv", "source,target\n007,7\n7,0007\n")

@@ -349,7 +349,7 @@ def test_spectrum_counts_and_suggests_three(tmp_path: Path) -> None:
     assert header_of(out / "spectrum.csv")[:3] == CONTRACT_COLUMNS["spectrum.csv"]
     spectrum = read_csv(out / "spectrum.csv")
     assert len(spectrum) == count
-    assert spectrum["index"].tolist() == list(range(count))
+    assert spectrum["index"].tolist() == list(range(1, count + 1))  # eigenvalues numbered from 1
     values = spectrum["eigenvalue"].to_numpy()
     assert np.all(np.diff(values) >= 0)
     assert abs(values[0]) < 1e-12

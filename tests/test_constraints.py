@@ -327,7 +327,7 @@ def test_zone_without_source_merges_into_the_neighbour_it_shares_most_with():
     labels = np.array([0, 0, 0, 1, 2, 2])
     out = enforce_constraints(net.adjacency, labels, resolved(6, sources=[0, 5]), rng=0)
     assert out.labels.tolist() == [0, 0, 0, 0, 1, 1]
-    assert any("1 zones without a source merged" in note for note in out.notes)
+    assert any("1 zone without a source merged" in note for note in out.notes)
 
 
 def test_component_without_source_is_refused_by_name():

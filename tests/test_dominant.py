@@ -266,12 +266,12 @@ def test_coupler_trouble_names_zones_inside_a_group_and_cut_couplers() -> None:
     labels = np.zeros(network.n_nodes, dtype=np.int64)
     labels[[bus, section]] = 1  # the coupler's two ends alone: a zone of 2
     assert coupler_trouble(find_dominant_links(network.adjacency), labels) == (
-        "1 zones lie inside one group held by dominant links (2 nodes)"
+        "1 zone lies inside one group held by dominant links (2 nodes)"
     )
     labels[:] = 0
     labels[section] = 1  # the pendant section alone: inside its group, its coupler cut
     assert coupler_trouble(find_dominant_links(network.adjacency), labels) == (
-        "1 zones lie inside one group held by dominant links (1 nodes); 1 dominant links cut"
+        "1 zone lies inside one group held by dominant links (1 node); 1 dominant link cut"
     )
 
 

@@ -10,7 +10,15 @@ from pathlib import Path
 import pytest
 
 from specgraph import gallery
-from specgraph._progress import count_progress, progress_bar, stage_progress, wants_progress
+from specgraph._progress import (
+    COMPILE_NOTICE,
+    compile_notice,
+    count_progress,
+    progress_bar,
+    report_activity,
+    stage_progress,
+    wants_progress,
+)
 from specgraph.cli import main
 from specgraph.studies import stability
 
@@ -88,3 +96,53 @@ def test_find_zones_reports_its_stages_in_order() -> None:
     seen.clear()
     find_zones(gallery.barbell(5), 2, rng=0, refine=False, progress=seen.append)
     assert seen == ["solving", "constraints"]
+
+
+def test_activity_within_a_stage_is_shown(capsys: pytest.CaptureFixture[str]) -> None:
+    """An eigen-solve's iterations appear after the stage's name on the open bar."""
+    from specgraph import laplacian, smallest_eigenpairs
+
+    with stage_progress(["reading", "solving"], enabled=True) as step:
+        step("solving")
+        report_activity("refinement pass", 2)
+    assert "refinement pass 2" in capsys.readouterr().err
+    operator = laplacian(gallery.grid(30, 30))
+    with stage_progress(["solving"], enabled=True) as step:
+        step("solving")
+        smallest_eigenpairs(operator, 6, method="lanczos", rng=0)
+    assert re.search(r"Lanczos cycle \d+", capsys.readouterr().err)
+    # With no bar open, reporting draws nothing.
+    report_activity("refinement pass", 1)
+    assert capsys.readouterr().err == ""
+
+
+def test_compile_notice_once_and_only_when_numba_compiles() -> None:
+    """numba raises its ``numba:compile`` event when it compiles (not on a cache hit):
+    a fresh function (no cache) compiles, so the notice is said, once."""
+    from numba import njit
+
+    @njit(cache=False)
+    def add_one(x: int) -> int:
+        return x + 1
+
+    @njit(cache=False)
+    def add_two(x: int) -> int:
+        return x + 2
+
+    said = io.StringIO()
+    with compile_notice(enabled=True, stream=said):
+        add_one(1)
+        add_two(1)
+    assert said.getvalue().count(COMPILE_NOTICE) == 1
+    quiet = io.StringIO()
+    with compile_notice(enabled=True, stream=quiet):
+        add_one(2)  # compiled already: nothing to say
+    assert quiet.getvalue() == ""
+
+    @njit(cache=False)
+    def add_three(x: int) -> int:
+        return x + 3
+
+    with compile_notice(enabled=False, stream=quiet):
+        add_three(1)
+    assert quiet.getvalue() == ""

@@ -1,6 +1,10 @@
-"""The run record's eigengaps come from the one engine, specgraph._figures."""
+"""The run record's eigengaps come from the one engine, specgraph._figures; every command's
+record carries the caution and the warnings the console printed."""
 
 from __future__ import annotations
+
+import json
+from pathlib import Path
 
 import networkx as nx
 import numpy as np
@@ -8,9 +12,11 @@ import pytest
 from closed_forms import path_n
 
 from specgraph import Network, find_zones, gallery
+from specgraph._commands import COMMANDS
 from specgraph._figures import eigengaps, relative_gap
+from specgraph.cli import main
 from specgraph.exceptions import ParameterError
-from specgraph.export import RUN_RECORD_KEYS, run_record
+from specgraph.export import CAUTION, RUN_RECORD_KEYS, run_record
 
 
 @pytest.mark.parametrize(
@@ -72,3 +78,54 @@ def test_record_refusals_name_the_parameter() -> None:
     assert info.value.parameter == "results"
     assert info.value.received == ["inputs"]
     assert "inputs" in RUN_RECORD_KEYS
+
+
+def _command_lines(tmp_path: Path) -> dict[str, list[str]]:
+    """One small run of every command but ``demo`` (tested in test_cli), on networkx's
+    ``connected_caveman_graph(3, 5)`` plus a separate link (two components: a warning)."""
+    graph = nx.connected_caveman_graph(3, 5)
+    graph.add_edge(100, 101)
+    edges = tmp_path / "edges.csv"
+    edges.write_text(
+        "source,target\n" + "".join(f"n{u},n{v}\n" for u, v in graph.edges), encoding="utf-8"
+    )
+    nodes = sorted(graph)
+    zones = tmp_path / "zones.csv"
+    zones.write_text(
+        "node,zone\n" + "".join(f"n{n},{min(n // 5, 2) if n < 100 else 3}\n" for n in nodes),
+        encoding="utf-8",
+    )
+    e, z = str(edges), str(zones)
+    return {
+        "zones": ["zones", e, "--zones", "4"],
+        "refine": ["refine", e, z],
+        "spectrum": ["spectrum", e, "--count", "5"],
+        "score": ["score", e, z],
+        "compare": ["compare", z, z],
+        "robustness": ["robustness", e],
+        "stability": ["stability", e, "--zones", "4", "--repeats", "1"],
+        "local": ["local", e, "--around", "n0"],
+    }
+
+
+def test_every_command_says_and_records_the_caution_and_one_warnings_list(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    runs = _command_lines(tmp_path)
+    assert set(runs) | {"demo"} == set(COMMANDS)
+    warned: dict[str, int] = {}
+    for name, argv in runs.items():
+        out = tmp_path / f"out-{name}"
+        assert main([*argv, "--out", str(out)]) == 0, name
+        lines = [
+            line.removeprefix("specgraph: ")
+            for line in capsys.readouterr().err.splitlines()
+            if line.startswith("specgraph: ")
+        ]
+        record = json.loads((out / "run.json").read_text(encoding="utf-8"))
+        assert lines[0] == f"caution: {CAUTION}", name
+        assert record["caution"] == CAUTION, name
+        printed = [line.removeprefix("warning: ") for line in lines if line.startswith("warning: ")]
+        assert printed == record["warnings"], name
+        warned[name] = len(printed)
+    assert warned["zones"] >= 1  # the two components are warned about

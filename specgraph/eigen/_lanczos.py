@@ -78,6 +78,7 @@ import scipy.linalg as la
 import scipy.sparse as sp
 from scipy.sparse.linalg import splu
 
+from .._progress import report_activity
 from .._validation import check_choice
 from ._problem import Problem, Solution
 from ._subspace import deflate, rayleigh_ritz
@@ -441,6 +442,7 @@ def _run(op: _Transform, problem: Problem, locked: np.ndarray, wanted: int) -> _
     while True:
         converged, theta, small = _cycle(state, start, wanted, problem.tol)
         cycle += 1
+        report_activity("Lanczos cycle", cycle)
         # A basis spanning the whole deflated space gives exact pairs already.
         if converged or cycle >= limit or keep < 1 or size == n - p:
             break

@@ -42,6 +42,7 @@ import numpy as np
 import scipy.linalg as la
 import scipy.sparse as sp
 
+from .._progress import report_activity
 from . import _kernels as kern
 
 __all__ = [
@@ -297,3 +298,4 @@ def lobpcg(
         pap = _symmetric(cp.T @ projected @ cp)
         have_p = True
         iterations += 1
+        report_activity("LOBPCG iteration", iterations)

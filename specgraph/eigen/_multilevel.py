@@ -28,6 +28,7 @@ import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import reverse_cuthill_mckee
 
+from .._progress import report_activity
 from . import _kernels as kern
 from ._hierarchy import Hierarchy, build_hierarchy
 from ._lanczos import solve_lanczos_flip
@@ -120,6 +121,7 @@ def _cascade(hierarchy: Hierarchy, problem: Problem, width: int) -> tuple[np.nda
         block = np.hstack([block, pad])
     iterations = matvecs = 0
     for index in range(len(levels) - 2, 0, -1):
+        report_activity("eigen level", index)
         block = hierarchy.prolong(index, block)
         null = levels[index].null
         outcome = _iterate(hierarchy, index, block, null, problem, CASCADE_ITERATIONS)

@@ -26,6 +26,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from .._validation import InstanceOf, check_choice, check_int, check_param
+from .._wording import count
 from ..exceptions import OutputError
 from ..export import CAUTION, jsonable, run_record, zoning_tables
 from ._plots import (
@@ -203,6 +204,9 @@ def _summary_rows(
     ]
     if "confidence" in count:
         rows.append(("zone count confidence", count["confidence"]))
+    method = zoning.decisions.get("assign", {}).get("choice")
+    if method is not None:
+        rows.append(("assignment method", method))
     rows += [
         ("normalized cut", scores.get("normalized_cut")),
         ("largest zone conductance", scores.get("max_conductance")),
@@ -224,7 +228,8 @@ def _summary_rows(
             ("unstable zones", ", ".join(map(str, overall.get("unstable_zones", []))) or "none"),
             ("zone count trustworthy (Davis-Kahan)", overall.get("zone_count_trustworthy")),
         ]
-    rows.append(("warnings", len(zoning.warnings)))
+    # The run record's list: the one the console printed and run.json holds.
+    rows.append(("warnings", len(record.get("warnings") or [])))
     return rows
 
 
@@ -320,11 +325,13 @@ def build_report(
         for a shell before passing it, e.g. with :func:`shlex.join`).
     record : mapping, optional
         The run record (:func:`specgraph.export.run_record`); built from the
-        zoning when not given.
+        zoning when not given. Its ``warnings`` are the page's warnings (the
+        summary counts them and the warnings section lists them), so the
+        page, ``run.json`` and the console say the same.
     tables : mapping of str to DataFrame, optional
         The result tables by file name (:func:`specgraph.export.zoning_tables`);
         ``zone_summary.csv`` and ``boundary.csv`` are shown. Built from the
-        zoning when not given.
+        zoning (and ``sources``: a supply-point column) when not given.
     stability : Stability, optional
         Stability of the zoning (:func:`specgraph.stability`), for the
         confidence map and per-zone stability table.
@@ -363,7 +370,8 @@ def build_report(
     boundary_rows = check_int(boundary_rows, "boundary_rows", minimum=0)
     check_param(command, "command", [InstanceOf((str,), "a string")])
     record = run_record(zoning) if record is None else record
-    tables = zoning_tables(zoning) if tables is None else tables
+    tables = zoning_tables(zoning, sources=sources) if tables is None else tables
+    warnings = [str(w) for w in record.get("warnings") or []]
     figures = report_figures(
         zoning,
         sources=sources,
@@ -375,7 +383,7 @@ def build_report(
     embed = {"image_format": image_format}
     parts = [
         _caution_box(),
-        _contents(stability is not None, bool(zoning.warnings)),
+        _contents(stability is not None, bool(warnings)),
         _section(
             "summary-section", "Summary", _summary_table(_summary_rows(zoning, record, stability))
         ),
@@ -384,16 +392,19 @@ def build_report(
         _zones_section(tables["zone_summary.csv"], figures, embed),
         "" if stability is None else _stability_section(figures, stability, embed),
         _boundary_section(tables["boundary.csv"], boundary_rows),
-        _warnings_section(zoning.warnings),
+        _warnings_section(warnings),
         *_reproduce_sections(command, record),
     ]
     net = zoning.network
-    lede = f"{zoning.n_zones} zones of a network of {net.n_nodes:,} nodes and {net.n_links:,} links"
+    lede = (
+        f"{count(zoning.n_zones, 'zone')} of a network of {count(net.n_nodes, 'node')} and "
+        f"{count(net.n_links, 'link')}"
+    )
     return _page(title, lede, "".join(parts))
 
 
 def _warnings_section(warnings: Sequence[str]) -> str:
-    """The zoning's warnings, or nothing when there are none."""
+    """The run's warnings (the run record's list, as the console printed it), or nothing."""
     if not warnings:
         return ""
     items = "".join(f"<li>{_esc(w)}</li>" for w in warnings)
@@ -523,7 +534,7 @@ def _map_section(
     body = _figure_html(
         figures["zone_map"],
         image_id="zone-map",
-        alt=f"map of {zoning.n_zones} zones",
+        alt=f"map of {count(zoning.n_zones, 'zone')}",
         caption=_map_caption(
             zoning.network.n_nodes, raster_above, aggregate_above, colouring, bool(sources)
         ),

@@ -298,7 +298,8 @@ def _unstable_message(zones: pd.DataFrame) -> str:
     flagged = zones.loc[zones["unstable"], "zone"].tolist()
     listed = ", ".join(str(z) for z in flagged)
     return (
-        f"{len(flagged)} of {len(zones)} zones are unstable (fewer than "
+        f"{len(flagged)} of {len(zones)} zones {'is' if len(flagged) == 1 else 'are'} "
+        "unstable (fewer than "
         f"{UNSTABLE_CORE_SHARE:.0%} of their nodes stay with them in at least "
         f"{CORE_CONFIDENCE:.0%} of the runs): zone{'s' if len(flagged) > 1 else ''} {listed}"
     )

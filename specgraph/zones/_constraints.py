@@ -161,7 +161,7 @@ def enforce_constraints(
     >>> out.labels.tolist()
     [0, 0, 0, 1, 1, 1]
     >>> out.notes[0]
-    'sources: 1 zones holding 2 sources split into one zone per source'
+    'sources: 1 zone holding 2 sources split into one zone per source'
     """
     matrix = as_csr(adjacency)
     n = matrix.shape[0]

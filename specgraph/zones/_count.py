@@ -25,6 +25,7 @@ import pandas as pd
 
 from .._figures import HIGH_GAP, MEDIUM_GAP, relative_gap
 from .._validation import Array, Constraint, check_int, check_param, parameter_error
+from .._wording import factor_phrase
 from ..exceptions import ParameterError
 
 __all__ = [
@@ -373,13 +374,13 @@ def choose_zone_count(
         sharpest = int(np.nanargmax(jumps))
         if jumps[sharpest] >= NCUT_OVERRULE * jumps[best] and sharpest != best:
             reason += (
-                f", but the normalized cut per zone jumps {jumps[sharpest]:.2g} times after "
-                f"k = {ks[sharpest]} against {jumps[best]:.2g} after k = {k}, so "
+                f", but the normalized cut per zone {factor_phrase(jumps[sharpest])} after "
+                f"k = {ks[sharpest]} against {jumps[best]:.2g} times after k = {k}, so "
                 f"k = {ks[sharpest]} is taken"
             )
             best, confidence = sharpest, "low"
         else:
-            reason += f"; the normalized cut per zone jumps {jumps[best]:.2g} times after it"
+            reason += f"; the normalized cut per zone {factor_phrase(jumps[best])} after it"
     return ZoneCount(ks[best], table, confidence, reason)
 
 

@@ -44,6 +44,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 
 from .._sparse import int32_indexed
+from .._wording import count, plural
 from ..network import Network
 from ._arrays import as_csr
 from ._contract import contract_links
@@ -377,9 +378,9 @@ def coupler_trouble(found: DominantLinks, labels: np.ndarray) -> str:
     >>> a = sp.csr_array(np.array([[0, 1e6, 1, 0], [1e6, 0, 0, 1], [1, 0, 0, 1], [0, 1, 1, 0]]))
     >>> found = find_dominant_links(a)
     >>> coupler_trouble(found, np.array([0, 0, 1, 1]))
-    '1 zones lie inside one group held by dominant links (2 nodes)'
+    '1 zone lies inside one group held by dominant links (2 nodes)'
     >>> coupler_trouble(found, np.array([0, 1, 0, 1]))
-    '1 dominant links cut'
+    '1 dominant link cut'
     """
     if not found.weights.size:
         return ""
@@ -401,10 +402,11 @@ def coupler_trouble(found: DominantLinks, labels: np.ndarray) -> str:
         members = np.bincount(labels, minlength=zones)[inside]
         sizes = ", ".join(str(int(m)) for m in np.sort(members)[:NODE_COUNTS_SHOWN])
         said.append(
-            f"{inside.size} zones lie inside one group held by dominant links ({sizes} nodes)"
+            f"{count(inside.size, 'zone')} {plural(inside.size, 'lies', 'lie')} inside one "
+            f"group held by dominant links ({sizes} {plural(int(members.max()), 'node')})"
         )
     if cut:
-        said.append(f"{cut} dominant links cut")
+        said.append(f"{count(cut, 'dominant link')} cut")
     return "; ".join(said)
 
 

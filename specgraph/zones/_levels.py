@@ -50,6 +50,7 @@ from typing import Any
 
 import numpy as np
 
+from .._progress import report_activity
 from .._validation import parameter_error
 from ..network import Network
 from ._assign import bisection_labels
@@ -275,6 +276,7 @@ def _climb(
     """Refine from the coarsest level down to the finest; one record per level."""
     records: list[dict[str, Any]] = []
     for depth in range(len(ladder.levels) - 1, -1, -1):
+        report_activity("refining level", depth)
         level = ladder.levels[depth]
         if depth < len(ladder.levels) - 1:
             assert level.parent is not None
@@ -417,7 +419,8 @@ def refine_by_cycles(
         stop = f"{max_cycles} cycles run (the most asked)"
     cuts: list[float] = []
     small = 0
-    for _ in range(max_cycles if k > 1 else 0):
+    for cycle in range(max_cycles if k > 1 else 0):
+        report_activity("V-cycle", cycle + 1)
         previous = labels
         labels, record = refine_levels(work, labels, rules, rng=rng)
         if record["paired"] and rules.connected and _splits_a_zone(work, previous, labels, k):

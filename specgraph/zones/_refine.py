@@ -69,6 +69,7 @@ from numba import njit
 
 from .._figures import check_labels, ncut_terms
 from .._figures import normalized_cut as figures_normalized_cut
+from .._progress import report_activity
 from .._validation import (
     NON_NEGATIVE,
     Array,
@@ -618,6 +619,7 @@ def refine_boundary(
     moves = passes = 0
     queued = free
     for _ in range(max_passes if k > 1 else 0):
+        report_activity("refinement pass", passes + 1)
         previous = current.copy()
         # Totals are recomputed each pass so rounding never accumulates across passes.
         cut = _zone_cuts(a.indptr, a.indices, a.data, current, k)

@@ -12,7 +12,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from .._figures import eigengaps
+from .._tables import spectrum_frame
 from ..eigen import EigenResult
 from ..network import Network
 from ._readonly import read_only
@@ -118,26 +118,17 @@ class Zoning:
         return pd.DataFrame({"node": self.network.node_ids, "zone": self.labels})
 
     def spectrum(self) -> pd.DataFrame:
-        """Eigenvalues and scaled residuals of every component solve.
+        """Eigenvalues and scaled residuals of every component solve (``spectrum.csv``).
 
-        Columns ``index`` (0 for the smallest pair of the component),
-        ``eigenvalue``, ``residual``, ``component``, ``gap_after`` (distance to
-        the next eigenvalue; empty for the last).
+        Columns ``index`` (1 for the smallest pair of the component: eigenvalues
+        are numbered from 1 everywhere), ``eigenvalue``, ``residual``,
+        ``component``, ``gap_after`` (distance to the next eigenvalue; empty for
+        the last): the one layout of :func:`specgraph._tables.spectrum_frame`.
         """
-        frames = []
-        for solve in self.solves:
-            values = solve.eigen.values
-            gaps = np.append(eigengaps(values), np.nan)
-            frames.append(
-                pd.DataFrame(
-                    {
-                        "index": np.arange(values.size),
-                        "eigenvalue": values,
-                        "residual": solve.eigen.residuals,
-                        "component": solve.component,
-                        "gap_after": gaps,
-                    }
-                )
-            )
-        columns = ["index", "eigenvalue", "residual", "component", "gap_after"]
-        return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame(columns=columns)
+        frames = [
+            spectrum_frame(s.eigen.values, s.eigen.residuals, component=s.component)
+            for s in self.solves
+        ]
+        if not frames:
+            return spectrum_frame(np.empty(0), np.empty(0), component=None)
+        return pd.concat(frames, ignore_index=True)

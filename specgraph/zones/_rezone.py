@@ -20,6 +20,7 @@ from scipy.optimize import linear_sum_assignment
 from .._figures import normalized_cut
 from .._labels import code_labels
 from .._validation import Array, Interval, NoneOk, check_param, check_rng, parameter_error
+from .._wording import change_phrase, count
 from ..network import Network
 from ._constraints import refuse_infeasible
 from ._levels import in_id_order, refine_by_cycles, within_bounds
@@ -173,8 +174,9 @@ def _record(
     moved = int(np.count_nonzero(inputs[compact] != np.asarray(origin)[final]))
     return {
         "reason": (
-            f"{len(cycles['cycles'])} V-cycles lowered the normalized cut from {before:.4g} "
-            f"to {after:.4g} ({moved:,} nodes changed zone; {cycles['cycles_stop']})"
+            f"{count(len(cycles['cycles']), 'V-cycle')}: "
+            + change_phrase("the normalized cut", before, after, moved, "node move")
+            + f"; {cycles['cycles_stop']}"
         ),
         "ncut_before": before,
         "ncut_after": after,

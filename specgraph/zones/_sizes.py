@@ -18,6 +18,7 @@ import math
 import numpy as np
 import scipy.sparse as sp
 
+from .._wording import count
 from ..eigen import smallest_eigenpairs
 from ..exceptions import ConstraintError, ConvergenceError
 from ..network import Network
@@ -72,7 +73,8 @@ def split_oversize(work: Work) -> None:
             if work.sizes[work.labels == part].sum() > bound * (1 + SIZE_RTOL):
                 stack.append(part)
     work.notes.append(
-        f"max_size: {over.size} zones above {bound:g} split into {over.size + parts} zones"
+        f"max_size: {count(over.size, 'zone')} above {bound:g} split into "
+        f"{count(over.size + parts, 'zone')}"
     )
 
 
@@ -204,7 +206,9 @@ def merge_undersize(work: Work) -> None:
             heapq.heappush(heap, (float(graph.size[y]), y))
     if merged:
         work.labels = graph.relabel(work.labels)
-        work.notes.append(f"min_size: {merged} zones below {bound:g} merged into neighbours")
+        work.notes.append(
+            f"min_size: {count(merged, 'zone')} below {bound:g} merged into neighbours"
+        )
         work.compact()
 
 
@@ -259,8 +263,9 @@ def bring_within_bounds(work: Work) -> None:
     work.labels = result.labels
     nodes = int(work.members[before != result.labels].sum())
     work.notes.append(
-        f"size bounds: {np.count_nonzero(outside)} zones outside the bounds brought within them by "
-        f"moving {nodes} nodes between neighbouring zones ({result.rounds} rounds of transfers)"
+        f"size bounds: {count(int(np.count_nonzero(outside)), 'zone')} outside the bounds brought "
+        f"within them by moving {count(nodes, 'node')} between neighbouring zones "
+        f"({count(int(result.rounds), 'round')} of transfers)"
     )
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from .._wording import count
 from ..exceptions import ConstraintError
 from ._repair import repair
 from ._work import Work, ZoneGraph, nearest_seed
@@ -51,8 +52,8 @@ def _split_at_sources(work: Work, zones: np.ndarray, held: np.ndarray) -> None:
     new[reached] = part[origin[reached]]
     work.labels = new
     work.notes.append(
-        f"sources: {zones.size} zones holding {int(held[zones].sum())} sources split into "
-        "one zone per source"
+        f"sources: {count(zones.size, 'zone')} holding {count(int(held[zones].sum()), 'source')} "
+        "split into one zone per source"
     )
     work.compact()
 
@@ -99,5 +100,7 @@ def _merge_sourceless(work: Work) -> None:
         pending = waiting
     if merged:
         work.labels = graph.relabel(work.labels)
-        work.notes.append(f"sources: {merged} zones without a source merged into neighbours")
+        work.notes.append(
+            f"sources: {count(merged, 'zone')} without a source merged into neighbours"
+        )
         work.compact()
