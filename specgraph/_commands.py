@@ -445,14 +445,7 @@ def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     with stage_progress(REFINE_STAGES, enabled=args.progress) as step:
         step("reading")
         network, inputs = _read(args)
-        labels, coverage = _zone_labels(network, args)
-        if coverage.unassigned:
-            raise InputError(
-                f"{coverage.unassigned} nodes of the network are in no zone (for example "
-                f"{', '.join(coverage.unassigned_examples)}); refine needs a zone for every "
-                "node: add them to the table, or zone the network afresh with `specgraph zones`",
-                path=args.zones_file,
-            )
+        labels, _ = _zone_labels(network, args)  # nodes in no zone: refine_zoning says
         inputs.append(input_record("zones", args.zones_file))
         _check_formats(network, args)
         step("reading rules")
@@ -648,11 +641,13 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
     if args.zones_file:
         labels, coverage = _zone_labels(network, args)
         if coverage.unassigned:
-            raise InputError(
-                f"{coverage.unassigned} nodes of the network are in no zone (for example "
-                f"{', '.join(coverage.unassigned_examples)}); robustness per zone needs every "
-                "node in a zone: complete the table, or leave out --zones-file",
-                path=args.zones_file,
+            _warn(
+                [
+                    f"{count(coverage.unassigned, 'node')} of the network in no zone of "
+                    f"{args.zones_file} (for example "
+                    f"{', '.join(coverage.unassigned_examples)}); they count in no zone's "
+                    "figures (stray pieces and isolated nodes of an export often are in none)"
+                ]
             )
         inputs.append(input_record("zones", args.zones_file))
     options = {"top": args.top, "rng": args.seed, "tol": args.tol, "eigen_method": args.solver}

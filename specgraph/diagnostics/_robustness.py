@@ -56,7 +56,6 @@ from ..operators import laplacian
 from ._cuts import CutStructure, cut_structure
 from ._groups import STACKED_LIMIT, _Groups, _stacked_laplacians
 from ._linkcols import carried_link_columns
-from ._quality import check_labels
 from ._resistance import RESISTANCE_METHODS, SKETCH_ROWS, LinkResistances, _resistances
 from ._spectral import cheeger_bounds
 
@@ -335,6 +334,8 @@ def robustness(
         ),
         "tol": tol,
     }
+    if zone_labels is not None:
+        record["unassigned_nodes"] = int(np.count_nonzero(zone_labels < 0))
     if renamed:
         record["renamed_link_columns"] = renamed
     return Robustness(
@@ -354,13 +355,12 @@ def robustness(
 def _zone_codes(network: Network, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
     """Zones ``0..k-1`` of each node, and the user's name of each (None for zone numbers).
 
-    Zone numbers are checked as before (every node in a zone numbered from 0;
-    a number with no node gets a row of NaN); text labels are coded in sorted
-    text order (:func:`specgraph._labels.code_labels`).
+    Zone numbers are checked as before (numbered from 0; a number with no node
+    gets a row of NaN); text labels are coded in sorted text order
+    (:func:`specgraph._labels.code_labels`). A node in no zone (``-1``, or
+    ``None`` among text labels) is left out of every zone's figures.
     """
-    codes, names = code_labels(labels, n_nodes=network.n_nodes)
-    if names is None:
-        return check_labels(network, codes), None
+    codes, names = code_labels(labels, n_nodes=network.n_nodes, unassigned=True)
     return codes, names
 
 
@@ -406,7 +406,7 @@ def _zone_table(
     """Per zone: connected pieces of its induced sub-network and their algebraic connectivity."""
     k = int(labels.max()) + 1 if labels.size else 0
     coo = network.adjacency.tocoo()
-    inside = labels[coo.row] == labels[coo.col]
+    inside = (labels[coo.row] == labels[coo.col]) & (labels[coo.row] >= 0)
     shape = network.adjacency.shape
     inner = sp.csr_array((coo.data[inside], (coo.row[inside], coo.col[inside])), shape=shape)
     count, piece = connected_components(inner, directed=False)
@@ -416,9 +416,11 @@ def _zone_table(
         for kind in ("combinatorial", "normalized")
     ]
     zone_of_piece = np.zeros(count, dtype=np.int64)
-    zone_of_piece[piece] = labels
-    pieces = np.bincount(zone_of_piece, minlength=k)
-    nodes = np.bincount(labels, minlength=k)
+    zone_of_piece[piece] = labels  # -1: a node in no zone, a piece of its own
+    zoned = np.flatnonzero(zone_of_piece >= 0)
+    assigned = labels >= 0
+    pieces = np.bincount(zone_of_piece[zoned], minlength=k)
+    nodes = np.bincount(labels[assigned], minlength=k)
     columns = {}
     for name, spec in zip(
         ("algebraic_connectivity", "normalized_connectivity"), spectra, strict=True
@@ -426,7 +428,7 @@ def _zone_table(
         value = np.full(k, np.nan)
         single = np.flatnonzero(pieces == 1)
         first_piece = np.full(k, -1, dtype=np.int64)
-        first_piece[zone_of_piece] = np.arange(count)
+        first_piece[zone_of_piece[zoned]] = zoned
         value[single] = spec.values[first_piece[single]]
         value[pieces > 1] = 0.0  # a disconnected zone (Fiedler 1973)
         columns[name] = value
@@ -434,7 +436,9 @@ def _zone_table(
         {
             "zone": np.arange(k),
             "nodes": nodes,
-            "size": np.bincount(labels, weights=network.node_weights, minlength=k),
+            "size": np.bincount(
+                labels[assigned], weights=network.node_weights[assigned], minlength=k
+            ),
             "pieces": pieces,
             "connected": pieces == 1,
             **columns,

@@ -67,6 +67,7 @@ __all__ = [
     "fragment_limit",
     "fragment_table",
     "split_fragments",
+    "whole_zone_table",
     "zone_beside_fragments",
 ]
 
@@ -256,7 +257,7 @@ def zone_beside_fragments(
     k = int(inner.labels.max()) + 1
     labels = np.full(network.n_nodes, k, dtype=np.int64)
     labels[rows] = inner.labels
-    table = _zone_table(network, labels, inner)
+    table = whole_zone_table(network, labels, inner)
     boundary = boundary_links(network, labels)
     if "trunk" in inner.decisions:
         mark_inlets(boundary, int(inner.decisions["trunk"]["trunk_zone"]))
@@ -283,7 +284,7 @@ def zone_beside_fragments(
     )
 
 
-def _zone_table(network: Network, labels: np.ndarray, inner: Zoning) -> pd.DataFrame:
+def whole_zone_table(network: Network, labels: np.ndarray, inner: Zoning) -> pd.DataFrame:
     """The zone table of the whole network, with the inner table's extra columns."""
     table = zone_table(network, labels)
     k = len(inner.zones)

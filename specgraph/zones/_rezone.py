@@ -12,26 +12,31 @@ their identity: every input zone is still one zone, which
 
 from __future__ import annotations
 
+from dataclasses import replace
 from typing import Any
 
 import numpy as np
 from scipy.optimize import linear_sum_assignment
+from scipy.sparse.csgraph import connected_components
 
-from .._figures import normalized_cut
+from .._figures import boundary_links, normalized_cut, overall_scores
 from .._labels import code_labels
 from .._validation import Array, Interval, NoneOk, check_param, check_rng, parameter_error
 from .._wording import change_phrase, count
 from ..network import Network
 from ._constraints import refuse_infeasible
+from ._fragments import whole_zone_table
 from ._levels import in_id_order, refine_by_cycles, within_bounds
 from ._result import Zoning
-from ._rules import ZoneConstraints
+from ._rules import NAMES_SHOWN, ZoneConstraints
 from ._stages import Merged, enforce_rules, merge_together
 from ._zoning import constraint_record, number_by_size, zoning_of
 
 __all__ = ["refine_zoning"]
 
-_LABELS = Array("int", (None,), low=0, description="zone numbers >= 0")
+_UNASSIGNED_OR_ZONE = Array(
+    "int", (None,), low=-1, description="zone numbers >= 0 (-1: a node in no zone)"
+)
 
 
 def refine_zoning(
@@ -105,6 +110,20 @@ def refine_zoning(
     given, names = _given_labels(network, labels)
     max_cycles = check_param(max_cycles, "max_cycles", [Interval(int, 0, None), NoneOk()])
     generator = check_rng(rng)
+    if np.any(given < 0):
+        return _beside_unzoned(network, given, names, constraints, max_cycles, generator)
+    return _refined(network, given, names, constraints, max_cycles, generator)
+
+
+def _refined(
+    network: Network,
+    given: np.ndarray,
+    names: np.ndarray | None,
+    constraints: ZoneConstraints | None,
+    max_cycles: int | None,
+    generator: np.random.Generator,
+) -> Zoning:
+    """:func:`refine_zoning` of a zoning with every node in a zone."""
     rules = (constraints if constraints is not None else ZoneConstraints()).resolve(network)
     if rules.trunk_pairs.size:
         raise parameter_error(
@@ -140,12 +159,84 @@ def refine_zoning(
     return zoning_of(network, final, [], parameters, decisions, [])
 
 
+def _beside_unzoned(
+    network: Network,
+    given: np.ndarray,
+    names: np.ndarray | None,
+    constraints: ZoneConstraints | None,
+    max_cycles: int | None,
+    generator: np.random.Generator,
+) -> Zoning:
+    """Nodes in no zone that form components of their own (stray pieces, isolated nodes of
+    a node table) are left as they are, as the fragments group of :func:`find_zones`
+    (:mod:`._fragments`): one more zone, numbered last, with role ``"fragments"``."""
+    none = given < 0
+    n_comp, component = connected_components(network.adjacency, directed=False)
+    unzoned = np.bincount(component[none], minlength=n_comp) > 0
+    mixed = unzoned & (np.bincount(component[~none], minlength=n_comp) > 0)
+    if mixed.any():
+        linked = np.flatnonzero(none & mixed[component])
+        raise parameter_error(
+            "labels",
+            "a zone for every node linked to a zoned node (nodes in no zone may only "
+            "form components of their own, such as stray pieces)",
+            None,
+            verb="give",
+            shown=f"{count(linked.size, 'node')} in no zone linked to zoned nodes, such as "
+            + ", ".join(repr(str(i)) for i in network.node_ids[linked[:NAMES_SHOWN]]),
+        )
+    rows = np.flatnonzero(~none)
+    inner = _refined(
+        network.subnetwork(rows), given[rows], names, constraints, max_cycles, generator
+    )
+    k = int(inner.labels.max()) + 1
+    labels = np.full(network.n_nodes, k, dtype=np.int64)
+    labels[rows] = inner.labels
+    table = whole_zone_table(network, labels, inner)
+    pieces = int(np.count_nonzero(unzoned))
+    warning = (
+        f"{count(int(none.sum()), 'node')} in no zone of the zoning given, in "
+        f"{count(pieces, 'component')} of their own (stray pieces or isolated nodes), were "
+        f"left as they are: they form zone {k}, the unzoned fragments group (role "
+        f"'fragments'); for example "
+        + ", ".join(repr(str(i)) for i in network.node_ids[np.flatnonzero(none)[:NAMES_SHOWN]])
+    )
+    decision = {
+        "choice": "set_aside",
+        "fragments": pieces,
+        "nodes": int(none.sum()),
+        "zone": k,
+        "reason": warning,
+        "warning": warning,
+    }
+    scores = {
+        **inner.scores,
+        **overall_scores(table.iloc[:k]),  # the zones; the group adds no cut
+        "zones": k + 1,
+        "all_connected": bool(inner.scores["all_connected"]),
+        "districts": k,
+        "fragments": pieces,
+        "fragment_nodes": int(none.sum()),
+    }
+    return replace(
+        inner,
+        network=network,
+        labels=labels,
+        zones=table,
+        boundary=boundary_links(network, labels),
+        scores=scores,
+        decisions={**inner.decisions, "fragments": decision},
+        warnings=(warning, *inner.warnings),
+    )
+
+
 def _given_labels(network: Network, labels: Any) -> tuple[np.ndarray, np.ndarray | None]:
-    """Codes of the zoning given and the user's names of them (None for zone numbers)."""
+    """Codes of the zoning given and the user's names of them (None for zone numbers);
+    ``-1`` (or ``None`` among names) for a node in no zone."""
     array = np.asarray(labels)
     if array.dtype.kind in "OUS" and array.size:
-        return code_labels(array, n_nodes=network.n_nodes)
-    given = check_param(labels, "labels", [_LABELS])
+        return code_labels(array, n_nodes=network.n_nodes, unassigned=True)
+    given = check_param(labels, "labels", [_UNASSIGNED_OR_ZONE])
     if given.size != network.n_nodes:
         raise parameter_error("labels", f"one zone per node ({network.n_nodes})", labels)
     return given, None

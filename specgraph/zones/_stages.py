@@ -24,6 +24,7 @@ from typing import Any
 
 import numpy as np
 
+from .._wording import change_phrase, count
 from ..eigen import EigenResult, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
@@ -432,9 +433,11 @@ def refine_zones(
     )
     decision = {
         "reason": (
-            f"boundary moves lowered the normalized cut from {refined.ncut_before:.4g} "
-            f"to {refined.ncut_after:.4g} ({refined.moves} moves, {refined.passes} "
-            f"passes){merged_note}"
+            "boundary moves: "
+            + change_phrase(
+                "the normalized cut", refined.ncut_before, refined.ncut_after, refined.moves
+            )
+            + f" in {count(refined.passes, 'pass')}{merged_note}"
         ),
         "ncut_before": refined.ncut_before,
         "ncut_after": refined.ncut_after,

@@ -38,6 +38,7 @@ from typing import Any
 import numpy as np
 
 from .._figures import boundary_links, normalized_cut, overall_scores, zone_table
+from .._wording import figure
 from ..eigen import DEFAULT_TOL, EigenResult
 from ..exceptions import ConstraintError
 from ..network import Network
@@ -480,11 +481,14 @@ def _against_levels(
         decisions.update(other.decisions)
         decisions["assign"]["one_level"] = one_level
         decisions["assign"]["reason"] += (
-            f"; lower than the one-level path's {one:.4g} ({one_level['choice']})"
+            f"; on the whole network its normalized cut {figure(multi)} is lower than the "
+            f"one-level path's {figure(one)} ({one_level['choice']})"
         )
         return other.labels
     decisions["assign"]["multilevel_ncut"] = multi
-    decisions["assign"]["reason"] += f" (the multilevel path: {multi:.4g})"
+    decisions["assign"]["reason"] += (
+        f" (on the whole network {figure(one)}; the multilevel path: {figure(multi)})"
+    )
     return labels_w
 
 
