@@ -374,8 +374,12 @@ def _zoning_summary(zoning: Zoning) -> str:
     method = _assignment(zoning)
     if method:
         how.append(f"assigned by {method}")
+    zones, group = count(scores["zones"], "zone"), ""
+    if scores.get("fragment_nodes"):  # the fragments group is a zone row, not a district
+        zones = count(scores["zones"] - 1, "zone")
+        group = f" and the fragments group of {count(int(scores['fragment_nodes']), 'node')}"
     return (
-        f"{count(scores['zones'], 'zone')} ({'; '.join(how)}), normalized cut "
+        f"{zones} ({'; '.join(how)}){group}, normalized cut "
         f"{figure(scores['normalized_cut'])}, {count(scores['boundary_links'], 'boundary link')}"
         f", all zones connected: {'yes' if scores['all_connected'] else 'NO'}"
     )
