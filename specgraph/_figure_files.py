@@ -1,11 +1,11 @@
 """Figures as files: every figure of a run as PNG and SVG in the output folder's ``figures/``.
 
 The figures themselves come from :func:`specgraph.report.report_figures` and
-their bytes from :func:`specgraph.report.figure_files`; this module only
-writes them, atomically like every other output (:func:`specgraph.export.
-write_outputs`: all files of the set or none), into the subfolder
-:data:`FIGURES_FOLDER` of an output folder. It does not import matplotlib,
-so a run without figures stays light.
+their bytes from :func:`specgraph.report.figure_files`; this module names the
+files, and :func:`specgraph.export.write_figures` writes them, atomically like
+every other output (:func:`specgraph.export.write_outputs`: all files of the
+set or none), into the subfolder :data:`FIGURES_FOLDER` of an output folder.
+It does not import matplotlib, so a run without figures stays light.
 
 A run that writes figures removes the figure files of an earlier run that it
 does not write itself (for example ``stability.png`` when the new run has no
@@ -15,11 +15,9 @@ them, so a folder never mixes one run's tables with another run's figures.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
-from pathlib import Path
 from typing import Literal
 
-__all__ = ["FIGURES_FOLDER", "FIGURE_FORMATS", "FIGURE_STEMS", "figure_names", "write_figures"]
+__all__ = ["FIGURES_FOLDER", "FIGURE_FORMATS", "FIGURE_STEMS", "figure_names"]
 
 #: Subfolder of an output folder that receives the figure files.
 FIGURES_FOLDER = "figures"
@@ -38,35 +36,3 @@ def figure_names() -> list[str]:
     ['spectrum.png', 'spectrum.svg']
     """
     return [f"{stem}.{ext}" for stem in FIGURE_STEMS for ext in FIGURE_FORMATS]
-
-
-def write_figures(folder: str | Path, files: Mapping[str, bytes]) -> list[Path]:
-    """Write figure files into ``folder/figures/``, all or nothing; drop the other figures.
-
-    Parameters
-    ----------
-    folder : str or Path
-        The run's output folder.
-    files : mapping of str to bytes
-        File name (``zone_map.svg``...) to its bytes, as
-        :func:`specgraph.report.figure_files` gives them. Empty: only the
-        figure files of an earlier run are removed (the subfolder itself is
-        left, empty, and not created when missing).
-
-    Returns
-    -------
-    list of Path
-        The files written.
-
-    Raises
-    ------
-    OutputError
-        The folder cannot be written.
-    """
-    from .export import write_outputs  # export re-exports this function: import on use
-
-    target = Path(folder) / FIGURES_FOLDER
-    stale = [name for name in figure_names() if name not in files]
-    if not files and not target.is_dir():
-        return []
-    return write_outputs(target, dict(files), remove=stale)

@@ -51,7 +51,7 @@ import numpy as np
 import pandas as pd
 
 from . import _figures
-from ._figure_files import write_figures
+from ._figure_files import FIGURES_FOLDER, figure_names
 from ._formats import (
     FRAGMENTS_FILE,
     boundary_geojson,
@@ -661,3 +661,33 @@ def write_outputs(
         raise
     _commit(folder, staged, stale, journal)
     return [final for _, final in staged]
+
+
+def write_figures(folder: str | Path, files: Mapping[str, bytes]) -> list[Path]:
+    """Write figure files into ``folder/figures/``, all or nothing; drop the other figures.
+
+    Parameters
+    ----------
+    folder : str or Path
+        The run's output folder.
+    files : mapping of str to bytes
+        File name (``zone_map.svg``...) to its bytes, as
+        :func:`specgraph.report.figure_files` gives them. Empty: only the
+        figure files of an earlier run are removed (the subfolder itself is
+        left, empty, and not created when missing).
+
+    Returns
+    -------
+    list of Path
+        The files written.
+
+    Raises
+    ------
+    OutputError
+        The folder cannot be written.
+    """
+    target = Path(folder) / FIGURES_FOLDER
+    stale = [name for name in figure_names() if name not in files]
+    if not files and not target.is_dir():
+        return []
+    return write_outputs(target, dict(files), remove=stale)
