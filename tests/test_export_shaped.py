@@ -41,7 +41,8 @@ def export(tmp_path_factory: pytest.TempPathFactory) -> ExportShaped:
 def zoned(export: ExportShaped, tmp_path_factory: pytest.TempPathFactory) -> Path:
     out = tmp_path_factory.mktemp("zones")
     argv = ["zones", str(export.edges), "--nodes", str(export.nodes), *READ]
-    argv += ["--x-col", "x", "--y-col", "y", "--supply-list", str(export.supplies), "--zones", str(ZONES)]
+    argv += ["--x-col", "x", "--y-col", "y", "--supply-list", str(export.supplies)]
+    argv += ["--zones", str(ZONES)]
     assert main([*argv, "--geojson", "--figures", "--out", str(out), "--quiet"]) == 0
     return out
 
