@@ -182,7 +182,9 @@ def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
         "message, exit_code, file, line, column)",
     )
     parser.add_argument(
-        "--quiet", action="store_true", help="only errors on stderr (no messages, no progress bars)"
+        "--quiet",
+        action="store_true",
+        help="only warnings and errors on stderr (no messages, no progress bars)",
     )
     parser.add_argument("--debug", action="store_true", help="show tracebacks of internal errors")
 
