@@ -419,9 +419,13 @@ def test_zone_areas_cover_their_nodes_do_not_overlap_and_fill_the_buffered_hull(
         assert shapely.covers(area, mine).all()  # each zone's area covers its nodes
         others = points[zoning.labels != zone]
         assert not shapely.contains_properly(area, others).any()  # and no other node inside
-    for a in range(k):
-        for b in range(a + 1, k):
-            assert areas[a].intersection(areas[b]).area <= 1e-9 * areas[a].area
+    # shapely 2.0.0 (the oldest release allowed) reports a floating-point "invalid value"
+    # from its intersection ufunc on polygons that share an edge, with a correct result
+    # (seen in the oldest-pins CI; later releases do not): numpy's error state silences it.
+    with np.errstate(invalid="ignore"):
+        for a in range(k):
+            for b in range(a + 1, k):
+                assert areas[a].intersection(areas[b]).area <= 1e-9 * areas[a].area
     clip = _clip_by_hand(net)
     union = unary_union(areas)
     assert union.area == pytest.approx(clip.area, rel=1e-9)
