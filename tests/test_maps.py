@@ -351,3 +351,27 @@ def test_aggregated_stability_map_marks_the_cells_holding_low_confidence(stable1
     got = {tuple(v) for v in np.floor((centres - low) / (high - low) * cells).astype(int).tolist()}
     assert got == marked
     assert len(centres) == len(marked)
+
+
+def test_the_fragments_group_is_grey_and_not_counted_as_a_zone() -> None:
+    """A stray piece set aside is drawn in the fragments grey, and the title counts the
+    zones asked apart from the group; the group has no link to any zone (networkx), so
+    the colouring stays proper."""
+    from specgraph.report._plots import FRAGMENTS_COLOUR
+
+    graph = nx.grid_2d_graph(30, 30)
+    graph.add_edge("s1", "s2")  # a stray piece of two nodes, under 1% of the network
+    pos = {v: (v if isinstance(v, tuple) else (40.0, 40.0 + (v == "s2"))) for v in graph}
+    net = Network.from_networkx(graph, pos=pos)
+    zoning = find_zones(net, 4, rng=0)
+    group = int(zoning.zones.loc[zoning.zones["role"] == "fragments", "zone"].iloc[0])
+    figure = zone_map_figure(zoning)
+    axes = figure.axes[0]
+    assert axes.get_title(loc="left").startswith("4 zones and the fragments group")
+    dots = next(c for c in axes.collections if isinstance(c, PathCollection))
+    colours = [to_hex(c) for c in dots.get_facecolors()]
+    rows = np.flatnonzero(zoning.labels == group)
+    assert {colours[r] for r in rows} == {FRAGMENTS_COLOUR.lower()}
+    others = np.flatnonzero(zoning.labels != group)
+    assert FRAGMENTS_COLOUR.lower() not in {colours[r] for r in others}
+    assert not list(nx.edge_boundary(graph, ["s1", "s2"]))

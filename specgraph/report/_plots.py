@@ -77,7 +77,7 @@ from __future__ import annotations
 import io
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Literal, cast
 
 import matplotlib
@@ -162,6 +162,9 @@ PALETTE_REFERENCE = (
     'P. Tol, "Colour Schemes", SRON Technical Note SRON/EPS/TN/09-002, issue 3.2 (2021), '
     'qualitative scheme "muted"'
 )
+#: The fragments group (stray pieces set aside, role ``'fragments'``): a neutral
+#: grey that no zone colour is, dark enough to see on white; it is not a zone.
+FRAGMENTS_COLOUR = "#777777"
 #: Boundary links and supply-point markers: black, which no zone colour is.
 BOUNDARY_COLOUR = "#000000"
 #: Sequential colour map of per-node confidence (matplotlib's ``cividis`` [2]_).
@@ -232,7 +235,8 @@ class ZoneColouring:
     Attributes
     ----------
     colours : tuple of str
-        Hex colour of zone ``0, 1, ...``, all from :data:`PALETTE`.
+        Hex colour of zone ``0, 1, ...``, all from :data:`PALETTE` (on maps
+        and bars, the fragments group in :data:`FRAGMENTS_COLOUR`).
     slots : ndarray of int
         Index into :data:`PALETTE` of each zone's colour.
     method : str
@@ -330,6 +334,26 @@ def zone_colours(network: Network, labels: np.ndarray) -> ZoneColouring:
     slots = np.array([found[z] % p for z in range(k)], dtype=np.int64)
     clashes = int(np.count_nonzero(slots[pairs[:, 0]] == slots[pairs[:, 1]]))
     return ZoneColouring(tuple(PALETTE[s] for s in slots.tolist()), slots, method, clashes)
+
+
+def _fragments_zone(zoning: Zoning) -> int | None:
+    """The zone number of the fragments group (role ``'fragments'``), or None."""
+    table = zoning.zones
+    if "role" not in table.columns:
+        return None
+    found = table.loc[table["role"] == "fragments", "zone"]
+    return int(found.iloc[0]) if len(found) else None
+
+
+def _grey_fragments(colouring: ZoneColouring, zoning: Zoning) -> ZoneColouring:
+    """``colouring`` with the fragments group in :data:`FRAGMENTS_COLOUR` (it touches no zone:
+    no link leaves it, so the colouring stays proper)."""
+    group = _fragments_zone(zoning)
+    if group is None or group >= len(colouring.colours):
+        return colouring
+    colours = list(colouring.colours)
+    colours[group] = FRAGMENTS_COLOUR
+    return replace(colouring, colours=tuple(colours))
 
 
 def _balance(graph: nx.Graph, colour: dict[int, int], p: int) -> dict[int, int]:
@@ -1002,7 +1026,7 @@ def zone_map_figure(
     cells = check_int(cells, "cells", minimum=1)
     found_units = coordinate_units(network)
     detail = _detail(network, raster_above, aggregate_above)
-    colouring = colouring or zone_colours(network, zoning.labels)
+    colouring = _grey_fragments(colouring or zone_colours(network, zoning.labels), zoning)
     labels = zoning.labels
     rgb = np.array([to_rgb(c) for c in colouring.colours]).reshape(-1, 3)
     a, b = _links(network)
@@ -1050,9 +1074,13 @@ def zone_map_figure(
         "raster": "links and nodes rasterized",
         "aggregate": f"majority zone per cell, {cells} cells across",
     }[detail]
-    axes.set_title(
-        f"{zoning.n_zones} zones, {network.n_nodes:,} nodes ({how})", fontsize=10, loc="left"
+    group = _fragments_zone(zoning)
+    counted = (
+        f"{zoning.n_zones} zones"
+        if group is None
+        else f"{zoning.n_zones - 1} zones and the fragments group ({group}, grey)"
     )
+    axes.set_title(f"{counted}, {network.n_nodes:,} nodes ({how})", fontsize=10, loc="left")
     _map_legend(axes, colouring, marked, borders=detail == "aggregate")
     return figure
 
@@ -1123,7 +1151,7 @@ def zone_bars_figure(zoning: Zoning, *, colouring: ZoneColouring | None = None) 
         left.set_ylabel("zones")
         figure.suptitle(f"{k} zones (too many for one bar each)", fontsize=10)
         return figure
-    colouring = colouring or zone_colours(zoning.network, zoning.labels)
+    colouring = _grey_fragments(colouring or zone_colours(zoning.network, zoning.labels), zoning)
     figure = _new_figure((8.0, max(2.5, 0.22 * k + 1.2)))
     left, right = figure.subplots(1, 2, sharey=True)
     zones = table["zone"].to_numpy()
