@@ -217,3 +217,17 @@ def test_nodes_in_no_zone_only_as_components_of_their_own() -> None:
     clique = np.sort(nx.laplacian_spectrum(nx.complete_graph(5)))[1]  # 5, closed form
     assert zones.loc["West", "algebraic_connectivity"] == pytest.approx(clique)
     assert zones["nodes"].tolist() == [5, 5]
+
+
+def test_a_network_of_self_loops_only_is_refused_by_the_library_too() -> None:
+    """An edge table whose every link is a self-loop holds no link between two nodes
+    (networkx: ``nx.selfloop_edges`` is all of it): find_zones refuses it, as the command
+    line does, instead of zoning isolated nodes."""
+    from specgraph import Network, find_zones
+    from specgraph.exceptions import ParameterError
+
+    graph = nx.Graph([("QM-J1", "QM-J1"), ("QM-J2", "QM-J2"), ("QM-J3", "QM-J3")])
+    assert nx.number_of_selfloops(graph) == graph.number_of_edges()
+    net = Network.from_links(["QM-J1", "QM-J2", "QM-J3"], ["QM-J1", "QM-J2", "QM-J3"])
+    with pytest.raises(ParameterError, match="link between distinct nodes"):
+        find_zones(net, 2, rng=0)

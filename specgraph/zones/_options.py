@@ -122,6 +122,14 @@ def checked_options(network: Network, zones: Any, *, rng: Any, **given: Any) -> 
     """Step 1 of :func:`find_zones`: every option checked against :data:`ZONING_CONSTRAINTS`."""
     if network.n_nodes == 0:
         raise parameter_error("network", "a network of at least one node", network)
+    if network.n_nodes > 1 and network.n_links == 0:  # self-loops are dropped on reading
+        raise parameter_error(
+            "network",
+            "a network with at least one link between distinct nodes (with none, no two "
+            "nodes share a link and there is nothing to zone)",
+            network,
+            shown=f"{network.n_nodes:,} nodes and no such link",
+        )
     spec = check_spec(zones, network.n_nodes)
     checked = check_params(given, ZONING_CONSTRAINTS)
     if checked["operator"] == "directed" and not network.directed:
