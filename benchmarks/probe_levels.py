@@ -12,13 +12,19 @@ Prints Markdown tables, one per question, on ``gallery.road_like(N, rng=0)``:
 ``cycle``
     nodes per zone where a V-cycle stops coarsening (``CYCLE_PER_ZONE``);
 ``cycles``
-    the normalized cut after each V-cycle (``CYCLE_RTOL``, ``MAX_CYCLES``).
+    the normalized cut after each V-cycle (``CYCLE_RTOL``, ``MAX_CYCLES``);
+``size``
+    one level against multilevel by network size (``--sizes``, each its own
+    ``road_like(N, rng=3)``): ``assign="auto"`` with both paths compared (the
+    one-level cut, the multilevel cut, seconds) and with the multilevel path
+    alone from ``MULTILEVEL_ALONE_NODES`` (seconds), behind that constant.
 
 Usage::
 
     python benchmarks/probe_levels.py                       # every table, 100,000 nodes
     python benchmarks/probe_levels.py --only path --counts 8 16 32 48 64
     python benchmarks/probe_levels.py --only cycles --nodes 1000000 --zones 1000
+    python benchmarks/probe_levels.py --only size --sizes 250000 500000 1000000 --counts 4 16
 
 Times are single runs on a shared 2-core machine: read the ratios.
 """
@@ -68,6 +74,31 @@ def path_table(net: Network, counts: list[int]) -> list[str]:
             f"{multi / one:.3f} | {t_multi / t_one:.2f} |"
         )
         print(lines[-1], flush=True)
+    return lines
+
+
+def size_table(sizes: list[int], counts: list[int]) -> list[str]:
+    lines = [
+        "| nodes | zones | one-level NCut | multilevel NCut | both compared, s | "
+        "multilevel alone, s | time ratio |",
+        "|---:|---:|---:|---:|---:|---:|---:|",
+    ]
+    print("\n".join(lines), flush=True)
+    for n in sizes:
+        net = gallery.road_like(n, rng=3)
+        for k in counts:
+            with patched(MULTILEVEL_ALONE_NODES=10**15):
+                cut_both, t_both, decided = run(net, k)
+            record = decided["assign"]
+            # the one-level cut: the zoning's own when that path won, else recorded beside it
+            one = record.get("one_level", {}).get("ncut", cut_both)
+            with patched(MULTILEVEL_ALONE_NODES=0):
+                cut, t_alone, _ = run(net, k)
+            lines.append(
+                f"| {n:,} | {k} | {one:.4g} | {cut:.4g} | {t_both:.1f} | {t_alone:.1f} | "
+                f"{t_alone / t_both:.2f} |"
+            )
+            print(lines[-1], flush=True)
     return lines
 
 
@@ -126,12 +157,19 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--nodes", type=int, default=100_000)
     parser.add_argument("--zones", type=int, default=162, help="zones of the constant probes")
     parser.add_argument("--counts", type=int, nargs="+", default=[8, 16, 32, 48, 64, 100])
-    parser.add_argument("--only", action="append", choices=["path", "coarsest", "cycle", "cycles"])
+    parser.add_argument("--sizes", type=int, nargs="+", default=[250_000, 500_000, 1_000_000])
+    parser.add_argument(
+        "--only", action="append", choices=["path", "coarsest", "cycle", "cycles", "size"]
+    )
     parser.add_argument("--most-cycles", type=int, default=20)
     args = parser.parse_args(argv)
+    chosen = args.only or ["path", "coarsest", "cycle", "cycles"]
+    if chosen == ["size"]:
+        print("## one level against multilevel, by size\n", flush=True)
+        size_table(args.sizes, args.counts)
+        return 0
     net = gallery.road_like(args.nodes, rng=0)
     print(f"# probe_levels: road_like({args.nodes}, rng=0), {net!r}\n", flush=True)
-    chosen = args.only or ["path", "coarsest", "cycle", "cycles"]
     if "path" in chosen:
         print("## one level against multilevel\n", flush=True)
         path_table(net, args.counts)

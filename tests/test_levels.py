@@ -272,6 +272,36 @@ def test_auto_takes_the_multilevel_path_for_many_zones() -> None:
     assert "multilevel path" in zoning.decisions["assign"]["path"]
 
 
+def test_auto_on_a_large_network_zones_by_levels_and_keeps_the_evidence(monkeypatch) -> None:
+    """From MULTILEVEL_ALONE_NODES up, ``auto`` zones by levels alone but still solves.
+
+    The evidence pairs are those of scipy's ``eigsh`` on the normalized Laplacian
+    (reference library), and the zones are those ``assign="multilevel"`` gives.
+    """
+    from specgraph.zones import _levels
+
+    assert choose_path("auto", "normalized", 2_000, 8).compare
+    monkeypatch.setattr(_levels, "MULTILEVEL_ALONE_NODES", 2_000)
+    path = choose_path("auto", "normalized", 2_000, 8)
+    assert path.multilevel
+    assert path.evidence
+    assert not path.compare
+    assert not choose_path("auto", "directed", 2_000, 8).multilevel
+    net = gallery.road_like(2_000, rng=5)
+    zoning = find_zones(net, 8, trees="keep", dominant="ignore", rng=0)
+    assert zoning.decisions["assign"]["choice"] == "multilevel"
+    assert "2,000 nodes" in zoning.decisions["assign"]["path"]
+    (solve,) = zoning.solves
+    a = net.adjacency
+    d = 1.0 / np.sqrt(np.asarray(a.sum(axis=1)).ravel())
+    lap = sp.eye_array(2_000) - sp.diags_array(d) @ a @ sp.diags_array(d)
+    expected = np.sort(sp.linalg.eigsh(lap, k=9, sigma=-1e-3, which="LM")[0])
+    np.testing.assert_allclose(solve.eigen.values, expected, rtol=1e-6, atol=1e-9)
+    by_levels = find_zones(net, 8, assign="multilevel", trees="keep", dominant="ignore", rng=0)
+    assert adjusted_rand_score(by_levels.labels, zoning.labels) == 1.0
+    _checked(net, zoning, 8)
+
+
 def test_multilevel_on_several_components() -> None:
     """Two road networks side by side: zones shared by size, none spans both (networkx)."""
     a = gallery.road_like(1500, rng=1).adjacency

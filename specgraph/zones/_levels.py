@@ -69,6 +69,7 @@ __all__ = [
     "CYCLE_PER_ZONE",
     "CYCLE_RTOL",
     "MAX_CYCLES",
+    "MULTILEVEL_ALONE_NODES",
     "MULTILEVEL_MIN_ZONES",
     "ZONE_FLOOR_SHARE",
     "CoarseZoner",
@@ -155,6 +156,17 @@ LEVEL_PASSES = REFINE_PASSES
 #: more than the multilevel path, which took 2.2 to 5.9 s
 #: (benchmarks/probe_levels.py, table "one level against multilevel").
 MULTILEVEL_MIN_ZONES = 48
+
+#: ``assign="auto"`` also takes the multilevel path alone, whatever the zone
+#: count, on networks of at least this many nodes (after merging what must stay
+#: together); the whole network's ``k + 1`` smallest pairs are still solved
+#: there, for the eigengap evidence and ``spectrum.csv``, but not assigned
+#: from. The one-level assignment grows faster than the network (recursive
+#: bisection at 16 zones: 17 s at 1,000,000 road-like nodes, 226 s at
+#: 10,000,000, issue "national size") and lost to the multilevel path on every
+#: road-like network measured from 100,000 nodes up (benchmarks/probe_levels.py,
+#: table "one level against multilevel, by size").
+MULTILEVEL_ALONE_NODES = 500_000
 
 #: Up to this many zones the coarsest network is zoned by the one-level
 #: engine with its assignments compared; above it by recursive bisection,
@@ -382,13 +394,26 @@ def refine_levels(
     return refined, {"levels": records, "stop": ladder.stop, "paired": ladder.paired}
 
 
-def _splits_a_zone(work: Network, before: np.ndarray, after: np.ndarray, k: int) -> bool:
-    """Whether ``after`` has a zone in more pieces than the same zone of ``before``."""
-    return bool(
-        np.any(
-            pieces_per_zone(work.adjacency, after, k) > pieces_per_zone(work.adjacency, before, k)
-        )
-    )
+class _Pieces:
+    """Pieces per zone of the zoning a V-cycle starts from, counted once per accepted zoning."""
+
+    def __init__(self, work: Network, labels: np.ndarray, k: int) -> None:
+        self.work, self.k = work, k
+        self.labels = labels
+        self.counts: np.ndarray | None = None
+
+    def splits(self, after: np.ndarray) -> bool:
+        """Whether ``after`` has a zone in more pieces than the same zone now.
+
+        When it does not, ``after`` becomes the zoning compared with next.
+        """
+        if self.counts is None:
+            self.counts = pieces_per_zone(self.work.adjacency, self.labels, self.k)
+        counts = pieces_per_zone(self.work.adjacency, after, self.k)
+        if np.any(counts > self.counts):
+            return True
+        self.labels, self.counts = after, counts
+        return False
 
 
 def refine_by_cycles(
@@ -419,11 +444,14 @@ def refine_by_cycles(
         stop = f"{max_cycles} cycles run (the most asked)"
     cuts: list[float] = []
     small = 0
+    pieces = _Pieces(work, labels, k)
     for cycle in range(max_cycles if k > 1 else 0):
         report_activity("V-cycle", cycle + 1)
         previous = labels
         labels, record = refine_levels(work, labels, rules, rng=rng)
-        if record["paired"] and rules.connected and _splits_a_zone(work, previous, labels, k):
+        if not (record["paired"] and rules.connected):
+            pieces = _Pieces(work, labels, k)
+        elif pieces.splits(labels):
             labels = previous
             stop = (
                 "a cycle split a zone (it moved a coarse node of two nodes that share no "
@@ -448,6 +476,9 @@ class Path:
     #: Whether the one-level path's result is compared with the multilevel
     #: path's (``assign="auto"`` below :data:`MULTILEVEL_MIN_ZONES`).
     compare: bool = False
+    #: Whether the multilevel path also solves the whole network's ``k + 1``
+    #: smallest pairs, as evidence only (:data:`MULTILEVEL_ALONE_NODES`).
+    evidence: bool = False
 
 
 def choose_path(assign: str, kind: str, n_nodes: int, k: int) -> Path:
@@ -476,11 +507,20 @@ def choose_path(assign: str, kind: str, n_nodes: int, k: int) -> Path:
             f"the multilevel path: {k} zones, at least {MULTILEVEL_MIN_ZONES} (one level "
             f"would embed all {n_nodes:,} nodes in {k + 1} eigenvectors)",
         )
+    compare = kind in ("normalized", "random_walk")
+    if compare and n_nodes >= MULTILEVEL_ALONE_NODES:
+        return Path(
+            True,
+            f"the multilevel path: {n_nodes:,} nodes, at least {MULTILEVEL_ALONE_NODES:,} (the "
+            f"one-level assignment is not tried at this size; the {k + 1} smallest pairs are "
+            "still solved, for the eigengap evidence)",
+            evidence=True,
+        )
     return Path(
         False,
         f"the one-level path: {k} zones, fewer than {MULTILEVEL_MIN_ZONES}; the multilevel "
         "path's zones compared with it",
-        compare=kind in ("normalized", "random_walk"),
+        compare=compare,
     )
 
 

@@ -384,6 +384,8 @@ def _zone_once(
     if path.multilevel:
         # Steps 4-5 by levels: coarsen, zone the coarsest, refine back up.
         step4 = _zone_by_levels(network, merged, k, options, solver, stage)
+        if path.evidence:
+            step4 = replace(step4, solves=_evidence_solves(work, k, solver, known))
         decisions.update(step4.decisions)
         labels_w = step4.labels
     else:
@@ -620,6 +622,25 @@ def _zone_components(
     if solver.kind == "directed":
         decisions["directed"] = directed_record(solver.damping, solver.records)
     return _Assigned(raws, solves, notes, decisions, asked)
+
+
+def _evidence_solves(
+    work: Network, k: int, solver: SolveOptions, known: EigenResult | None
+) -> list[ComponentSolve]:
+    """The ``k_c + 1`` smallest pairs of every component split, solved but not assigned from.
+
+    The multilevel path's zones do not come from these pairs; they are kept
+    as the zoning's eigengap evidence (:data:`~._levels.MULTILEVEL_ALONE_NODES`).
+    """
+    per_component, _ = zones_per_component(work, min(k, work.n_nodes))
+    solves = []
+    for comp, k_c in enumerate(per_component.tolist()):
+        if k_c < 2:
+            continue
+        rows = np.flatnonzero(work.component_labels == comp)
+        sub = work if rows.size == work.n_nodes else work.subnetwork(rows)
+        solves.append(ComponentSolve(comp, rows, k_c, solve_component(sub, k_c, solver, known)))
+    return solves
 
 
 def _first_method(methods: list[dict[str, Any]]) -> str:
