@@ -69,6 +69,7 @@ from numba import njit
 
 from .._figures import check_labels, ncut_terms
 from .._figures import normalized_cut as figures_normalized_cut
+from .._jit import entry
 from .._progress import report_activity
 from .._validation import (
     NON_NEGATIVE,
@@ -225,7 +226,7 @@ def _around(a: sp.csr_array, moved: np.ndarray) -> np.ndarray:
     return near
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _zone_cuts(indptr, indices, data, labels, k):  # pragma: no cover - compiled
     """Weight of the links leaving each zone: the cut of :func:`cut_and_volume`, in one loop
     (the refinement recomputes it every pass; tested against it)."""
@@ -370,7 +371,7 @@ def _requeue_neighbours(v, moves, heap, movable, locked, version, rank, args):  
     return keys, items, size
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _refine_pass(
     indptr,
     indices,

@@ -1,0 +1,264 @@
+"""Compiled kernels that do not make the first run after installing wait for numba.
+
+specgraph's loops over nodes and links are numba kernels compiled with
+``cache=True``: the first process compiles them (about 15 s for the zoning
+kernels on the project's 2-core machine), every later one loads them from
+numba's on-disk cache in a fraction of a second. :func:`entry` wraps a kernel
+that Python code calls (an *entry* kernel; the kernels it calls are compiled
+into it) so that, while numba's cache does not hold it yet:
+
+- an input of at most :data:`PLAIN_MAX_ENTRIES` array entries runs the same
+  loop as plain Python (the kernel's ``py_func``, with every kernel it calls
+  swapped for its own plain twin), so nothing compiles in the user's run;
+- the signatures it ran with are handed, when the process exits, to a detached
+  background process (``python -m specgraph._warm``, at low priority, output to
+  the null device) that compiles exactly them into numba's cache, so the next
+  run loads the compiled kernel;
+- a larger input compiles in the user's process, as without this module:
+  plain Python would then cost more than the compilation.
+
+Once the cache holds a kernel's signature, the wrapper only checks a flag
+and calls numba: warm runs are not slower. The read-only arguments named by
+``readonly`` are passed as read-only views (O(1)), so a kernel has one
+signature whether its caller's arrays are writeable or not (numba compiles a
+specialization per array flag: before this, most zoning kernels compiled
+twice).
+
+``SPECGRAPH_BACKGROUND_COMPILE=0`` in the environment turns this off: cold
+kernels then compile in the user's process, as numba does by default.
+
+References
+----------
+numba documentation, "Cache Sharing" and "Cache Invalidation" in "Notes on
+Caching" (the index file per function, keyed by signature and source stamp; the
+cache files are written to a temporary name and renamed, so concurrent
+writers do not corrupt them).
+"""
+
+from __future__ import annotations
+
+import atexit
+import hashlib
+import os
+import pickle
+import subprocess
+import sys
+import tempfile
+import threading
+import types
+import uuid
+from collections.abc import Callable, Iterable
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+__all__ = ["BACKGROUND_ENV", "PLAIN_MAX_ENTRIES", "Kernel", "entry", "spool_dir"]
+
+#: Largest input (entries of the biggest array argument) that runs as plain
+#: Python while a kernel is not in numba's cache. Measured on road-like
+#: networks (benchmarks/bench_first_run.py, docs/benchmarks.md "First run after
+#: install"): plain-Python zoning at 20,000 nodes (CSR index arrays of about
+#: 100,000 entries) takes about as long as compiling the zoning kernels
+#: (about 15 s on the project's 2-core machine); above that, compiling wins.
+PLAIN_MAX_ENTRIES = 100_000
+#: Environment variable: ``0`` turns off the plain path and the background compile.
+BACKGROUND_ENV = "SPECGRAPH_BACKGROUND_COMPILE"
+
+_PENDING: dict[tuple[str, str, tuple[Any, ...]], None] = {}
+_LOCK = threading.Lock()
+_SPAWN_REGISTERED = False
+
+
+def _enabled() -> bool:
+    return os.environ.get(BACKGROUND_ENV, "1") != "0"
+
+
+def spool_dir() -> Path:
+    """Folder of the background compile's request files and lock, one per installed package."""
+    package = str(Path(__file__).resolve().parent)
+    import numba
+
+    key = hashlib.sha256(f"{package}|{numba.__version__}|{sys.version}".encode()).hexdigest()[:16]
+    user = str(os.getuid()) if hasattr(os, "getuid") else "user"
+    return Path(tempfile.gettempdir()) / f"specgraph-warm-{user}" / key
+
+
+class Kernel:
+    """An entry kernel: numba's dispatcher, or its plain twin while numba's cache is cold.
+
+    Calls go to the dispatcher once its cache holds the call's signature (or
+    once it compiled in this process); attributes other than calling (``py_func``,
+    ``signatures``, ...) are the dispatcher's.
+    """
+
+    def __init__(self, dispatcher: Any, readonly: Iterable[int]) -> None:
+        self.dispatcher = dispatcher
+        self.readonly = tuple(readonly)
+        self._compiled = False
+        self._cached: frozenset[tuple[Any, ...]] | None = None
+        self._plain: Callable[..., Any] | None = None
+        self.__doc__ = dispatcher.__doc__
+        self.__name__ = dispatcher.__name__
+        self.__qualname__ = dispatcher.py_func.__qualname__
+        self.__module__ = dispatcher.py_func.__module__
+
+    def __getattr__(self, name: str) -> Any:
+        return getattr(self.dispatcher, name)
+
+    def __call__(self, *args: Any) -> Any:
+        if self.readonly:
+            args = _readonly(args, self.readonly)
+        if self._compiled:
+            return self.dispatcher(*args)
+        return self._cold_call(args)
+
+    def signature_of(self, args: tuple[Any, ...]) -> tuple[Any, ...]:
+        """numba's argument types of a call (as its cache index keys them)."""
+        return tuple(self.dispatcher.typeof_pyval(a) for a in args)
+
+    def in_cache(self, signature: tuple[Any, ...]) -> bool:
+        """Whether numba's on-disk cache holds this signature (for this numba and source)."""
+        if self._cached is None:
+            self._cached = _cached_signatures(self.dispatcher)
+        return signature in self._cached
+
+    def plain(self) -> Callable[..., Any]:
+        """The kernel's plain-Python twin (every kernel it calls plain too)."""
+        if self._plain is None:
+            self._plain = plain_twin(self.dispatcher)
+        return self._plain
+
+    def _cold_call(self, args: tuple[Any, ...]) -> Any:
+        if not _enabled() or _entries(args) > PLAIN_MAX_ENTRIES:
+            self._compiled = True
+            return self.dispatcher(*args)
+        signature = self.signature_of(args)
+        if self.in_cache(signature):
+            self._compiled = True
+            return self.dispatcher(*args)
+        _request(self.__module__, self.__qualname__, signature)
+        return self.plain()(*args)
+
+
+def entry(*, readonly: Iterable[int] = ()) -> Callable[[Callable[..., Any]], Kernel]:
+    """Decorator: compile ``func`` with ``numba.njit(cache=True)`` as an entry :class:`Kernel`.
+
+    ``readonly`` lists the positions of arguments the kernel only reads, passed
+    as read-only views so that one compiled signature serves every caller.
+    """
+
+    def wrap(func: Callable[..., Any]) -> Kernel:
+        from numba import njit
+
+        return Kernel(njit(cache=True)(func), readonly)
+
+    return wrap
+
+
+def _readonly(args: tuple[Any, ...], positions: tuple[int, ...]) -> tuple[Any, ...]:
+    out = list(args)
+    for i in positions:
+        a = out[i]
+        if isinstance(a, np.ndarray) and a.flags.writeable:
+            view = a.view()
+            view.flags.writeable = False
+            out[i] = view
+    return tuple(out)
+
+
+def _entries(args: tuple[Any, ...]) -> int:
+    return max((a.size for a in args if isinstance(a, np.ndarray)), default=0)
+
+
+def _cached_signatures(dispatcher: Any) -> frozenset[tuple[Any, ...]]:
+    """Signatures in numba's cache index of ``dispatcher`` (empty if stale or absent).
+
+    numba has no public call for this; its index (``numba.core.caching``,
+    ``IndexDataCacheFile._load_index``) already returns nothing for another numba
+    version or a changed source file. If numba's internals change, every
+    signature counts as cached: the kernel then compiles as numba does by default.
+    """
+    try:
+        index = dispatcher._cache._cache_file._load_index()
+        return frozenset(key[0] for key in index)
+    except Exception:  # pragma: no cover - depends on numba's internals
+        return _ALL
+
+
+class _All(frozenset):  # type: ignore[type-arg]
+    def __contains__(self, item: object) -> bool:
+        return True
+
+
+_ALL = _All()
+
+
+def plain_twin(dispatcher: Any, memo: dict[int, Any] | None = None) -> Callable[..., Any]:
+    """``dispatcher.py_func`` with the kernels it names (through its globals) plain too.
+
+    The twin runs the same source in the interpreter: numba's own
+    ``py_func`` would call the compiled kernels it names, compiling them.
+    """
+    memo = {} if memo is None else memo
+    if isinstance(dispatcher, Kernel):
+        dispatcher = dispatcher.dispatcher
+    if id(dispatcher) in memo:
+        return memo[id(dispatcher)]  # type: ignore[no-any-return]
+    from numba.core.dispatcher import Dispatcher
+
+    py = dispatcher.py_func
+    scope = dict(py.__globals__)
+    twin = types.FunctionType(py.__code__, scope, py.__name__, py.__defaults__, py.__closure__)
+    twin.__kwdefaults__ = py.__kwdefaults__
+    memo[id(dispatcher)] = twin
+    for name, value in py.__globals__.items():
+        if isinstance(value, Kernel | Dispatcher):
+            scope[name] = plain_twin(value, memo)
+    return twin
+
+
+def _request(module: str, qualname: str, signature: tuple[Any, ...]) -> None:
+    """Remember a signature for the background compile started when this process exits."""
+    global _SPAWN_REGISTERED
+    with _LOCK:
+        _PENDING[module, qualname, signature] = None
+        if not _SPAWN_REGISTERED:
+            atexit.register(start_background_compile)
+            _SPAWN_REGISTERED = True
+
+
+def start_background_compile() -> subprocess.Popen[bytes] | None:
+    """Start ``python -m specgraph._warm`` on the signatures run plain so far (detached).
+
+    The request goes to a file in :func:`spool_dir` that the background process
+    deletes when done. Nothing is started when nothing ran plain; any failure
+    to start is silent (the next run then tries again).
+    """
+    with _LOCK:
+        pending = list(_PENDING)
+        _PENDING.clear()
+    if not pending:
+        return None
+    try:
+        spool = spool_dir()
+        spool.mkdir(parents=True, exist_ok=True)
+        request = spool / f"{uuid.uuid4().hex}.req"
+        tmp = request.with_suffix(".tmp")
+        tmp.write_bytes(pickle.dumps(pending))
+        tmp.replace(request)
+        env = dict(os.environ)
+        env["PYTHONPATH"] = os.pathsep.join(
+            p for p in [str(Path(__file__).resolve().parent.parent), env.get("PYTHONPATH", "")] if p
+        )
+        return subprocess.Popen(
+            [sys.executable, "-m", "specgraph._warm", str(request)],
+            stdin=subprocess.DEVNULL,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+            env=env,
+            start_new_session=True,
+            close_fds=True,
+        )
+    except Exception:  # pragma: no cover - best effort; the next run retries
+        return None
