@@ -1,7 +1,7 @@
 """Compiled kernels that do not make the first run after installing wait for numba.
 
 specgraph's loops over nodes and links are numba kernels compiled with
-``cache=True``: the first process compiles them (about 15 s for the zoning
+``cache=True``: the first process compiles them (about 11 s for the zoning
 kernels on the project's 2-core machine), every later one loads them from
 numba's on-disk cache in a fraction of a second. :func:`entry` wraps a kernel
 that Python code calls (an *entry* kernel; the kernels it calls are compiled
@@ -11,8 +11,8 @@ into it) so that, while numba's cache does not hold it yet:
   loop as plain Python (the kernel's ``py_func``, with every kernel it calls
   swapped for its own plain twin), so nothing compiles in the user's run;
 - the signatures it ran with are handed, when the process exits, to a detached
-  background process (``python -m specgraph._warm``, at low priority, output to
-  the null device) that compiles exactly them into numba's cache, so the next
+  background process (:mod:`specgraph._warm`, at low priority, output to the
+  null device) that compiles exactly them into numba's cache, so the next
   run loads the compiled kernel;
 - a larger input compiles in the user's process, as without this module:
   plain Python would then cost more than the compilation.
@@ -29,10 +29,15 @@ kernels then compile in the user's process, as numba does by default.
 
 References
 ----------
-numba documentation, "Cache Sharing" and "Cache Invalidation" in "Notes on
-Caching" (the index file per function, keyed by signature and source stamp; the
-cache files are written to a temporary name and renamed, so concurrent
-writers do not corrupt them).
+numba developer documentation, "Notes on Caching": one index file (``.nbi``)
+per function listing its compiled signatures, one object file (``.nbc``) per
+signature. numba issue #3470 (maintainers' comment) and
+``numba.core.caching.IndexDataCacheFile`` (numba 0.68.1 source): each file is
+written to a temporary name and moved into place, so a reader never sees a
+half-written file; the index is read, extended and rewritten, so two
+processes adding different signatures at once may drop one of them (it is
+then compiled again later), which the background compile avoids by running
+one at a time.
 """
 
 from __future__ import annotations
@@ -45,6 +50,7 @@ import subprocess
 import sys
 import tempfile
 import threading
+import time
 import types
 import uuid
 from collections.abc import Callable, Iterable
@@ -53,17 +59,36 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["BACKGROUND_ENV", "PLAIN_MAX_ENTRIES", "Kernel", "entry", "spool_dir"]
+__all__ = [
+    "BACKGROUND_ENV",
+    "CACHE_RECHECK_SECONDS",
+    "PLAIN_MAX_ENTRIES",
+    "Kernel",
+    "entry",
+    "spool_dir",
+]
 
 #: Largest input (entries of the biggest array argument) that runs as plain
-#: Python while a kernel is not in numba's cache. Measured on road-like
-#: networks (benchmarks/bench_first_run.py, docs/benchmarks.md "First run after
-#: install"): plain-Python zoning at 20,000 nodes (CSR index arrays of about
-#: 100,000 entries) takes about as long as compiling the zoning kernels
-#: (about 15 s on the project's 2-core machine); above that, compiling wins.
+#: Python while a kernel is not in numba's cache: 100,000 index entries are a
+#: road-like network of 25,000 nodes. Measured on the project's shared 2-core
+#: machine (docs/benchmarks.md, "First run after install"): the zoning
+#: kernels of ``find_zones(road_like(n), 8)`` spend 1.6 s as plain Python at
+#: n = 3,000, 6.1 s at 10,000 and 11.5 s at 25,000, while compiling them (one
+#: signature each) takes about 11 s (more under load); above this size,
+#: compiling in the user's process costs less than the plain loops.
 PLAIN_MAX_ENTRIES = 100_000
+#: Seconds after which a cold kernel reads numba's cache index again (reading
+#: it costs about 0.1 ms; a zoning run calls its entry kernels a few hundred times).
+CACHE_RECHECK_SECONDS = 2.0
 #: Environment variable: ``0`` turns off the plain path and the background compile.
 BACKGROUND_ENV = "SPECGRAPH_BACKGROUND_COMPILE"
+
+#: The background process: this installation's specgraph (its folder appended
+#: to ``sys.path``, after the interpreter's own entries, for a run from a checkout).
+_CHILD = (
+    "import sys; sys.path.append(sys.argv[2]); "
+    "from specgraph._warm import main; raise SystemExit(main(sys.argv[1:2]))"
+)
 
 _PENDING: dict[tuple[str, str, tuple[Any, ...]], None] = {}
 _LOCK = threading.Lock()
@@ -97,6 +122,7 @@ class Kernel:
         self.readonly = tuple(readonly)
         self._compiled = False
         self._cached: frozenset[tuple[Any, ...]] | None = None
+        self._checked = 0.0
         self._plain: Callable[..., Any] | None = None
         self.__doc__ = dispatcher.__doc__
         self.__name__ = dispatcher.__name__
@@ -104,6 +130,8 @@ class Kernel:
         self.__module__ = dispatcher.py_func.__module__
 
     def __getattr__(self, name: str) -> Any:
+        if name.startswith("__") or name == "dispatcher":  # copy and pickle probe dunders
+            raise AttributeError(name)
         return getattr(self.dispatcher, name)
 
     def __call__(self, *args: Any) -> Any:
@@ -118,9 +146,15 @@ class Kernel:
         return tuple(self.dispatcher.typeof_pyval(a) for a in args)
 
     def in_cache(self, signature: tuple[Any, ...]) -> bool:
-        """Whether numba's on-disk cache holds this signature (for this numba and source)."""
-        if self._cached is None:
+        """Whether numba's on-disk cache holds this signature (for this numba and source).
+
+        Read again after :data:`CACHE_RECHECK_SECONDS`, so a long-lived process
+        (a notebook) turns to the compiled kernel once the background compile is done.
+        """
+        now = time.monotonic()
+        if self._cached is None or now - self._checked > CACHE_RECHECK_SECONDS:
             self._cached = _cached_signatures(self.dispatcher)
+            self._checked = now
         return signature in self._cached
 
     def plain(self) -> Callable[..., Any]:
@@ -186,7 +220,7 @@ def _cached_signatures(dispatcher: Any) -> frozenset[tuple[Any, ...]]:
         return _ALL
 
 
-class _All(frozenset):  # type: ignore[type-arg]
+class _All(frozenset):
     def __contains__(self, item: object) -> bool:
         return True
 
@@ -204,7 +238,7 @@ def plain_twin(dispatcher: Any, memo: dict[int, Any] | None = None) -> Callable[
     if isinstance(dispatcher, Kernel):
         dispatcher = dispatcher.dispatcher
     if id(dispatcher) in memo:
-        return memo[id(dispatcher)]  # type: ignore[no-any-return]
+        return memo[id(dispatcher)]
     from numba.core.dispatcher import Dispatcher
 
     py = dispatcher.py_func
@@ -229,7 +263,7 @@ def _request(module: str, qualname: str, signature: tuple[Any, ...]) -> None:
 
 
 def start_background_compile() -> subprocess.Popen[bytes] | None:
-    """Start ``python -m specgraph._warm`` on the signatures run plain so far (detached).
+    """Start the background compile (:mod:`specgraph._warm`) of the signatures run plain so far.
 
     The request goes to a file in :func:`spool_dir` that the background process
     deletes when done. Nothing is started when nothing ran plain; any failure
@@ -247,16 +281,12 @@ def start_background_compile() -> subprocess.Popen[bytes] | None:
         tmp = request.with_suffix(".tmp")
         tmp.write_bytes(pickle.dumps(pending))
         tmp.replace(request)
-        env = dict(os.environ)
-        env["PYTHONPATH"] = os.pathsep.join(
-            p for p in [str(Path(__file__).resolve().parent.parent), env.get("PYTHONPATH", "")] if p
-        )
+        home = str(Path(__file__).resolve().parent.parent)
         return subprocess.Popen(
-            [sys.executable, "-m", "specgraph._warm", str(request)],
+            [sys.executable, "-c", _CHILD, str(request), home],
             stdin=subprocess.DEVNULL,
             stdout=subprocess.DEVNULL,
             stderr=subprocess.DEVNULL,
-            env=env,
             start_new_session=True,
             close_fds=True,
         )

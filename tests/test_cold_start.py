@@ -34,9 +34,11 @@ def _force(monkeypatch: pytest.MonkeyPatch, *, cold: bool) -> list[tuple[Any, ..
     requests: list[tuple[Any, ...]] = []
     monkeypatch.setattr(_jit, "_request", lambda *a: requests.append(a))
     monkeypatch.delenv(_jit.BACKGROUND_ENV, raising=False)
+    if cold:
+        monkeypatch.setattr(_jit, "_cached_signatures", lambda dispatcher: frozenset())
     for kernel in KERNELS:
         monkeypatch.setattr(kernel, "_compiled", not cold)
-        monkeypatch.setattr(kernel, "_cached", frozenset() if cold else None)
+        monkeypatch.setattr(kernel, "_cached", None)
     return requests
 
 
@@ -99,15 +101,18 @@ def test_large_inputs_and_the_switch_compile_in_process(monkeypatch: pytest.Monk
     requests = _force(monkeypatch, cold=True)
     monkeypatch.setattr(_jit, "PLAIN_MAX_ENTRIES", 1)
     np.testing.assert_array_equal(kernel(*args), [1.0, 1.0])
-    assert kernel._compiled and not requests
+    assert kernel._compiled
+    assert not requests
     requests = _force(monkeypatch, cold=True)
     monkeypatch.setenv(_jit.BACKGROUND_ENV, "0")
     kernel(*args)
-    assert kernel._compiled and not requests
+    assert kernel._compiled
+    assert not requests
     requests = _force(monkeypatch, cold=True)
     monkeypatch.setattr(_jit, "PLAIN_MAX_ENTRIES", 3)  # the largest argument has 3 entries
     kernel(*args)
-    assert not kernel._compiled and len(requests) == 1
+    assert not kernel._compiled
+    assert len(requests) == 1
 
 
 def test_background_compile_fills_numbas_cache(
