@@ -117,13 +117,18 @@ class Kernel:
     ``signatures``, ...) are the dispatcher's.
     """
 
-    def __init__(self, dispatcher: Any, readonly: Iterable[int]) -> None:
+    def __init__(
+        self,
+        dispatcher: Any,
+        readonly: Iterable[int],
+        plain: Callable[..., Any] | None = None,
+    ) -> None:
         self.dispatcher = dispatcher
         self.readonly = tuple(readonly)
         self._compiled = False
         self._cached: frozenset[tuple[Any, ...]] | None = None
         self._checked = 0.0
-        self._plain: Callable[..., Any] | None = None
+        self._plain: Callable[..., Any] | None = plain
         self.__doc__ = dispatcher.__doc__
         self.__name__ = dispatcher.__name__
         self.__qualname__ = dispatcher.py_func.__qualname__
@@ -158,7 +163,8 @@ class Kernel:
         return signature in self._cached
 
     def plain(self) -> Callable[..., Any]:
-        """The kernel's plain-Python twin (every kernel it calls plain too)."""
+        """The kernel's plain-Python twin (every kernel it calls plain too), or the
+        vectorized equivalent given to :func:`entry`."""
         if self._plain is None:
             self._plain = plain_twin(self.dispatcher)
         return self._plain
@@ -175,17 +181,22 @@ class Kernel:
         return self.plain()(*args)
 
 
-def entry(*, readonly: Iterable[int] = ()) -> Callable[[Callable[..., Any]], Kernel]:
+def entry(
+    *, readonly: Iterable[int] = (), plain: Callable[..., Any] | None = None
+) -> Callable[[Callable[..., Any]], Kernel]:
     """Decorator: compile ``func`` with ``numba.njit(cache=True)`` as an entry :class:`Kernel`.
 
     ``readonly`` lists the positions of arguments the kernel only reads, passed
     as read-only views so that one compiled signature serves every caller.
+    ``plain`` is a numpy function returning the very same arrays (same
+    operations in the same order), run instead of the kernel's source while
+    the cache is cold.
     """
 
     def wrap(func: Callable[..., Any]) -> Kernel:
         from numba import njit
 
-        return Kernel(njit(cache=True)(func), readonly)
+        return Kernel(njit(cache=True)(func), readonly, plain)
 
     return wrap
 

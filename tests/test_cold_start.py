@@ -65,16 +65,19 @@ def test_each_kernel_plain_twin_equals_the_compiled_kernel() -> None:
     labels = np.arange(net.n_nodes, dtype=np.int64) % 4
     for kernel, args in [
         (_refine._zone_cuts, (ptr, idx, w, labels, 4)),
+        (_refine._zone_cuts, (ptr, idx, w, labels, 6)),  # two zones without nodes
         (_trees._peel, (ptr, idx, net.n_nodes)),
     ]:
         compiled = kernel.dispatcher(*_jit._readonly(args, kernel.readonly))
-        plain = kernel.plain()(*args)
-        for c, p in zip(
-            compiled if isinstance(compiled, tuple) else (compiled,),
-            plain if isinstance(plain, tuple) else (plain,),
-            strict=True,
-        ):
-            np.testing.assert_array_equal(c, p)
+        # the plain path (numpy for _zone_cuts) and the kernel's own source, uncompiled
+        for plain in (kernel.plain()(*args), _jit.plain_twin(kernel)(*args)):
+            for c, p in zip(
+                compiled if isinstance(compiled, tuple) else (compiled,),
+                plain if isinstance(plain, tuple) else (plain,),
+                strict=True,
+            ):
+                assert c.dtype == p.dtype
+                np.testing.assert_array_equal(c, p)
 
 
 def test_one_signature_for_writeable_and_read_only_arrays() -> None:

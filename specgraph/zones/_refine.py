@@ -226,7 +226,16 @@ def _around(a: sp.csr_array, moved: np.ndarray) -> np.ndarray:
     return near
 
 
-@entry(readonly=(0, 1, 2))
+def _zone_cuts_numpy(indptr, indices, data, labels, k):
+    """:func:`_zone_cuts` vectorized, for a cold numba cache: ``np.bincount`` adds the
+    cut links' weights in the loop's order, so the sums are the same to the bit."""
+    end = indptr[labels.size]
+    rows = np.repeat(labels, np.diff(indptr[: labels.size + 1]))
+    cross = labels[indices[:end]] != rows
+    return np.bincount(rows[cross], weights=data[:end][cross], minlength=k).astype(np.float64)
+
+
+@entry(readonly=(0, 1, 2), plain=_zone_cuts_numpy)
 def _zone_cuts(indptr, indices, data, labels, k):  # pragma: no cover - compiled
     """Weight of the links leaving each zone: the cut of :func:`cut_and_volume`, in one loop
     (the refinement recomputes it every pass; tested against it)."""
