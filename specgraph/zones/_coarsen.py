@@ -48,6 +48,8 @@ import numpy as np
 import scipy.sparse as sp
 from numba import njit
 
+from .._jit import entry
+
 __all__ = [
     "MIN_SHRINK",
     "STALL_SHARE",
@@ -138,7 +140,7 @@ def _may_merge(u, v, sizes, apart, sources, cap):  # pragma: no cover - compiled
     return apart[u] < 0 or apart[v] < 0 or apart[u] == apart[v]
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _match(indptr, indices, data, volumes, sizes, apart, sources, cap, order):  # pragma: no cover
     """Heavy-link matching: ``mate[v]`` is the node merged with ``v`` (itself if none)."""
     n = volumes.size
@@ -160,7 +162,7 @@ def _match(indptr, indices, data, volumes, sizes, apart, sources, cap, order):  
     return mate
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _pair_leftovers(
     indptr, indices, data, mate, sizes, apart, sources, cap, order
 ):  # pragma: no cover
@@ -183,7 +185,7 @@ def _pair_leftovers(
             waiting[hub] = v
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _contract(indptr, indices, data, parent, starts, members):  # pragma: no cover - compiled
     """CSR arrays of :math:`P^T A P` without its diagonal: the links between coarse nodes,
     parallel links summed, links inside a coarse node dropped (they stay in its volume).

@@ -69,6 +69,7 @@ from numba import njit
 
 from .._figures import check_labels, ncut_terms
 from .._figures import normalized_cut as figures_normalized_cut
+from .._jit import entry
 from .._progress import report_activity
 from .._validation import (
     NON_NEGATIVE,
@@ -225,7 +226,16 @@ def _around(a: sp.csr_array, moved: np.ndarray) -> np.ndarray:
     return near
 
 
-@njit(cache=True)
+def _zone_cuts_numpy(indptr, indices, data, labels, k):
+    """:func:`_zone_cuts` vectorized, for a cold numba cache: ``np.bincount`` adds the
+    cut links' weights in the loop's order, so the sums are the same to the bit."""
+    end = indptr[labels.size]
+    rows = np.repeat(labels, np.diff(indptr[: labels.size + 1]))
+    cross = labels[indices[:end]] != rows
+    return np.bincount(rows[cross], weights=data[:end][cross], minlength=k).astype(np.float64)
+
+
+@entry(readonly=(0, 1, 2), plain=_zone_cuts_numpy)
 def _zone_cuts(indptr, indices, data, labels, k):  # pragma: no cover - compiled
     """Weight of the links leaving each zone: the cut of :func:`cut_and_volume`, in one loop
     (the refinement recomputes it every pass; tested against it)."""
@@ -370,7 +380,7 @@ def _requeue_neighbours(v, moves, heap, movable, locked, version, rank, args):  
     return keys, items, size
 
 
-@njit(cache=True)
+@entry(readonly=(0, 1, 2))
 def _refine_pass(
     indptr,
     indices,

@@ -36,8 +36,8 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from numba import njit
 
+from .._jit import entry
 from .._validation import UNIT, Array, SquareMatrix, check_int, check_param
 
 __all__ = [
@@ -99,7 +99,7 @@ class TreeSplit:
         return int(np.bincount(hanging).max())
 
 
-@njit(cache=True)
+@entry()
 def _peel(indptr, indices, n):  # pragma: no cover - compiled
     """Round-by-round removal of nodes of degree <= 1: removal round and parent."""
     degree = np.empty(n, dtype=np.int64)
@@ -147,7 +147,7 @@ def _peel(indptr, indices, n):  # pragma: no cover - compiled
     return removed, parent, order[:done]
 
 
-@njit(cache=True)
+@entry()
 def _roots(removed, parent, order, n):  # pragma: no cover - compiled
     """Root and depth of every node, walking the removal order backwards."""
     root = np.arange(n)
