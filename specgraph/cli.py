@@ -25,6 +25,7 @@ from typing import Any
 from . import __version__
 from ._commands import CAUTIONED, COMMANDS, REPORT_FILE, holds_nodes
 from ._commands import GEOJSON_FILES as GEOJSON_FILES  # re-exported: tests and users name it
+from ._guard import out_of_memory
 from ._option_names import for_command_line, option_names
 from ._progress import compile_notice, wants_progress
 from .diagnostics import (
@@ -823,6 +824,13 @@ def _dispatch(
         _debug_traceback(args)
         if as_json:
             _print_error(type(exc).__name__, message, EXIT_INPUT, exc)
+        return EXIT_INPUT, None
+    except MemoryError as exc:  # not foreseen by the guard: the stage and the need, exit 2
+        refusal = out_of_memory(exc)
+        logger.error("error: %s", refusal)
+        _debug_traceback(args)
+        if as_json:
+            _print_error(type(refusal).__name__, str(refusal), EXIT_INPUT, refusal)
         return EXIT_INPUT, None
     except Exception as exc:
         message = " ".join(str(exc).split())
