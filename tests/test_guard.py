@@ -83,7 +83,21 @@ def test_the_peak_is_the_largest_stage_of_the_task() -> None:
     assert all(value >= MEMORY_BASE_BYTES for _, value in estimate.stages)
     spectrum = estimate_memory(10**6, 2 * 10**6, zones=16, task="spectrum")
     assert spectrum.peak <= estimate.peak  # a subset of the stages
-    assert estimate_memory(0, 0).peak == MEMORY_BASE_BYTES
+    fixed = max(stage.fixed for stage in STAGE_COSTS)
+    assert estimate_memory(0, 0).peak == MEMORY_BASE_BYTES + fixed
+
+
+def test_zones_beyond_the_multilevel_threshold_cost_no_more_in_a_zoning() -> None:
+    # From MULTILEVEL_MIN_ZONES zones assign="auto" computes no eigenvector of the
+    # whole network, so the zoning's per-zone cost stops there; a spectrum's does not.
+    from specgraph.zones import MULTILEVEL_MIN_ZONES
+
+    assert _guard.ZONING_ZONES_CAP == MULTILEVEL_MIN_ZONES
+    n, m = 10**6, 2 * 10**6
+    at_cap = estimate_memory(n, m, zones=MULTILEVEL_MIN_ZONES).peak
+    assert estimate_memory(n, m, zones=1_000).peak == at_cap
+    spectrum = estimate_memory(n, m, zones=MULTILEVEL_MIN_ZONES, task="spectrum").peak
+    assert estimate_memory(n, m, zones=1_000, task="spectrum").peak > spectrum
 
 
 def test_the_estimate_refuses_bad_arguments() -> None:
