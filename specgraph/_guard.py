@@ -278,8 +278,8 @@ class StageCost:
 
 
 _PROBE = (
-    "benchmarks/probe_memory_model.py --networks 250000:3 250000:5 500000:4 1000000:4 "
-    "--zones 16 (gallery.road_like, ids R<i>; VmHWM per stage)"
+    "benchmarks/probe_memory_model.py on gallery.road_like networks 250000:3, 250000:5, "
+    "500000:4 and 1000000:4 (nodes:mean degree, ids R<i>), 16 zones; VmHWM per stage"
 )
 
 #: Resident memory of the interpreter with specgraph, numpy, scipy and pandas
@@ -342,7 +342,14 @@ ZONING_ZONES_CAP = 48
 #: processes (common practice).
 MEMORY_FRACTION = 0.9
 
-#: Bytes of each text figure a file sample is read in, at its start, middle
+#: Largest mean degree (links per node, times two) the check before reading
+#: assumes, to bound the nodes of a table from its rows. Road, water, power
+#: and telecom networks have mean degrees of about 2 to 6 (from memory; the
+#: road-like gallery networks of the probe have 3 to 5), so 20 leaves a wide
+#: margin; a denser network is only checked after reading.
+PLAUSIBLE_MEAN_DEGREE = 20
+
+#: Bytes of each sample of a file read, at its start, middle
 #: and end, to estimate the rows of a CSV file before reading it.
 SAMPLE_BYTES = 64 * 2**10
 
@@ -812,18 +819,25 @@ def check_table_memory(
     what: str = "this run",
     budget: MemoryBudget | None = None,
 ) -> MemoryEstimate | None:
-    """Before reading ``path``: refuse when even the smallest network it can hold won't fit.
+    """Before reading ``path``: refuse when even the smallest plausible network won't fit.
 
     The links are the estimated rows (:func:`table_rows`); the nodes the
-    fewest that many links can join, ``n`` with ``n (n - 1) / 2 >= m``
-    (a complete graph), so only a file that cannot fit whatever its
-    network is refused. Returns None when the rows cannot be estimated.
+    fewest that many links can plausibly join: a mean degree of at most
+    :data:`PLAUSIBLE_MEAN_DEGREE`, and never fewer than a complete graph
+    needs (``n (n - 1) / 2 >= m``). So only a file that cannot fit as any
+    such network is refused, before the time and memory of reading it.
+    Returns None when the rows cannot be estimated.
     """
     rows = table_rows(path)
     if not rows:
         return None
-    fewest_nodes = math.ceil((1 + math.sqrt(1 + 8 * rows)) / 2)
-    return check_memory(fewest_nodes, rows, zones=zones, task=task, what=what, budget=budget)
+    complete = math.ceil((1 + math.sqrt(1 + 8 * rows)) / 2)
+    fewest = max(complete, math.ceil(2 * rows / PLAUSIBLE_MEAN_DEGREE))
+    said = (
+        f"{what} (before reading: about {rows:,} rows, so at least {fewest:,} nodes at a mean "
+        f"degree of at most {PLAUSIBLE_MEAN_DEGREE})"
+    )
+    return check_memory(fewest, rows, zones=zones, task=task, what=said, budget=budget)
 
 
 # ------------------------------------------------------------- out of memory

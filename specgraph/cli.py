@@ -69,7 +69,8 @@ DEFAULT_SPECTRUM_COUNT = 20
 _EXIT_CODES = """\
 exit codes:
   0  success
-  2  bad usage or bad input (the message names the file, line and column)
+  2  bad usage or bad input (the message names the file, line and column),
+     or too little memory (the message names the stage and what would fit)
   3  the eigen-solve did not reach its tolerance; no zones were written, only
      not-converged.json with the partial figures
   1  unexpected internal error (please report it with --debug output)

@@ -345,15 +345,21 @@ def test_refusal_before_reading_a_real_file(
     assert not out.exists()
 
 
-def test_check_table_memory_assumes_the_fewest_nodes(tmp_path: Path) -> None:
-    edges = tmp_path / "edges.csv"
-    edges.write_text("source,target\n" + "".join(f"A{i},B{i}\n" for i in range(1_000)))
-    estimate = check_table_memory(edges, budget=_budget(64 * GIB))
-    assert estimate is not None
-    rows = estimate.n_links
-    # The fewest nodes m links can join: n (n - 1) / 2 >= m (a complete graph).
-    n = estimate.n_nodes
-    assert n * (n - 1) // 2 >= rows > (n - 1) * (n - 2) // 2
+def test_check_table_memory_assumes_the_fewest_plausible_nodes(tmp_path: Path) -> None:
+    def fewest(rows: int) -> int:
+        edges = tmp_path / f"edges{rows}.csv"
+        edges.write_text("source,target\n" + "".join(f"A{i},B{i}\n" for i in range(rows)))
+        estimate = check_table_memory(edges, budget=_budget(64 * GIB))
+        assert estimate is not None
+        assert 0.8 * rows <= estimate.n_links <= rows
+        return estimate.n_nodes
+
+    # Few rows: the fewest nodes m links can join at all, n (n - 1) / 2 >= m (a
+    # complete graph; 10 links need 5 nodes).
+    assert fewest(10) == 5
+    # Many rows: the mean degree 2 m / n of a plausible network bounds n from below.
+    links = 100_000
+    assert fewest(links) >= 2 * 0.8 * links / _guard.PLAUSIBLE_MEAN_DEGREE
 
 
 # ------------------------------------------------------------- out of memory
