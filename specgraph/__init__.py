@@ -25,11 +25,13 @@ from .exceptions import (
     ConvergenceError,
     InputError,
     ParameterError,
+    ResourceError,
     SpecgraphError,
 )
 
 if TYPE_CHECKING:  # the names below are loaded on first use (PEP 562), see __getattr__
     from . import gallery, interop
+    from ._guard import MemoryBudget, MemoryEstimate, check_memory, estimate_memory, memory_budget
     from .diagnostics import boundary_links, compare, score, zone_table
     from .eigen import EigenResult, smallest_eigenpairs
     from .estimator import ZoneSplitter
@@ -68,6 +70,11 @@ _LAZY = {
     "zone_table": "diagnostics",
     "read_edges": "io",
     "stability": "studies",
+    "MemoryBudget": "_guard",
+    "MemoryEstimate": "_guard",
+    "check_memory": "_guard",
+    "estimate_memory": "_guard",
+    "memory_budget": "_guard",
 }
 
 #: Subpackages and modules reachable as attributes (``specgraph.zones``) once
@@ -115,20 +122,26 @@ __all__ = [
     "GraphOperator",
     "InputError",
     "LocalZone",
+    "MemoryBudget",
+    "MemoryEstimate",
     "Network",
     "ParameterError",
+    "ResourceError",
     "SpecgraphError",
     "StationaryResult",
     "ZoneSplitter",
     "Zoning",
     "__version__",
     "boundary_links",
+    "check_memory",
     "compare",
+    "estimate_memory",
     "find_zones",
     "gallery",
     "interop",
     "laplacian",
     "local_zone",
+    "memory_budget",
     "read_edges",
     "refine_zoning",
     "score",

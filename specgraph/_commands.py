@@ -13,11 +13,12 @@ from __future__ import annotations
 import argparse
 import logging
 import shlex
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
-from ._guard import check_memory
+from ._guard import check_memory, check_table_memory, note_stage
 from ._progress import stage_progress
 from ._validation import parameter_error
 from ._wording import count, figure, plural
@@ -90,13 +91,37 @@ def _node_table(args: argparse.Namespace) -> str:
     return str(args.nodes) if args.nodes else str(args.edges)
 
 
+#: Stages of the memory model each command runs (:data:`specgraph._guard.TASK_STAGES`);
+#: every other command zones.
+_MEMORY_TASKS = {"spectrum": "spectrum", "score": "reading", "compare": "reading"}
+#: Zone count the memory guard assumes for ``--zones auto``: the eigenpairs
+#: the count search asks for first (``FIRST_PAIRS`` of specgraph.zones._count).
+AUTO_ZONES_FOR_MEMORY = 12
+
+
+def _memory_check(args: argparse.Namespace, network: Network | None = None) -> None:
+    """The memory guard: before reading from the file's size, after from the counts."""
+    spec = getattr(args, "count" if args.command == "spectrum" else "zones", None)
+    zones = spec if isinstance(spec, int) else AUTO_ZONES_FOR_MEMORY
+    if isinstance(spec, range):
+        zones = spec.stop - 1
+    options: dict[str, Any] = {"zones": zones, "task": _MEMORY_TASKS.get(args.command, "zoning")}
+    what = f"{args.command} {args.edges}"
+    if network is None:
+        check_table_memory(args.edges, **options, what=what)
+    else:
+        check_memory(network.n_nodes, network.n_links, **options, loaded=True, what=what)
+
+
 def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
+    note_stage("reading")
+    _memory_check(args)
     if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:
         network = _read_geojson(args)
     else:
         network = _read_table(args)
     _refuse_without_links(network, args.edges)
-    check_memory(network.n_nodes, network.n_links, what=f"{args.command} {args.edges}")
+    _memory_check(args, network)
     inputs = [input_record("edges", args.edges)]
     if args.nodes:
         inputs.append(input_record("nodes", args.nodes))
@@ -308,6 +333,18 @@ ZONING_STAGES = ["reading", "reading rules", "solving", "constraints", "refining
 REFINE_STAGES = ["reading", "reading rules", "refining", "writing"]
 
 
+@contextmanager
+def _stages(names: Sequence[str], *, enabled: bool) -> Iterator[Callable[[str], None]]:
+    """:func:`stage_progress`, each stage also noted for the memory guard's messages."""
+    with stage_progress(list(names), enabled=enabled) as step:
+
+        def step_and_note(stage: str) -> None:
+            note_stage(stage)
+            step(stage)
+
+        yield step_and_note
+
+
 def _zone_and_write(
     network: Network,
     inputs: list[dict[str, Any]],
@@ -437,7 +474,7 @@ def _figure_files(args: argparse.Namespace, zoning: Zoning, **options: Any) -> d
 
 
 def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
-    with stage_progress(ZONING_STAGES, enabled=args.progress) as step:
+    with _stages(ZONING_STAGES, enabled=args.progress) as step:
         step("reading")
         network, inputs = _read(args)
         logger.info("read %r", network)
@@ -446,7 +483,7 @@ def _cmd_zones(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
 
 def _cmd_refine(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     """V-cycles on a zoning read from a node,zone table; the outputs of ``zones``."""
-    with stage_progress(REFINE_STAGES, enabled=args.progress) as step:
+    with _stages(REFINE_STAGES, enabled=args.progress) as step:
         step("reading")
         network, inputs = _read(args)
         labels, _ = _zone_labels(network, args)  # nodes in no zone: refine_zoning says
@@ -492,7 +529,7 @@ def _cmd_demo(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
     logger.info("demo: the invented town of Quillmere, %r", network)
     # The demo zones without rules; its treatment works are shown on the map as markers.
     works = read_node_list(files.sources, node="node")
-    with stage_progress(ZONING_STAGES[1:], enabled=args.progress) as step:
+    with _stages(ZONING_STAGES[1:], enabled=args.progress) as step:
         return _zone_and_write(network, inputs, args, argv, step, markers=works)
 
 

@@ -25,6 +25,7 @@ from typing import Any
 from . import __version__
 from ._commands import CAUTIONED, COMMANDS, REPORT_FILE, holds_nodes
 from ._commands import GEOJSON_FILES as GEOJSON_FILES  # re-exported: tests and users name it
+from ._guard import out_of_memory
 from ._option_names import for_command_line, option_names
 from ._progress import compile_notice, wants_progress
 from .diagnostics import (
@@ -68,7 +69,8 @@ DEFAULT_SPECTRUM_COUNT = 20
 _EXIT_CODES = """\
 exit codes:
   0  success
-  2  bad usage or bad input (the message names the file, line and column)
+  2  bad usage or bad input (the message names the file, line and column),
+     or too little memory (the message names the stage and what would fit)
   3  the eigen-solve did not reach its tolerance; no zones were written, only
      not-converged.json with the partial figures
   1  unexpected internal error (please report it with --debug output)
@@ -823,6 +825,13 @@ def _dispatch(
         _debug_traceback(args)
         if as_json:
             _print_error(type(exc).__name__, message, EXIT_INPUT, exc)
+        return EXIT_INPUT, None
+    except MemoryError as exc:  # not foreseen by the guard: the stage and the need, exit 2
+        refusal = out_of_memory(exc)
+        logger.error("error: %s", refusal)
+        _debug_traceback(args)
+        if as_json:
+            _print_error(type(refusal).__name__, str(refusal), EXIT_INPUT, refusal)
         return EXIT_INPUT, None
     except Exception as exc:
         message = " ".join(str(exc).split())

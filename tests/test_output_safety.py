@@ -28,20 +28,12 @@ import pytest
 
 from specgraph import _guard
 from specgraph._guard import (
-    BASE_BYTES,
-    BYTES_PER_LINK,
-    BYTES_PER_NODE,
     FORMULA_ESCAPE,
     FORMULA_TRIGGERS,
-    MEMORY_FRACTION,
-    available_memory,
-    check_memory,
-    estimate_peak_memory,
     neutralize_text,
     restore_text,
 )
 from specgraph.cli import main
-from specgraph.exceptions import ParameterError, ResourceError, SpecgraphError
 from specgraph.export import recover_outputs, write_outputs
 
 #: The OWASP list, written out here independently of the module constant.
@@ -365,60 +357,7 @@ def _dead_pid() -> int:
     return int(child.stdout)
 
 
-# ------------------------------------------------------------ memory guard
-def test_estimate_is_the_documented_linear_model() -> None:
-    assert estimate_peak_memory(10, 20) == BASE_BYTES + 10 * BYTES_PER_NODE + 20 * BYTES_PER_LINK
-    with pytest.raises(ParameterError, match="n_links"):
-        estimate_peak_memory(10, -1)
-
-
-def test_check_memory_passes_when_it_fits() -> None:
-    need = estimate_peak_memory(1_000, 2_000)
-    assert check_memory(1_000, 2_000, what="zoning", available=int(need / MEMORY_FRACTION) + 1) == (
-        need
-    )
-
-
-def test_check_memory_refuses_with_what_would_fit() -> None:
-    gib = 2**30
-    with pytest.raises(ResourceError) as info:
-        check_memory(50_000_000, 100_000_000, what="zoning edges.csv", available=4 * gib)
-    err = info.value
-    assert isinstance(err, SpecgraphError)
-    assert isinstance(err, MemoryError)
-    message = str(err)
-    assert message.startswith("zoning edges.csv: a network of 50,000,000 nodes")
-    assert "4.0 GiB is available" in message
-    # The advertised part size must itself pass the check, and one more node
-    # per link-density unit must not (the figure is the largest that fits).
-    fits = int(_found(r"at most about ([\d,]+) nodes", message).replace(",", ""))
-    check_memory(fits, 2 * fits, what="part", available=4 * gib)
-    with pytest.raises(ResourceError):
-        check_memory(fits + 1, 2 * (fits + 1), what="part", available=4 * gib)
-    needed = float(_found(r"at least ([\d.]+) GiB", message))
-    check_memory(50_000_000, 100_000_000, what="zoning", available=int((needed + 0.1) * gib))
-
-
-def _found(pattern: str, text: str) -> str:
-    match = re.search(pattern, text)
-    assert match is not None, (pattern, text)
-    return match[1]
-
-
-def test_unknown_memory_means_no_check(monkeypatch: pytest.MonkeyPatch) -> None:
-    monkeypatch.setattr(_guard, "available_memory", lambda: None)
-    assert check_memory(10**9, 10**9, what="zoning") == estimate_peak_memory(10**9, 10**9)
-
-
-def test_available_memory_reads_the_kernel_figure() -> None:
-    found = available_memory()
-    if not Path("/proc/meminfo").exists():
-        pytest.skip("no /proc/meminfo on this system")
-    # Linux proc(5): MemAvailable in kB.
-    text = Path("/proc/meminfo").read_text()
-    kib = int(_found(r"(?m)^MemAvailable:\s+(\d+) kB", text))
-    assert found is not None
-    assert abs(found - kib * 1024) < 2**30
+# The memory guard's tests are in tests/test_guard.py.
 
 
 def test_sha256_helper_matches_hashlib(tmp_path: Path) -> None:
