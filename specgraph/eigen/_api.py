@@ -44,10 +44,11 @@ from .._validation import (
     check_rng,
     validate_params,
 )
-from ..exceptions import ConvergenceError
+from ..exceptions import ConvergenceError, ResourceError
 from ..operators import GraphOperator
 from ._cost import DENSE_LIMIT, Forecast, envelope, forecast, settle, worst_envelope
 from ._dense import solve_dense
+from ._hierarchy import CoarseningStalled
 from ._lanczos import factorize, shift_of, solve_lanczos, solve_lanczos_flip
 from ._multilevel import solve_multilevel
 from ._problem import Problem, Solution
@@ -368,12 +369,25 @@ def _solve_component(
         # (ARPACK needs k < n); the full spectrum is a dense job.
         return solve_dense(problem), "dense", "every pair wanted: dense"
     if method != "auto":
-        return _SOLVERS[method](problem), method, f"{method} asked"
+        try:
+            return _SOLVERS[method](problem), method, f"{method} asked"
+        except CoarseningStalled as exc:
+            raise ResourceError(
+                f"method='multilevel' cannot solve this network: {exc} (a hub with many "
+                "leaves); use method='auto' or 'lanczos'"
+            ) from None
     sparse = getattr(problem.matrix, "sparse", problem.matrix)  # the sparse part of S - u u^T
     chosen, factor = _decide(sparse, problem.count, problem.norm_bound, _allowed_methods(operator))
     if chosen.method == "multilevel":
         # The multilevel solver may hand the component over to lanczos_flip.
-        found = solve_multilevel(replace(problem, ordering=chosen.order), switch=True)
+        try:
+            found = solve_multilevel(replace(problem, ordering=chosen.order), switch=True)
+        except CoarseningStalled as exc:
+            # A hub the aggregation cannot group: shift-invert Lanczos, whose
+            # ordering sets dense rows aside (factorize), instead of a dense core.
+            logger.info("%s; lanczos takes over", exc)
+            reason = f"{chosen.reason}; {exc}, so shift-invert Lanczos took over"
+            return _SOLVERS["lanczos"](problem), "lanczos", reason
         if found.method is None and not _meets_tolerance(problem, found):
             # Products only, no factorization: the method that cannot run out of
             # memory, for what the multilevel iteration could not finish.

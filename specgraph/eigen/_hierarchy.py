@@ -30,7 +30,7 @@ import scipy.sparse as sp
 from .._sparse import int32_indexed
 from . import _kernels as kern
 
-__all__ = ["Hierarchy", "Level", "build_hierarchy"]
+__all__ = ["DENSE_CORE_MAX", "CoarseningStalled", "Hierarchy", "Level", "build_hierarchy"]
 
 #: Stop coarsening at this many nodes: the coarsest operator is solved densely
 #: (a dense eigen-solve of 500 nodes takes tens of milliseconds).
@@ -42,6 +42,15 @@ COARSEST_PER_VECTOR = 2
 
 #: Stop when a level keeps more than this share of its nodes (coarsening stalls).
 STALL_RATIO = 0.7
+
+#: Largest coarsest level solved densely when coarsening stalls above the
+#: floor (a hub whose leaves aggregation cannot group: a star of 100,000
+#: leaves stalled at 100,001 nodes and asked for a dense matrix of 74.5 GiB).
+#: A dense eigen-solve of 2,000 nodes took 1.1 s here and 4,000 nodes 6.3 s;
+#: above this size, or above 4 times the floor a wide block needs,
+#: :func:`build_hierarchy` raises :class:`CoarseningStalled` and the caller
+#: solves otherwise.
+DENSE_CORE_MAX = 3_000
 
 #: Damping of the Jacobi smoother: 2/3 is the classical choice that damps the
 #: upper half of the spectrum of ``D^{-1} M`` by at least 1/3 per sweep.
@@ -297,12 +306,36 @@ def _single(matrix: sp.csr_array) -> sp.csr_array:
     return sp.csr_array((data, matrix.indices, matrix.indptr), shape=matrix.shape, copy=False)
 
 
+class CoarseningStalled(RuntimeError):
+    """Aggregation stopped above :data:`DENSE_CORE_MAX` nodes: no small dense core.
+
+    A star stops at once: its one aggregate holds every node, too few for
+    the block of vectors the cascade carries, and the level above it stays.
+
+    Internal: the multilevel solver's caller chooses another method.
+    """
+
+    def __init__(self, size: int, core: int) -> None:
+        super().__init__(
+            f"the aggregation of {size:,} nodes left a coarsest level of {core:,} nodes "
+            f"(the next level had too few or too many), above the {DENSE_CORE_MAX:,} a "
+            "dense core may hold"
+        )
+        self.size, self.core = size, core
+
+
 def build_hierarchy(matrix: sp.csr_array, null: np.ndarray, *, width: int = 0) -> Hierarchy:
     """Coarsen ``matrix`` (symmetric PSD, one-dimensional null space ``null``) to a dense core.
 
     ``width`` is the block of vectors the cascade carries: no level may have
     fewer than ``COARSEST_PER_VECTOR * width`` nodes, or its dense solve could
     not give that many pairs (a zoning into 161 zones asks for 241 vectors).
+
+    Raises
+    ------
+    CoarseningStalled
+        When aggregation stops at a level too large to solve densely
+        (:data:`DENSE_CORE_MAX`).
     """
     levels = []
     current, z = sp.csr_array(matrix), null
@@ -315,6 +348,8 @@ def build_hierarchy(matrix: sp.csr_array, null: np.ndarray, *, width: int = 0) -
             break
         levels.append(level)
         current, z = coarse, coarse_null
+    if current.shape[0] > max(DENSE_CORE_MAX, 4 * floor):
+        raise CoarseningStalled(matrix.shape[0], current.shape[0])
     levels.append(Level(matrix=current, null=z.reshape(-1, 1), smoother=_smoother(current)))
     dense = current.toarray()
     values, vectors = la.eigh((dense + dense.T) / 2.0)

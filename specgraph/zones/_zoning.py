@@ -383,9 +383,10 @@ def _zone_once(
     path = choose_path(options.assign, solver.kind, work.n_nodes, k)
     if path.multilevel:
         # Steps 4-5 by levels: coarsen, zone the coarsest, refine back up.
+        # The evidence pairs first: a failing solve is named as the solve.
+        evidence = _evidence_solves(work, k, solver, known) if path.evidence else []
         step4 = _zone_by_levels(network, merged, k, options, solver, stage)
-        if path.evidence:
-            step4 = replace(step4, solves=_evidence_solves(work, k, solver, known))
+        step4 = replace(step4, solves=evidence)
         decisions.update(step4.decisions)
         labels_w = step4.labels
     else:
