@@ -232,6 +232,8 @@ class RoadLikeFile:
         Number of rows (links), each written once with ``source < target``.
     tiles : int
         Number of tiles the unit square was cut into.
+    node_table : pathlib.Path or None
+        The node table (``node``, ``x``, ``y``), when one was asked for.
     """
 
     path: Path
@@ -239,6 +241,7 @@ class RoadLikeFile:
     nodes: int
     links: int
     tiles: int
+    node_table: Path | None = None
 
 
 @dataclass(frozen=True)
@@ -383,8 +386,8 @@ def _urquhart_links(points: np.ndarray, real: np.ndarray) -> tuple[np.ndarray, n
     return np.column_stack([unique // n, unique % n]), backbone
 
 
-def _tile_links(tiling: _Tiling, k: int, links: int) -> tuple[np.ndarray, np.ndarray]:
-    """Tile ``k``'s links as global ``(source, target)`` rows and their weights.
+def _tile_links(tiling: _Tiling, k: int, links: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Tile ``k``'s links as global ``(source, target)`` rows, their weights, its points.
 
     The tile's points and the points of its neighbours within the band are
     triangulated together. The tile writes the links that join two of its own
@@ -408,7 +411,7 @@ def _tile_links(tiling: _Tiling, k: int, links: int) -> tuple[np.ndarray, np.nda
     weight = 1.0 / np.linalg.norm(points[kept[:, 0]] - points[kept[:, 1]], axis=1)
     rows = ids[kept]
     order = np.lexsort((rows[:, 1], rows[:, 0]))
-    return rows[order], weight[order]
+    return rows[order], weight[order], points[: tiling.size(k)]
 
 
 def _edge_format(path: Path, format: str | None) -> str:
@@ -417,25 +420,23 @@ def _edge_format(path: Path, format: str | None) -> str:
     return check_choice(format, "format", {"csv", "parquet"})
 
 
-class _EdgeSink:
-    """Appends tiles of links to a CSV or Parquet file (Parquet: a row group a tile)."""
+class _TableSink:
+    """Appends tiles of rows to a CSV or Parquet file (Parquet: a row group a tile)."""
 
-    def __init__(self, path: Path, format: str) -> None:
+    def __init__(self, path: Path, format: str, columns: dict[str, str]) -> None:
         self.format = format
         self.rows = 0
         if format == "parquet":
             import pyarrow as pa
             import pyarrow.parquet as pq
 
-            schema = pa.schema(
-                [("source", pa.int64()), ("target", pa.int64()), ("weight", pa.float64())]
-            )
+            types = {"int": pa.int64(), "float": pa.float64()}
+            schema = pa.schema([(name, types[kind]) for name, kind in columns.items()])
             self._writer = pq.ParquetWriter(path, schema)
         else:
             self._file = open(path, "w", encoding="utf-8", newline="")  # noqa: SIM115
 
-    def write(self, rows: np.ndarray, weight: np.ndarray) -> None:
-        columns = {"source": rows[:, 0], "target": rows[:, 1], "weight": weight}
+    def write(self, columns: dict[str, np.ndarray]) -> None:
         if self.format == "parquet":
             import pyarrow as pa
 
@@ -446,7 +447,7 @@ class _EdgeSink:
             pd.DataFrame(columns).to_csv(
                 self._file, header=self.rows == 0, index=False, lineterminator="\n"
             )
-        self.rows += rows.shape[0]
+        self.rows += len(next(iter(columns.values())))
 
     def close(self) -> None:
         """Finish the file (safe to call again)."""
@@ -454,6 +455,10 @@ class _EdgeSink:
             self._writer.close()
         elif not self._file.closed:
             self._file.close()
+
+
+_EDGE_COLUMNS = {"source": "int", "target": "int", "weight": "float"}
+_NODE_COLUMNS = {"node": "int", "x": "float", "y": "float"}
 
 
 def write_road_like(
@@ -464,6 +469,7 @@ def write_road_like(
     tile_nodes: int = ROAD_TILE_NODES,
     rng: Any = None,
     format: str | None = None,
+    nodes: str | os.PathLike[str] | None = None,
 ) -> RoadLikeFile:
     """Write a large road-like network to an edge table, one tile at a time.
 
@@ -501,6 +507,10 @@ def write_road_like(
     format : {'csv', 'parquet'} or None, default=None
         ``None`` picks Parquet for a ``.parquet`` or ``.pq`` suffix (this
         needs pyarrow) and CSV otherwise.
+    nodes : str, path-like or None, default=None
+        Also write the node table here (columns ``node``, ``x``, ``y``: the
+        points in the unit square), in ``format`` or by its own suffix; it
+        serves as ``specgraph zones --nodes`` for maps.
 
     Returns
     -------
@@ -547,17 +557,39 @@ def write_road_like(
     band = min(ROAD_BAND_SPACINGS / math.sqrt(n), 1.0 / side)
     tiling = _Tiling(n=n, side=side, entropy=entropy, band=band)
     links = round(degree * n / 2)
-    partial = target.with_name(f".{target.name}.partial")
-    sink = _EdgeSink(partial, kind)
+    outputs = {target: (kind, _EDGE_COLUMNS)}
+    if nodes is not None:
+        node_target = Path(nodes)
+        if node_target.resolve() == target.resolve():
+            raise parameter_error("nodes", "a file other than the edge table", nodes)
+        outputs[node_target] = (_edge_format(node_target, format), _NODE_COLUMNS)
+    partials = {path: path.with_name(f".{path.name}.partial") for path in outputs}
+    sinks: list[_TableSink] = []
     try:
+        for path, (kind_of, columns) in outputs.items():
+            sinks.append(_TableSink(partials[path], kind_of, columns))
         for k in range(tiling.count):
-            rows, weight = _tile_links(tiling, k, links)
-            sink.write(rows, weight)
+            rows, weight, points = _tile_links(tiling, k, links)
+            sinks[0].write({"source": rows[:, 0], "target": rows[:, 1], "weight": weight})
+            if len(sinks) > 1:
+                ids = tiling.offset(k) + np.arange(points.shape[0], dtype=np.int64)
+                sinks[1].write({"node": ids, "x": points[:, 0], "y": points[:, 1]})
             logger.debug("tile %d of %d: %d links", k + 1, tiling.count, rows.shape[0])
-        sink.close()
-        os.replace(partial, target)
+        for sink in sinks:
+            sink.close()
+        for path, partial in partials.items():
+            os.replace(partial, path)
     except BaseException:
-        sink.close()
-        partial.unlink(missing_ok=True)
+        for sink in sinks:
+            sink.close()
+        for partial in partials.values():
+            partial.unlink(missing_ok=True)
         raise
-    return RoadLikeFile(path=target, format=kind, nodes=n, links=sink.rows, tiles=tiling.count)
+    return RoadLikeFile(
+        path=target,
+        format=kind,
+        nodes=n,
+        links=sinks[0].rows,
+        tiles=tiling.count,
+        node_table=None if nodes is None else Path(nodes),
+    )

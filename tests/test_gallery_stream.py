@@ -76,6 +76,45 @@ def test_planar(tmp_path: Path) -> None:
     assert planar
 
 
+@pytest.mark.parametrize(("n", "tile_nodes"), [(3_000, 200), (5_000, 100)], ids=str)
+def test_links_are_delaunay_links_holding_the_minimum_spanning_tree(
+    tmp_path: Path, n: int, tile_nodes: int
+) -> None:
+    """Checked against scipy on the written node table.
+
+    Every link is a link of scipy.spatial.Delaunay of all the points (so the
+    network is planar), every link of the Euclidean minimum spanning tree is
+    kept (scipy.sparse.csgraph.minimum_spanning_tree over the Delaunay links,
+    which hold one: Shamos and Hoey 1975, doi:10.1109/SFCS.1975.8), and each
+    weight is the inverse Euclidean length.
+    """
+    from scipy.sparse.csgraph import minimum_spanning_tree
+    from scipy.spatial import Delaunay
+
+    written = write_road_like(
+        tmp_path / "r.parquet", n, tile_nodes=tile_nodes, rng=9, nodes=tmp_path / "n.parquet"
+    )
+    assert written.tiles >= 16
+    nodes = links_of(tmp_path / "n.parquet")
+    np.testing.assert_array_equal(nodes["node"], np.arange(n))
+    xy = nodes[["x", "y"]].to_numpy()
+    assert xy.min() >= 0.0
+    assert xy.max() <= 1.0
+    table = links_of(written.path)
+    source, target = table["source"].to_numpy(), table["target"].to_numpy()
+    indptr, indices = Delaunay(xy).vertex_neighbor_vertices
+    delaunay = sp.csr_array((np.ones(indices.size), indices, indptr), shape=(n, n))
+    assert np.all(delaunay[source, target] == 1)
+    length = np.linalg.norm(xy[source] - xy[target], axis=1)
+    np.testing.assert_allclose(table["weight"].to_numpy(), 1.0 / length, rtol=1e-12)
+    rows = np.repeat(np.arange(n), np.diff(indptr))
+    span = sp.csr_array((np.linalg.norm(xy[rows] - xy[indices], axis=1), (rows, indices)))
+    tree = minimum_spanning_tree(span).tocoo()
+    kept = set(zip(source.tolist(), target.tolist(), strict=True))
+    lo, hi = np.minimum(tree.row, tree.col), np.maximum(tree.row, tree.col)
+    assert set(zip(lo.tolist(), hi.tolist(), strict=True)) <= kept
+
+
 @pytest.mark.parametrize("degree", [2.7, 3.0, 5.0])
 def test_other_mean_degrees(tmp_path: Path, degree: float) -> None:
     written = write_road_like(tmp_path / "r.csv", 2_000, mean_degree=degree, tile_nodes=400, rng=1)
@@ -140,4 +179,6 @@ def test_bad_arguments_write_nothing(tmp_path: Path) -> None:
         write_road_like(target, 100, format="xlsx")
     with pytest.raises(ParameterError, match="n must"):
         write_road_like(target, 3)
+    with pytest.raises(ParameterError, match="nodes"):
+        write_road_like(target, 100, nodes=target)
     assert list(tmp_path.iterdir()) == []
