@@ -548,7 +548,7 @@ def spectrum_tables(n: int, runs: list[dict[str, Any]], anchors: list[dict[str, 
         "| what | seconds |",
         "|---|---|",
         f"| `specgraph spectrum` command (main) | {command:.2f} |",
-        f"| the same, whole process | {process:.2f} |",
+        f"| the same, whole process (includes the repeated solve below) | {process:.2f} |",
         f"| its eigen-solve inside the command | {inside:.2f} |",
         "| eigen-solve alone (same call again, same operator, method "
         f"{runs[0].get('solve_alone_method', '?')}) | {alone:.2f} |",
