@@ -29,6 +29,7 @@ Each automatic choice is recorded in :attr:`Zoning.decisions` with its reason.
 
 from __future__ import annotations
 
+import copy
 import logging
 import time
 from collections.abc import Callable
@@ -383,8 +384,13 @@ def _zone_once(
     path = choose_path(options.assign, solver.kind, work.n_nodes, k)
     if path.multilevel:
         # Steps 4-5 by levels: coarsen, zone the coarsest, refine back up.
-        # The evidence pairs first: a failing solve is named as the solve.
-        evidence = _evidence_solves(work, k, solver, known) if path.evidence else []
+        # The evidence pairs first (a failing solve is named as the solve), on a
+        # copy of the generator: the zones are those of assign="multilevel".
+        evidence = (
+            _evidence_solves(work, k, replace(solver, rng=copy.deepcopy(solver.rng)), known)
+            if path.evidence
+            else []
+        )
         step4 = _zone_by_levels(network, merged, k, options, solver, stage)
         step4 = replace(step4, solves=evidence)
         decisions.update(step4.decisions)
