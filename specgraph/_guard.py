@@ -330,10 +330,12 @@ TASK_STAGES: dict[str, tuple[str, ...]] = {
 #: The stages that read; those left once a network is loaded are the others.
 READING_STAGES = ("reading the table", "building the network")
 
-#: From this many zones a zoning's zone count costs nothing more per node in
-#: the model: ``assign="auto"`` takes the multilevel path there, which computes
-#: no eigenvector of the whole network (``specgraph.zones.MULTILEVEL_MIN_ZONES``;
-#: a test checks that they agree). Not measured above 64 zones.
+#: From this many zones a zoning's zone count costs nothing per node in the
+#: model: ``assign="auto"`` takes the multilevel path alone there, which
+#: computes no eigenvector of the whole network
+#: (``specgraph.zones.MULTILEVEL_MIN_ZONES``; a test checks that they agree).
+#: Below it every zone counts (one eigenvector each, several times over in
+#: the solver's block).
 ZONING_ZONES_CAP = 48
 
 #: Share of the memory still available that a run may plan to use; the rest
@@ -452,7 +454,7 @@ def estimate_memory(
 
 def _counted_zones(zones: int, task: str) -> int:
     """Zones the per-node-per-zone costs count (see :data:`ZONING_ZONES_CAP`)."""
-    return min(zones, ZONING_ZONES_CAP) if task == "zoning" else zones
+    return 0 if task == "zoning" and zones >= ZONING_ZONES_CAP else zones
 
 
 # ------------------------------------------------------------ what is free
