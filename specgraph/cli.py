@@ -32,9 +32,10 @@ from .diagnostics import (
     DEFAULT_TOP,
 )
 from .eigen import DEFAULT_TOL, METHODS
-from .exceptions import ConvergenceError, ParameterError, SpecgraphError
+from .exceptions import ConvergenceError, OutputError, ParameterError, SpecgraphError
 from .export import (
     CAUTION,
+    checked_folder,
     not_converged_record,
     write_outputs,
 )
@@ -175,8 +176,23 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def _out_folder(value: str) -> str:
+    """``--out``: refused at parsing when empty or a root folder (:func:`checked_folder`)."""
+    try:
+        checked_folder(value)
+    except OutputError as exc:
+        raise argparse.ArgumentTypeError(str(exc)) from None
+    return value
+
+
 def _add_common(parser: argparse.ArgumentParser, *, out: str) -> None:
-    parser.add_argument("--out", default=out, metavar="DIR", help=f"output folder (default {out})")
+    parser.add_argument(
+        "--out",
+        default=out,
+        type=_out_folder,
+        metavar="DIR",
+        help=f"output folder (default {out}; not empty, not a root folder)",
+    )
     parser.add_argument(
         "--json",
         action="store_true",

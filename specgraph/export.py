@@ -80,6 +80,7 @@ __all__ = [
     "FRAGMENTS_FILE",
     "RUN_RECORD_KEYS",
     "boundary_geojson",
+    "checked_folder",
     "eigen_record",
     "eigen_table",
     "file_checksum",
@@ -608,6 +609,35 @@ def recover_outputs(folder: str | Path) -> list[Path]:
     return finished
 
 
+def checked_folder(folder: str | Path) -> Path:
+    """``folder`` as a Path, or the refusal of an empty name or a root folder.
+
+    An empty name would write into the current folder and a root folder
+    (``/``, ``C:\\``) among the system's own files; neither is what a user
+    naming an output folder means.
+
+    Raises
+    ------
+    OutputError
+        For an empty name or a root folder.
+
+    Examples
+    --------
+    >>> checked_folder("quillmere-zones").name
+    'quillmere-zones'
+    """
+    if not str(folder).strip():
+        raise OutputError("the output folder is empty; name a folder, e.g. --out quillmere-zones")
+    path = Path(folder)
+    resolved = path.resolve()
+    if resolved == Path(resolved.anchor):
+        raise OutputError(
+            f"the output folder {str(folder)!r} is the root of the file system; name a folder "
+            "of its own, e.g. --out quillmere-zones"
+        )
+    return path
+
+
 def write_outputs(
     folder: str | Path,
     files: Mapping[str, Content],
@@ -639,8 +669,14 @@ def write_outputs(
     -------
     list of Path
         The files written, in the order given.
+
+    Raises
+    ------
+    OutputError
+        For an empty folder name or a root folder (:func:`checked_folder`),
+        or when a file cannot be written (nothing of the new result is left).
     """
-    folder = Path(folder)
+    folder = checked_folder(folder)
     stale = sorted({Path(name).name for name in remove} - set(files))
     staged: list[tuple[Path, Path]] = []
     try:

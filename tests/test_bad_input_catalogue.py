@@ -748,6 +748,34 @@ def test_geojson_not_json(capsys: pytest.CaptureFixture[str], tmp_path: Path) ->
     refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "line 2", "column 15"])
 
 
+def test_geojson_nested_too_deep(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
+    deep = "[" * 100_000 + "]" * 100_000
+    text = (
+        '{"type": "FeatureCollection", "features": [{"type": "Feature", "properties": '
+        f'{{"note": {deep}}}, "geometry": {{"type": "LineString", "coordinates": '
+        "[[0, 0], [1, 1]]}}]}"
+    )
+    path = write(tmp_path, "mains.geojson", text)
+    err = refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "recursion limit"])
+    assert "internal error" not in err
+
+
+@pytest.mark.parametrize("folder", ["", "   ", "/", "/tmp/.."])
+def test_out_folder_empty_or_root(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, monkeypatch: pytest.MonkeyPatch, folder: str
+) -> None:
+    from specgraph.exceptions import OutputError
+    from specgraph.export import write_outputs
+
+    monkeypatch.chdir(tmp_path)
+    path = write(tmp_path, "mains.csv", TWO_TRIANGLES)
+    assert main(["zones", str(path), "--zones", "2", "--out", folder, "--quiet"]) == EXIT_INPUT
+    assert "--out" in capsys.readouterr().err
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["mains.csv"]
+    with pytest.raises(OutputError, match="output folder"):
+        write_outputs(folder, {"run.json": {}})
+
+
 def test_geojson_not_utf8(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     path = write(tmp_path, "mains.geojson", b'{"type": "FeatureCollection", "name": "\xe9"}')
     refused(capsys, tmp_path, "zones", path, names=["mains.geojson", "UTF-8"])

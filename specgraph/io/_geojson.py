@@ -41,6 +41,7 @@ from __future__ import annotations
 
 import json
 import numbers
+import sys
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -230,6 +231,13 @@ def _load(path: Path) -> Any:
         ) from None
     try:
         return json.loads(text)
+    except RecursionError:
+        raise InputError(
+            "the JSON nests arrays or objects deeper than the parser can follow (Python's "
+            f"recursion limit, {sys.getrecursionlimit():,}); GeoJSON nests at most 4 levels "
+            "of coordinates, so look for a property holding deeply nested lists",
+            path=path,
+        ) from None
     except json.JSONDecodeError as exc:
         raise InputError(
             f"not valid JSON: {exc.msg} (column {exc.colno}); a GeoJSON file is one JSON "
