@@ -193,10 +193,15 @@ def entry(
     the cache is cold.
     """
 
-    def wrap(func: Callable[..., Any]) -> Kernel:
+    def wrap(func: Callable[..., Any]) -> Any:
         from numba import njit
 
-        return Kernel(njit(cache=True)(func), readonly, plain)
+        compiled = njit(cache=True)(func)
+        if not hasattr(compiled, "py_func"):
+            # NUMBA_DISABLE_JIT=1 (numba's debugging switch): njit gives the
+            # function back as it is, with nothing to compile or cache.
+            return compiled
+        return Kernel(compiled, readonly, plain)
 
     return wrap
 

@@ -627,13 +627,13 @@ def checked_folder(folder: str | Path) -> Path:
     'quillmere-zones'
     """
     if not str(folder).strip():
-        raise OutputError("the output folder is empty; name a folder, e.g. --out quillmere-zones")
+        raise OutputError("the output folder is empty; name a folder, e.g. quillmere-zones")
     path = Path(folder)
     resolved = path.resolve()
     if resolved == Path(resolved.anchor):
         raise OutputError(
             f"the output folder {str(folder)!r} is the root of the file system; name a folder "
-            "of its own, e.g. --out quillmere-zones"
+            "of its own, e.g. quillmere-zones"
         )
     return path
 

@@ -156,3 +156,30 @@ def test_background_process_starts_detached_and_finishes(
     assert process.wait(timeout=120) == 0
     assert _warm.wait_for_background(timeout=1.0)
     assert not any(tmp_path.glob("*.req"))
+
+
+def test_numbas_debugging_switch_runs_the_plain_kernels(tmp_path) -> None:
+    """NUMBA_DISABLE_JIT=1 (numba's documented debugging switch): zones found as with the cache.
+
+    Reference: the compiled kernels of this process (same seed, same network).
+    """
+    import os
+    import subprocess
+    import sys
+
+    from specgraph import gallery
+    from specgraph.zones import find_zones
+
+    net = gallery.road_like(600, rng=4)
+    expected = np.asarray(find_zones(net, 4, rng=0).labels)
+    code = (
+        "import sys, numpy as np\n"
+        "from specgraph import gallery\n"
+        "from specgraph.zones import find_zones\n"
+        "net = gallery.road_like(600, rng=4)\n"
+        "np.save(sys.argv[1], np.asarray(find_zones(net, 4, rng=0).labels))\n"
+    )
+    out = tmp_path / "labels.npy"
+    env = {**os.environ, "NUMBA_DISABLE_JIT": "1", "SPECGRAPH_BACKGROUND_COMPILE": "0"}
+    subprocess.run([sys.executable, "-c", code, str(out)], check=True, env=env, timeout=300)
+    np.testing.assert_array_equal(np.load(out), expected)
