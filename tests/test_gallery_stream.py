@@ -17,6 +17,7 @@ import pytest
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
+from specgraph._sparse import int32_indexed
 from specgraph.exceptions import ParameterError
 from specgraph.gallery import ROAD_MEAN_DEGREE, write_road_like
 from specgraph.io import read_edges
@@ -109,7 +110,8 @@ def test_links_are_delaunay_links_holding_the_minimum_spanning_tree(
     np.testing.assert_allclose(table["weight"].to_numpy(), 1.0 / length, rtol=1e-12)
     rows = np.repeat(np.arange(n), np.diff(indptr))
     span = sp.csr_array((np.linalg.norm(xy[rows] - xy[indices], axis=1), (rows, indices)))
-    tree = minimum_spanning_tree(span).tocoo()
+    # 32-bit indices: scipy 1.15, the oldest allowed, refuses 64-bit ones here
+    tree = minimum_spanning_tree(int32_indexed(span)).tocoo()
     kept = set(zip(source.tolist(), target.tolist(), strict=True))
     lo, hi = np.minimum(tree.row, tree.col), np.maximum(tree.row, tree.col)
     assert set(zip(lo.tolist(), hi.tolist(), strict=True)) <= kept
