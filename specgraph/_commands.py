@@ -408,6 +408,10 @@ def _zoning_summary(zoning: Zoning) -> str:
     scores = zoning.scores
     confidence = _count_figures(zoning)["confidence"]
     how = [f"count confidence: {confidence}" if confidence else "count as given"]
+    asked = zoning.decisions.get("zone_count", {}).get("choice")
+    delivered = int(scores["zones"]) - (1 if scores.get("fragment_nodes") else 0)
+    if not confidence and isinstance(asked, int) and asked > delivered:
+        how[0] = f"{asked} asked, fewer delivered: see the warning"
     method = _assignment(zoning)
     if method:
         how.append(f"assigned by {method}")

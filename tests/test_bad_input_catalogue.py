@@ -1002,6 +1002,33 @@ def test_supply_points_tied_by_kept_link(
     )
 
 
+@pytest.mark.parametrize(
+    ("option", "header"), [("--supply-list", "node\n"), ("--keep-list", "source,target\n")]
+)
+def test_rule_file_header_only(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path, option: str, header: str
+) -> None:
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    rules = write(tmp_path, "rules.csv", header)
+    refused(
+        capsys, tmp_path, "zones", edges, "--zones", "2", option, rules,
+        names=["rules.csv", "line 1", option, "no rows"],
+    )  # fmt: skip
+
+
+def test_fewer_zones_delivered_than_asked(
+    capsys: pytest.CaptureFixture[str], tmp_path: Path
+) -> None:
+    """Six nodes, at least three per zone: at most two zones can hold the bound (by hand)."""
+    edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)
+    code, err = run(capsys, tmp_path / "out", "zones", edges, "--zones", "3", "--min-size", "3")
+    assert code == EXIT_OK, err
+    assert "2 zones delivered where 3 were asked" in err
+    record = json.loads((tmp_path / "out" / "run.json").read_text())
+    assert any("delivered where 3 were asked" in w for w in record["warnings"])
+    assert record["decisions"]["zone_count"]["choice"] == 3
+
+
 # --------------------------------------------------- directed and local zones
 def test_local_unknown_asset(capsys: pytest.CaptureFixture[str], tmp_path: Path) -> None:
     edges = write(tmp_path, "edges.csv", TWO_TRIANGLES)

@@ -157,6 +157,15 @@ def _refuse_empty(
         )
 
 
+def _refuse_no_rows(frame: pd.DataFrame, origin: Origin, option: str, what: str) -> None:
+    """Refuse a rule table with a header but no rows: the rule would vanish unsaid."""
+    if frame.empty:
+        raise origin.error(
+            f"the table has a header but no rows, so {option} would add no rule; list at "
+            f"least one {what}, or leave {option} out"
+        )
+
+
 def _located(path: str | None) -> Origin:
     """The origin of a table already read, with a line finder that reads lazily."""
     if path is None:
@@ -245,6 +254,7 @@ def read_node_list(
     origin = Origin(table.record["path"], table.locate)
     frame = table.frame
     _require_column(frame, node, origin, "the node column option")
+    _refuse_no_rows(frame, origin, option, "node")
     ids, empty = _read_ids(frame, node)
     chosen = (
         np.ones(len(frame), dtype=bool) if flag is None else flag_mask(frame, flag, origin=origin)
@@ -310,6 +320,8 @@ def read_link_list(
     ends = []
     for column in (source, target):
         _require_column(frame, column, origin, "--source/--target")
+    _refuse_no_rows(frame, origin, option, "link")
+    for column in (source, target):
         ids, empty = _read_ids(frame, column)
         _refuse_empty(empty, frame=frame, column=column, origin=origin)
         _refuse_unknown(ids, network, frame=frame, column=column, origin=origin, option=option)
