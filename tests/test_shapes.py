@@ -72,3 +72,20 @@ def test_a_star_is_zoned_into_connected_zones() -> None:
         assert nx.is_connected(graph.subgraph(np.flatnonzero(labels == z).tolist()))
     assert zoning.n_zones == 4
     assert np.bincount(labels).min() == 1
+
+
+def test_a_hub_is_a_transfer_candidate_once() -> None:
+    """Leaves of one zone all touch the hub of another: the hub is queued once, not per leaf.
+
+    Queued per leaf, each entry read the hub's links again (quadratic in the leaves).
+    """
+    from specgraph.zones._balance import _buckets
+    from specgraph.zones._connectivity import edge_rows
+    from specgraph.zones._transfers import _candidates
+
+    a = gallery.star(50).adjacency  # node 0 is the centre (networkx's star_graph)
+    labels = np.zeros(51, dtype=np.int64)
+    labels[1:31] = 1  # thirty leaves in zone 1, the hub and twenty leaves in zone 0
+    pointers, nodes = _buckets(labels, edge_rows(a), a.indices, 2)
+    out = _candidates(0, 1, pointers, nodes, a.indptr, a.indices, labels)
+    assert out.tolist() == [0]
