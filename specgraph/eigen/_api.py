@@ -281,6 +281,7 @@ def smallest_eigenpairs(
         iterations=iterations,
         converged=bool(values.size == k and np.all(residuals <= tol)),
         reason=reason,
+        norm_bound=operator.norm_bound if operator.norm_bound > 0 else 1.0,
     )
     if not result.converged:
         shortfall = f"found {values.size} of {k} pairs" if values.size < k else "found all pairs"

@@ -42,6 +42,16 @@ class EigenResult:
         the predicted seconds of each method and the guards that excluded
         any (see :func:`~specgraph.eigen.choose_method`), largest component
         first.
+    norm_bound : float
+        The operator's norm bound that scaled the residuals. By the
+        residual bound for symmetric matrices (Bauer-Fike), each ``values[i]`` lies
+        within ``residuals[i] * norm_bound`` of a true eigenvalue [1]_, so two
+        values closer than the sum of their bounds may be one eigenvalue.
+
+    References
+    ----------
+    .. [1] B. N. Parlett, "The Symmetric Eigenvalue Problem", SIAM, 1998,
+       chapter 4 (error bounds from residuals).
     """
 
     values: np.ndarray
@@ -53,6 +63,7 @@ class EigenResult:
     iterations: int
     converged: bool
     reason: str = ""
+    norm_bound: float = 1.0
 
     @property
     def k(self) -> int:

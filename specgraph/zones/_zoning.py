@@ -50,6 +50,7 @@ from ._compare import (
     best_assignment,
     comparison_affordable,
     comparison_order,
+    tied_gap_warnings,
     zone_warnings,
 )
 from ._constraints import ResolvedConstraints, ZoneConstraints, refuse_infeasible
@@ -418,6 +419,7 @@ def _zone_once(
         *([decisions["weights"]["warning"]] if decisions["weights"]["warning"] else []),
         *step4.notes,
         *zone_warnings(network, labels, step4.asked, decisions["constraints"]["notes"]),
+        *tied_gap_warnings(step4.solves),
     ]
     return zoning_of(network, labels, step4.solves, parameters, decisions, notes)
 
