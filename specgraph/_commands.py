@@ -56,7 +56,7 @@ from .io import (
     read_node_list,
     read_zone_file,
 )
-from .network import Network
+from .network import Network, negligible_warning
 from .operators import laplacian
 from .studies import stability
 from .zones import (
@@ -121,6 +121,7 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
     else:
         network = _read_table(args)
     _refuse_without_links(network, args.edges)
+    _warn([text for text in [negligible_warning(network)] if text])
     _memory_check(args, network)
     inputs = [input_record("edges", args.edges)]
     if args.nodes:

@@ -60,6 +60,7 @@ __all__ = [
     "boundary_links",
     "check_labels",
     "check_zone_labels",
+    "complement_volumes",
     "conductance",
     "cut_and_volume",
     "eigengaps",
@@ -287,9 +288,30 @@ def conductance(cut: np.ndarray, volume: np.ndarray, total_volume: float) -> np.
     >>> conductance(np.array([1.0, 0.0]), np.array([3.0, 3.0]), 6.0).tolist()
     [0.3333333333333333, 0.0]
     """
-    smaller = np.minimum(volume, total_volume - volume)
+    smaller = np.minimum(volume, complement_volumes(volume, total_volume))
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(cut > 0, cut / smaller, 0.0)
+
+
+def complement_volumes(volume: np.ndarray, total_volume: float) -> np.ndarray:
+    """:math:`\\operatorname{vol} V - \\operatorname{vol} S_z` for every zone, without cancellation.
+
+    ``total_volume - volume`` loses every digit when one zone holds nearly all
+    the volume (a link 1e17 times heavier than the rest: 2e17 + 28 - 2e17 is
+    0 in float64, and a conductance became infinite). The sum of the *other*
+    zones' volumes (exclusive prefix plus suffix sums, no subtraction) keeps
+    them; the larger of the two is taken, since ``total_volume`` may also count
+    nodes in no zone.
+
+    Examples
+    --------
+    >>> complement_volumes(np.array([2e17, 14.0, 14.0]), 2e17 + 28.0).tolist()
+    [28.0, 2e+17, 2e+17]
+    """
+    volume = np.asarray(volume, dtype=np.float64)
+    before = np.concatenate([[0.0], np.cumsum(volume)[:-1]]) if volume.size else volume
+    after = np.concatenate([np.cumsum(volume[::-1])[-2::-1], [0.0]]) if volume.size else volume
+    return np.maximum(total_volume - volume, before + after)
 
 
 def ncut_terms(cut: np.ndarray, volume: np.ndarray) -> np.ndarray:
@@ -364,19 +386,22 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
     labels = check_zone_labels(network, labels)
     k = int(labels.max()) + 1 if labels.size else 0
     figures = zone_figures(network, labels, k)
+    # Conductance at the network's scale; the sums in the units given (exact:
+    # a power of two, see Network.weight_exponent).
+    user = network.user_units
     return pd.DataFrame(
         {
             "zone": np.arange(k),
             "nodes": figures.nodes,
             "size": figures.size,
-            "internal_weight": figures.internal_weight,
-            "boundary_weight": figures.boundary_weight,
+            "internal_weight": user(figures.internal_weight),
+            "boundary_weight": user(figures.boundary_weight),
             # Every node is in a zone, so vol V is the sum of the zone volumes.
             "conductance": conductance(
                 figures.boundary_weight, figures.volume, figures.volume.sum()
             ),
             "connected": figures.connected,
-            "volume": figures.volume,
+            "volume": user(figures.volume),
             "boundary_links": figures.boundary_links,
         }
     )
