@@ -20,7 +20,7 @@ from typing import Any
 
 from ._guard import check_memory, check_table_memory, note_stage
 from ._progress import stage_progress
-from ._validation import parameter_error
+from ._validation import check_tol, parameter_error
 from ._wording import count, figure, plural
 from .diagnostics import (
     compare_frames,
@@ -114,6 +114,8 @@ def _memory_check(args: argparse.Namespace, network: Network | None = None) -> N
 
 
 def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
+    if getattr(args, "tol", None) is not None:  # refused before the file is read
+        check_tol(args.tol)
     note_stage("reading")
     _memory_check(args)
     if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:

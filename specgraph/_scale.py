@@ -26,8 +26,9 @@ Two things cannot be held at one scale, and are said, never hidden:
   (or of the parallel links whose sum alone overflows), with what to do;
 * an affinity that would fall below float64's smallest normal number at that
   scale (below ``2**NEGLIGIBLE_EXPONENT`` times the power of two at or below
-  the largest affinity) would lose its digits or become zero: such a link is *negligible*, left out of the adjacency like a
-  zero-weight link (its ends stay in the network), counted in the notes as
+  the largest affinity) would lose its digits or become zero: such a link is
+  *negligible*, left out of the adjacency like a zero-weight link (its ends
+  stay in the network), counted in the notes as
   ``negligible_weight_links_dropped`` and warned about (see
   ``docs/input-policy.md``).
 
@@ -68,9 +69,10 @@ WEIGHT_BAND_EXPONENT = 128
 #: times the power of two at or below the largest affinity: at the network's
 #: safe scale (largest in ``[1, 2)``) it would fall below float64's smallest
 #: normal number, 2**-1022 (about 2.2e-308), and lose its digits or become zero
-#: (so a weight ratio smallest/largest below about 2.2e-308 to 4.5e-308). A cycle alternating weights of 1 and 1e-300 (ratio above the
-#: bound) zones with every figure finite; alternating 1e300 and 1e-300 (ratio
-#: 1e-600, below it) cannot be held at one scale.
+#: (so a weight ratio smallest/largest below about 2.2e-308 to 4.5e-308). A
+#: cycle alternating weights of 1 and 1e-300 (ratio above the bound) zones
+#: with every figure finite; alternating 1e300 and 1e-300 (ratio 1e-600, below
+#: it) cannot be held at one scale.
 NEGLIGIBLE_EXPONENT = -1022
 
 #: The exponent range of float64: ``2**MAX_EXPONENT`` overflows, and
@@ -84,8 +86,10 @@ def top_exponent(values: np.ndarray) -> int:
 
     Examples
     --------
-    >>> top_exponent(np.array([1.0, 3.0])), top_exponent(np.array([1e308])), top_exponent(np.array([]))
-    (2, 1024, 0)
+    >>> top_exponent(np.array([1.0, 3.0])), top_exponent(np.array([1e308]))
+    (2, 1024)
+    >>> top_exponent(np.array([]))
+    0
     """
     if values.size == 0:
         return 0
@@ -96,7 +100,7 @@ def top_exponent(values: np.ndarray) -> int:
 
 
 def in_band(top: int) -> bool:
-    """Whether a largest affinity of exponent ``top`` is kept as given (:data:`WEIGHT_BAND_EXPONENT`).
+    """Whether a largest affinity of exponent ``top`` is kept as given (the band).
 
     Examples
     --------
@@ -107,7 +111,7 @@ def in_band(top: int) -> bool:
 
 
 def negligible_mask(values: np.ndarray, top: int) -> np.ndarray:
-    """Positive ``values`` below ``2**(top - 1 + NEGLIGIBLE_EXPONENT)`` (:data:`NEGLIGIBLE_EXPONENT`).
+    """Positive ``values`` below ``2**(top - 1 + NEGLIGIBLE_EXPONENT)``: the negligible ones.
 
     ``top`` is the :func:`top_exponent` of the largest value.
 
@@ -138,7 +142,7 @@ def overflow_threshold(exponent: int) -> float:
 
 
 def user_units(values: Any, exponent: int) -> Any:
-    """``values * 2**exponent``, exactly (:func:`numpy.ldexp`): stored affinities back in the user's units.
+    """``values * 2**exponent``, exactly (:func:`numpy.ldexp`): stored sums in the units given.
 
     Examples
     --------

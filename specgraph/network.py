@@ -341,14 +341,14 @@ class Network:
         return _readonly(np.asarray(self.adjacency.sum(axis=1)).ravel())
 
     def user_units(self, values: Any) -> Any:
-        """Sums of stored affinities (volumes, cuts) in the units given: ``values * 2**weight_exponent``.
+        """Sums of stored affinities (volumes, cuts) in the units given (``* 2**weight_exponent``).
 
         Exact (a power of two); ``values`` as they are when the exponent is 0.
 
         Examples
         --------
         >>> net = Network.from_links(["a", "b"], ["b", "c"], [1e300, 1e300])
-        >>> net.weight_exponent, 1 <= net.adjacency.max() < 2
+        >>> net.weight_exponent, bool(1 <= net.adjacency.max() < 2)
         (996, True)
         >>> float(net.user_units(net.degrees.sum()))
         4e+300
@@ -795,7 +795,7 @@ def network_from_ends(
 
 
 def _final_exponent(adjacency: sp.csr_array, shift: int) -> int:
-    """The network's :attr:`~Network.weight_exponent` for an adjacency stored divided by ``2**shift``.
+    """The :attr:`~Network.weight_exponent` of an adjacency stored divided by ``2**shift``.
 
     0 (the affinities as given) when the largest summed affinity lies in the
     band of :mod:`specgraph._scale`, else the exponent that brings it into

@@ -49,7 +49,13 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from .._labels import code_labels
-from .._validation import check_choice, check_int, check_positive_float, check_rng, parameter_error
+from .._validation import (
+    check_choice,
+    check_int,
+    check_rng,
+    check_tol,
+    parameter_error,
+)
 from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
@@ -289,7 +295,7 @@ def robustness(
     0.2984
     """
     top = check_int(top, "top", minimum=0)
-    tol = check_positive_float(tol, "tol")
+    tol = check_tol(tol)
     check_choice(resistance, "resistance", RESISTANCE_METHODS)
     check_choice(eigen_method, "eigen_method", METHODS)
     sketch_rows = check_int(sketch_rows, "sketch_rows", minimum=1)
