@@ -700,6 +700,7 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
         inputs.append(input_record("zones", args.zones_file))
     options = {"top": args.top, "rng": args.seed, "tol": args.tol, "eigen_method": args.solver}
     result = robustness(network, labels=labels, **options)
+    _warn(result.record.get("warnings", []))
     files: dict[str, Any] = {
         "links.csv": result.links,
         "bridges.csv": result.bridges,
