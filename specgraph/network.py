@@ -778,13 +778,16 @@ def network_from_ends(
     table = pd.DataFrame({"source": ends.source, "target": ends.target, "weight": w})
     if extra is not None:
         table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
+    scale: dict[str, Any] = {}
+    if exponent:  # said in the run record's input policy, whatever the command
+        scale = {"weight_scale_exponent": exponent, "weight_scale_note": scale_sentence(exponent)}
     network = (factory or Network)(
         adjacency,
         ends.node_ids,
         coordinates=coordinates,
         sizes=sizes,
         links=table,
-        notes={**counts, **(notes or {})},
+        notes={**counts, **scale, **(notes or {})},
         arcs=arcs,
         weight_exponent=exponent,
     )
