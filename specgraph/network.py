@@ -60,6 +60,7 @@ from ._scale import (
     user_units,
 )
 from ._validation import check_bool
+from ._wording import count
 from .exceptions import InputError
 
 if TYPE_CHECKING:
@@ -137,7 +138,8 @@ def _at_safe_scale(
         negligible = int(np.count_nonzero(negligible_mask(data, top))) // 2
         if negligible:
             raise InputError(
-                f"adjacency holds {negligible} links below 2^-1022 times its largest affinity "
+                f"adjacency holds {count(negligible, 'link')} below 2^-1022 times its largest "
+                "affinity "
                 f"({float(data.max()):.3g}), too small to be held beside it in float64; give "
                 "them affinity 0, or read the links with a reader (which leaves such links "
                 "out and counts them)"

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import json
 import math
+import pickle
 from pathlib import Path
 from typing import Any
 
@@ -28,6 +29,7 @@ import networkx as nx
 import numpy as np
 import pandas as pd
 import pytest
+import scipy.sparse as sp
 from hypothesis import HealthCheck, assume, given, settings
 from hypothesis import strategies as st
 from sklearn.metrics import adjusted_rand_score
@@ -36,6 +38,7 @@ from specgraph import Network, find_zones
 from specgraph._figures import zone_table
 from specgraph._validation import TOL_FLOOR
 from specgraph.cli import main
+from specgraph.exceptions import InputError
 
 EXIT_OK, EXIT_INPUT = 0, 2
 BIGGEST = float(np.finfo(np.float64).max)  # numpy.finfo: about 1.8e308
@@ -311,6 +314,34 @@ def test_tol_at_the_floor_is_accepted(tmp_path: Path, capsys: pytest.CaptureFixt
     if code == 3:
         assert "loosen --tol" in err
         assert "maxiter" not in err
+
+
+# ------------------------------------------------------------- library
+def test_network_handed_a_matrix_of_1e300_holds_it_scaled_and_keeps_the_scale() -> None:
+    # Network(A) with affinities 1e300 and 1e299: held divided by 2^996 (frexp of 1e300
+    # is 0.75 * 2^997, so the largest becomes 1.49 in [1, 2)); the link table, sub-networks
+    # and a pickle round trip keep the units given.
+    a = np.array([[0.0, 1e300, 0.0], [1e300, 0.0, 1e299], [0.0, 1e299, 0.0]])
+    net = Network(sp.csr_array(a), ["x", "y", "z"])
+    assert net.weight_exponent == math.frexp(1e300)[1] - 1
+    assert 1.0 <= net.adjacency.max() < 2.0
+    assert net.link_table["weight"].tolist() == [1e300, 1e299]
+    assert net.subnetwork(np.array([1, 2])).link_table["weight"].tolist() == [1e299]
+    again = pickle.loads(pickle.dumps(net))
+    assert again.weight_exponent == net.weight_exponent
+    np.testing.assert_array_equal(again.adjacency.toarray(), net.adjacency.toarray())
+    assert float(net.user_units(net.degrees.sum())) == pytest.approx(2 * (1e300 + 1e299))
+
+
+def test_network_handed_weights_it_cannot_hold_refuses_them() -> None:
+    # Total volume 2e308 (numpy.finfo max 1.8e308), and a ratio 1e-600 (below 2^-1022).
+    with pytest.raises(InputError, match="total volume"):
+        Network.from_scipy(np.array([[0.0, 1e308], [1e308, 0.0]]))
+    tiny_beside_huge = np.array([[0, 1e300, 1e-300], [1e300, 0, 0], [1e-300, 0, 0]])
+    with pytest.raises(InputError, match="1 link below 2\\^-1022"):
+        Network(sp.csr_array(tiny_beside_huge), ["a", "b", "c"])
+    with pytest.raises(InputError, match="rows 1 and 2 join the same two nodes"):
+        Network.from_links(["a", "b", "b"], ["b", "a", "c"], [1e308, 1e308, 1.0])
 
 
 # ----------------------------------------------------- property tests
