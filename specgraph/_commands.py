@@ -20,7 +20,7 @@ from typing import Any
 
 from ._guard import check_memory, check_table_memory, note_stage
 from ._progress import stage_progress
-from ._validation import parameter_error
+from ._validation import check_tol, parameter_error
 from ._wording import count, figure, plural
 from .diagnostics import (
     compare_frames,
@@ -56,7 +56,7 @@ from .io import (
     read_node_list,
     read_zone_file,
 )
-from .network import Network
+from .network import Network, negligible_warning
 from .operators import laplacian
 from .studies import stability
 from .zones import (
@@ -114,6 +114,8 @@ def _memory_check(args: argparse.Namespace, network: Network | None = None) -> N
 
 
 def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
+    if getattr(args, "tol", None) is not None:  # refused before the file is read
+        check_tol(args.tol)
     note_stage("reading")
     _memory_check(args)
     if Path(args.edges).suffix.lower() in GEOJSON_SUFFIXES:
@@ -121,6 +123,7 @@ def _read(args: argparse.Namespace) -> tuple[Network, list[dict[str, Any]]]:
     else:
         network = _read_table(args)
     _refuse_without_links(network, args.edges)
+    _warn([text for text in [negligible_warning(network)] if text])
     _memory_check(args, network)
     inputs = [input_record("edges", args.edges)]
     if args.nodes:
@@ -697,6 +700,7 @@ def _cmd_robustness(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]
         inputs.append(input_record("zones", args.zones_file))
     options = {"top": args.top, "rng": args.seed, "tol": args.tol, "eigen_method": args.solver}
     result = robustness(network, labels=labels, **options)
+    _warn(result.record.get("warnings", []))
     files: dict[str, Any] = {
         "links.csv": result.links,
         "bridges.csv": result.bridges,

@@ -60,6 +60,7 @@ __all__ = [
     "boundary_links",
     "check_labels",
     "check_zone_labels",
+    "complement_volumes",
     "conductance",
     "cut_and_volume",
     "eigengaps",
@@ -277,19 +278,51 @@ def physical_boundary_links(network: Network, labels: np.ndarray, count: int) ->
     return np.bincount(ends, minlength=count)
 
 
-def conductance(cut: np.ndarray, volume: np.ndarray, total_volume: float) -> np.ndarray:
+def conductance(
+    cut: np.ndarray,
+    volume: np.ndarray,
+    total_volume: float,
+    *,
+    complement: np.ndarray | None = None,
+) -> np.ndarray:
     """Conductance :math:`\\phi(S)` of every zone (module notes), 0 for a zone without a cut.
 
     ``total_volume`` is :math:`\\operatorname{vol} V`, the whole network's.
+    ``complement`` is :math:`\\operatorname{vol} V - \\operatorname{vol} S` of
+    every zone when known without a subtraction (:func:`complement_volumes`);
+    otherwise it is ``total_volume - volume``.
 
     Examples
     --------
     >>> conductance(np.array([1.0, 0.0]), np.array([3.0, 3.0]), 6.0).tolist()
     [0.3333333333333333, 0.0]
     """
-    smaller = np.minimum(volume, total_volume - volume)
+    rest = total_volume - volume if complement is None else complement
+    smaller = np.minimum(volume, rest)
     with np.errstate(divide="ignore", invalid="ignore"):
         return np.where(cut > 0, cut / smaller, 0.0)
+
+
+def complement_volumes(volume: np.ndarray) -> np.ndarray:
+    """The sum of the *other* entries of ``volume``, for each entry, without a subtraction.
+
+    ``total - volume`` loses every digit when one zone holds nearly all the
+    volume (a link 1e17 times heavier than the rest: 2e17 + 28 - 2e17 is 32 or
+    0 in float64, and a conductance came out infinite). Exclusive prefix plus
+    suffix sums keep them. Give every part of the network (nodes in no zone
+    too) an entry.
+
+    Examples
+    --------
+    >>> complement_volumes(np.array([2e17, 14.0, 14.0])).tolist()
+    [28.0, 2e+17, 2e+17]
+    """
+    volume = np.asarray(volume, dtype=np.float64)
+    if not volume.size:
+        return volume
+    before = np.concatenate([[0.0], np.cumsum(volume)[:-1]])
+    after = np.concatenate([np.cumsum(volume[::-1])[-2::-1], [0.0]])
+    return before + after
 
 
 def ncut_terms(cut: np.ndarray, volume: np.ndarray) -> np.ndarray:
@@ -364,19 +397,25 @@ def zone_table(network: Network, labels: np.ndarray) -> pd.DataFrame:
     labels = check_zone_labels(network, labels)
     k = int(labels.max()) + 1 if labels.size else 0
     figures = zone_figures(network, labels, k)
+    # Conductance at the network's scale; the sums in the units given (exact:
+    # a power of two, see Network.weight_exponent).
+    user = network.user_units
     return pd.DataFrame(
         {
             "zone": np.arange(k),
             "nodes": figures.nodes,
             "size": figures.size,
-            "internal_weight": figures.internal_weight,
-            "boundary_weight": figures.boundary_weight,
+            "internal_weight": user(figures.internal_weight),
+            "boundary_weight": user(figures.boundary_weight),
             # Every node is in a zone, so vol V is the sum of the zone volumes.
             "conductance": conductance(
-                figures.boundary_weight, figures.volume, figures.volume.sum()
+                figures.boundary_weight,
+                figures.volume,
+                figures.volume.sum(),
+                complement=complement_volumes(figures.volume),
             ),
             "connected": figures.connected,
-            "volume": figures.volume,
+            "volume": user(figures.volume),
             "boundary_links": figures.boundary_links,
         }
     )

@@ -20,7 +20,13 @@ from collections.abc import Mapping
 
 from .exceptions import ParameterError
 
-__all__ = ["KEYWORD_OPTIONS", "for_command_line", "option_names"]
+__all__ = [
+    "KEYWORD_OPTIONS",
+    "LIBRARY_ADVICE",
+    "command_line_advice",
+    "for_command_line",
+    "option_names",
+]
 
 #: Library keywords set by an option whose ``dest`` is another name
 #: (``_commands.py``: ``rng=args.seed``, ``x=args.x_col``, ...).
@@ -69,6 +75,47 @@ def option_names(parser: argparse.ArgumentParser, command: str | None = None) ->
     return names
 
 
+#: Advice in library messages that names library keywords, and the keywords
+#: whose options could carry it out on the command line, in the order said
+#: (``eigen/_api.py`` and ``walks.py`` write these phrases). The command line
+#: says only what its own options can do (it has no iteration cap, for one).
+LIBRARY_ADVICE = {
+    "raise maxiter or loosen tol": ("maxiter", "tol", "method"),
+    "raise maxiter or tol": ("maxiter", "damping"),
+}
+
+#: What each keyword's option does about a solve that did not converge.
+_ADVICE_VERBS = {
+    "maxiter": "raise {option}",
+    "tol": "loosen {option}",
+    "method": "try another {option}",
+    "damping": "lower {option} (more random jumps: the walk settles sooner)",
+}
+
+#: Said when the command has no option that could help.
+_NO_OPTION_ADVICE = "report the network (no option of this command changes the solve)"
+
+
+def command_line_advice(message: str, names: Mapping[str, str]) -> str:
+    """``message`` with library advice (:data:`LIBRARY_ADVICE`) said in the command's options.
+
+    Examples
+    --------
+    >>> names = {"tol": "--tol", "method": "--solver"}
+    >>> command_line_advice("residual 1e-3 against tol=1e-08; raise maxiter or loosen tol", names)
+    'residual 1e-3 against tol=1e-08; loosen --tol or try another --solver'
+    >>> command_line_advice("not converged; raise maxiter or tol", {})
+    'not converged; report the network (no option of this command changes the solve)'
+    """
+    for phrase, keywords in LIBRARY_ADVICE.items():
+        if phrase in message:
+            steps = [
+                _ADVICE_VERBS[key].format(option=names[key]) for key in keywords if key in names
+            ]
+            return message.replace(phrase, " or ".join(steps) or _NO_OPTION_ADVICE)
+    return message
+
+
 def for_command_line(error: Exception, names: Mapping[str, str]) -> str:
     """The message of ``error``, with the option that set the refused argument in front.
 
@@ -87,7 +134,7 @@ def for_command_line(error: Exception, names: Mapping[str, str]) -> str:
     >>> for_command_line(parameter_error("k", "an integer", "x"), names)
     "k must be an integer; got 'x'."
     """
-    message = str(error)
+    message = command_line_advice(str(error), names)
     parameter = error.parameter if isinstance(error, ParameterError) else None
     if parameter is None or parameter not in names:
         return message

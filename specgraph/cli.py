@@ -825,7 +825,8 @@ def _dispatch(
         with compile_notice(enabled=getattr(args, "compile_notice", False)):
             summary = COMMANDS[args.command](args, argv)
     except ConvergenceError as exc:
-        logger.error("error: %s", exc)
+        message = for_command_line(exc, options or {})  # advice in this command's options
+        logger.error("error: %s", message)
         logger.error(
             "partial residuals: %s; no zones were written",
             [f"{r:.3g}" for r in exc.partial.residuals],
@@ -833,7 +834,7 @@ def _dispatch(
         _debug_traceback(args)
         _record_not_converged(args, argv, exc)
         if as_json:
-            _print_error(type(exc).__name__, str(exc), EXIT_NOT_CONVERGED, exc)
+            _print_error(type(exc).__name__, message, EXIT_NOT_CONVERGED, exc)
         return EXIT_NOT_CONVERGED, None
     except SpecgraphError as exc:
         message = for_command_line(exc, options or {})

@@ -58,6 +58,7 @@ from sklearn.utils.validation import validate_data
 
 from ._validation import (
     POSITIVE,
+    TOLERANCE,
     Boolean,
     Constraint,
     Interval,
@@ -94,7 +95,7 @@ _PARAMETERS: dict[str, list[Constraint]] = {
     "eigen_method": [Options(METHODS)],
     "refine": [Boolean()],
     "gamma": [POSITIVE],
-    "tol": [POSITIVE],
+    "tol": [TOLERANCE],
     "n_neighbors": [Interval(int, 1, None)],
 }
 

@@ -16,7 +16,16 @@ Input policies (documented in ``docs/input-policy.md`` and counted in
   links: their affinities are **summed** (parallel pipes or lines conduct in sum)
   and counted;
 * a link of affinity zero joins nothing; it is left out of the adjacency, its two
-  ends stay in the network, and it is counted.
+  ends stay in the network, and it is counted;
+* a link whose affinity is negligible beside the largest (below float64's
+  smallest normal number times it, see :mod:`specgraph._scale`) is left out like
+  a zero-weight link and counted (``negligible_weight_links_dropped``).
+
+Affinities whose largest lies outside the band of :mod:`specgraph._scale`
+(beyond about 3.4e38 or below about 2.9e-39) are held divided by a power of two,
+:attr:`Network.weight_exponent`, so that no later sum or product overflows or
+vanishes; the network's total volume must be a finite float64 in the units
+given, or the network is refused.
 
 A network read as directed (``directed=True``) also keeps :attr:`Network.arcs`:
 the directed affinities, row = from-node, column = to-node, with the same
@@ -29,11 +38,12 @@ undirected stage works on it unchanged; only the stages that ask for direction
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+import math
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from functools import cached_property
 from types import MappingProxyType
-from typing import TYPE_CHECKING, Any
+from typing import TYPE_CHECKING, Any, Protocol
 
 import numpy as np
 import scipy.sparse as sp
@@ -41,14 +51,23 @@ from scipy.sparse.csgraph import connected_components
 
 from ._graph import MISSING_WEIGHT_DEFAULT, read_graph
 from ._links import LinkEnds, encode_links
+from ._scale import (
+    in_band,
+    negligible_mask,
+    overflow_threshold,
+    scale_sentence,
+    top_exponent,
+    user_units,
+)
 from ._validation import check_bool
+from ._wording import count
 from .exceptions import InputError
 
 if TYPE_CHECKING:
     import networkx as nx
     import pandas as pd
 
-__all__ = ["Network", "affinity_from_distance"]
+__all__ = ["Network", "affinity_from_distance", "negligible_warning", "weight_notes"]
 
 #: Largest relative asymmetry ``max|A - A^T| / max|A|`` accepted as round-off
 #: when a matrix is handed in as symmetric (a few ulps of float64 summation).
@@ -100,6 +119,45 @@ def _readonly(array: np.ndarray) -> np.ndarray:
     return array
 
 
+def _at_safe_scale(
+    adjacency: sp.csr_array, arcs: Any, exponent: int
+) -> tuple[sp.csr_array, Any, int]:
+    """``adjacency`` and ``arcs`` divided by a power of two when their largest is out of band.
+
+    The constructor's own guard (readers scale in :func:`network_from_ends`,
+    naming the file and line of a fault): a matrix handed in whose largest
+    affinity lies outside the band of :mod:`specgraph._scale` is divided by
+    ``2**(top - 1)`` (exact), which brings the largest into ``[1, 2)``; a matrix
+    holding an affinity that would then fall below float64's smallest normal
+    number, or whose total volume is not a finite float64 in the units given,
+    is refused. ``adjacency`` is a private copy and is scaled in place.
+    """
+    data = adjacency.data
+    top = top_exponent(data)
+    if data.size and not in_band(top):
+        negligible = int(np.count_nonzero(negligible_mask(data, top))) // 2
+        if negligible:
+            raise InputError(
+                f"adjacency holds {count(negligible, 'link')} below 2^-1022 times its largest "
+                "affinity "
+                f"({float(data.max()):.3g}), too small to be held beside it in float64; give "
+                "them affinity 0, or read the links with a reader (which leaves such links "
+                "out and counts them)"
+            )
+        data *= math.ldexp(1.0, 1 - top)
+        if arcs is not None:
+            arcs = sp.csr_array(arcs, dtype=np.float64, copy=True)
+            arcs.data *= math.ldexp(1.0, 1 - top)
+        exponent += top - 1
+    if data.size and float(data.sum()) >= overflow_threshold(exponent):
+        raise InputError(
+            "the total volume of the network (the sum of its affinities over both ends of "
+            "every link) is larger than the largest float64 number in the units given; "
+            "divide every affinity by the same power of ten"
+        )
+    return adjacency, arcs, exponent
+
+
 class _InducedIds(np.ndarray):
     """Node ids that :meth:`Network.subnetwork` took from distinct rows of a network
     whose adjacency is exactly symmetric: unique strings over an exactly symmetric
@@ -148,6 +206,12 @@ class Network:
         Directed affinities (row = from-node, column = to-node), non-negative,
         zero diagonal, with ``adjacency == arcs + arcs.T`` (checked to
         :data:`SYMMETRY_RTOL`). None for an undirected network.
+    weight_exponent : int, default=0
+        The affinities as given are the stored ones times
+        ``2**weight_exponent`` (exact: a power of two). 0 unless the largest
+        affinity lies outside the band of :mod:`specgraph._scale`; the
+        constructor then divides ``adjacency`` and ``arcs`` by such a power
+        so that the largest is in ``[1, 2)`` and adds it here.
 
     Attributes
     ----------
@@ -158,7 +222,8 @@ class Network:
     n_arcs : int
         Number of distinct arcs (0 for an undirected network).
     degrees : ndarray
-        Weighted degree of each node.
+        Weighted degree of each node (stored units: times
+        ``2**weight_exponent`` in the units given, see :meth:`user_units`).
     component_labels : ndarray of int
         Connected component of each node, numbered from 0 by first node.
     n_components : int
@@ -172,6 +237,7 @@ class Network:
     links: pd.DataFrame | None = None
     notes: Mapping[str, Any] = field(default_factory=dict)
     arcs: sp.csr_array | None = None
+    weight_exponent: int = 0
 
     def __post_init__(self) -> None:
         # A private copy: the canonicalization below works in place, and neither
@@ -188,6 +254,9 @@ class Network:
             raise InputError("adjacency must hold finite, non-negative affinities")
         if adjacency.diagonal().any():
             raise InputError("adjacency must have a zero diagonal (no self-loops)")
+        adjacency, arcs, exponent = _at_safe_scale(adjacency, self.arcs, self.weight_exponent)
+        object.__setattr__(self, "weight_exponent", exponent)
+        object.__setattr__(self, "arcs", arcs)
         induced = isinstance(self.node_ids, _InducedIds)
         exact = induced  # a principal submatrix of an exactly symmetric matrix is so too
         if not induced:
@@ -273,6 +342,26 @@ class Network:
     def degrees(self) -> np.ndarray:
         return _readonly(np.asarray(self.adjacency.sum(axis=1)).ravel())
 
+    def user_units(self, values: Any) -> Any:
+        """Sums of stored affinities (volumes, cuts) in the units given (``* 2**weight_exponent``).
+
+        Exact (a power of two); ``values`` as they are when the exponent is 0.
+
+        Examples
+        --------
+        >>> net = Network.from_links(["a", "b"], ["b", "c"], [1e300, 1e300])
+        >>> net.weight_exponent, bool(1 <= net.adjacency.max() < 2)
+        (996, True)
+        >>> float(net.user_units(net.degrees.sum()))
+        4e+300
+        """
+        return user_units(values, self.weight_exponent)
+
+    @property
+    def weight_scale_note(self) -> str:
+        """The run record's sentence on the scale of the affinities ('' when it is 1)."""
+        return scale_sentence(self.weight_exponent)
+
     @cached_property
     def node_weights(self) -> np.ndarray:
         """Node sizes when given, otherwise one per node."""
@@ -314,7 +403,7 @@ class Network:
             {
                 "source": self.node_ids[upper.row],
                 "target": self.node_ids[upper.col],
-                "weight": upper.data,
+                "weight": self.user_units(upper.data),
             }
         )
 
@@ -347,6 +436,7 @@ class Network:
                 self.links,
                 dict(self.notes),
                 self.arcs,
+                self.weight_exponent,
             ),
             state,
         )
@@ -377,6 +467,7 @@ class Network:
             coordinates=None if self.coordinates is None else self.coordinates[nodes],
             sizes=None if self.sizes is None else self.sizes[nodes],
             arcs=None if self.arcs is None else self.arcs[nodes][:, nodes],
+            weight_exponent=self.weight_exponent,
         )
 
     # ---------------------------------------------------------- constructors
@@ -589,6 +680,49 @@ class Network:
         return network
 
 
+def negligible_warning(network: Network) -> str:
+    """The warning for links left out as negligible beside the largest ('' when none).
+
+    Examples
+    --------
+    >>> net = Network.from_links(["a", "b", "c"], ["b", "c", "a"], [1e300, 1e300, 1e-300])
+    >>> negligible_warning(net)[:58]
+    '1 link was left out as negligible: its weight is below 2^-'
+    """
+    dropped = int(network.notes.get("negligible_weight_links_dropped", 0) or 0)
+    if not dropped:
+        return ""
+    links = "1 link was" if dropped == 1 else f"{dropped:,} links were"
+    its = "its weight is" if dropped == 1 else "their weights are"
+    return (
+        f"{links} left out as negligible: {its} below 2^-1022 times the largest weight, "
+        "too small to be held beside it in float64 numbers (they count as weight 0, their "
+        "ends stay in the network, and boundary.csv still lists them when they join two "
+        "zones); raise them, or give them 0 to silence this"
+    )
+
+
+def weight_notes(network: Network) -> list[str]:
+    """The run record's sentences on the network's weights: the scale, negligible links.
+
+    Empty for a network held as given with no negligible link.
+    """
+    return [text for text in (network.weight_scale_note, negligible_warning(network)) if text]
+
+
+class LinkOrigin(Protocol):
+    """Where a link table came from (a reader's origin), so refusals name the file and line.
+
+    ``locate(row)`` gives the 1-based file line of a 0-based link row (or
+    None); ``error(message, row=row)`` makes the :class:`InputError` at that row.
+    """
+
+    @property
+    def locate(self) -> Callable[[int], int | None] | None: ...
+
+    def error(self, message: str, *, row: int | None = None) -> InputError: ...
+
+
 def network_from_ends(
     ends: LinkEnds,
     weight: Sequence[float] | np.ndarray | None = None,
@@ -599,6 +733,7 @@ def network_from_ends(
     notes: Mapping[str, Any] | None = None,
     directed: bool = False,
     factory: type[Network] | None = None,
+    origin: LinkOrigin | None = None,
 ) -> Network:
     """:meth:`Network.from_links` on ends already encoded by :func:`specgraph._links.encode_links`.
 
@@ -606,7 +741,14 @@ def network_from_ends(
     file and line of a fault) encode the ids once and build from them here.
     ``factory`` is the class built (default :class:`Network`). The network's
     :attr:`~Network.link_ends` are the encoded rows, so they are never looked
-    up again.
+    up again. ``origin`` (a reader's :class:`LinkOrigin`) lets a refusal of
+    the weights name the file and line; without it the link's 1-based row.
+
+    The affinities are summed at a safe scale (:mod:`specgraph._scale`): the
+    largest is brought into ``[1, 2)`` by an exact power of two first, so
+    parallel links summed past the largest float, or a total volume past it,
+    are found and refused without overflowing; negligible links are left out
+    and counted (``negligible_weight_links_dropped``).
     """
     n_links = len(ends.source)
     w = np.ones(n_links) if weight is None else np.asarray(weight, dtype=np.float64)
@@ -616,28 +758,133 @@ def network_from_ends(
         raise InputError("weights must be finite and >= 0")
     directed = check_bool(directed, "directed")
     i, j = _checked_rows(ends)
-    adjacency, counts = _adjacency_from_links(i, j, w, ends.node_ids.size, directed=directed)
+    top = top_exponent(w)
+    negligible = negligible_mask(w, top)
+    shift = top - 1  # the largest affinity / 2**shift is in [1, 2)
+    scaled = np.ldexp(w, -shift) if shift else w
+    adjacency, counts = _adjacency_from_links(
+        i, j, scaled, ends.node_ids.size, directed=directed, negligible=negligible
+    )
     arcs = None
     if directed:
         arcs, adjacency = adjacency, (adjacency + adjacency.T).tocsr()
+    _refuse_overflow(adjacency, i, j, w, shift, ends, origin)
+    exponent = _final_exponent(adjacency, shift)
+    if exponent != shift:
+        factor = math.ldexp(1.0, shift - exponent)
+        adjacency.data *= factor
+        if arcs is not None:
+            arcs.data *= factor
     import pandas as pd
 
     table = pd.DataFrame({"source": ends.source, "target": ends.target, "weight": w})
     if extra is not None:
         table = pd.concat([table, extra.reset_index(drop=True)], axis=1)
+    scale: dict[str, Any] = {}
+    if exponent:  # said in the run record's input policy, whatever the command
+        scale = {"weight_scale_exponent": exponent, "weight_scale_note": scale_sentence(exponent)}
     network = (factory or Network)(
         adjacency,
         ends.node_ids,
         coordinates=coordinates,
         sizes=sizes,
         links=table,
-        notes={**counts, **(notes or {})},
+        notes={**counts, **scale, **(notes or {})},
         arcs=arcs,
+        weight_exponent=exponent,
     )
     # The table's ends are these rows: set the cached property now (it would
     # otherwise look every id up again the first time it is read).
     object.__setattr__(network, "link_ends", (_readonly(i), _readonly(j)))
     return network
+
+
+def _final_exponent(adjacency: sp.csr_array, shift: int) -> int:
+    """The :attr:`~Network.weight_exponent` of an adjacency stored divided by ``2**shift``.
+
+    0 (the affinities as given) when the largest summed affinity lies in the
+    band of :mod:`specgraph._scale`, else the exponent that brings it into
+    ``[1, 2)``.
+    """
+    if not adjacency.nnz:
+        return 0
+    final = shift + top_exponent(adjacency.data)
+    return 0 if in_band(final) else final - 1
+
+
+def _where(rows: Sequence[int], origin: LinkOrigin | None) -> str:
+    """``lines 3 and 4`` (from the origin's file) or ``rows 2 and 3`` (1-based)."""
+    locate = None if origin is None else origin.locate
+    lines = [None if locate is None else locate(r) for r in rows]
+    if all(line is not None for line in lines):
+        numbers, word = [str(line) for line in lines], "line"
+    else:
+        numbers, word = [str(r + 1) for r in rows], "row"
+    if len(numbers) == 1:
+        return f"{word} {numbers[0]}"
+    listed = ", ".join(numbers[:-1]) + " and " + numbers[-1]
+    return f"{word}s {listed}"
+
+
+def _refusal(message: str, row: int, origin: LinkOrigin | None) -> InputError:
+    """The refusal at link ``row``: the origin's file and line in front, when known."""
+    return InputError(message) if origin is None else origin.error(message, row=row)
+
+
+#: Parallel links listed by line in the refusal of a sum that overflows.
+_ROWS_SHOWN = 5
+
+
+def _refuse_overflow(
+    adjacency: sp.csr_array,
+    i: np.ndarray,
+    j: np.ndarray,
+    w: np.ndarray,
+    shift: int,
+    ends: LinkEnds,
+    origin: LinkOrigin | None,
+) -> None:
+    """Refuse summed affinities, or a total volume, past the largest float64 in the units given.
+
+    ``adjacency`` holds the affinities divided by ``2**shift`` (so its sums are
+    finite); a value at or above :func:`~specgraph._scale.overflow_threshold`
+    would be infinite in the units given.
+    """
+    limit = overflow_threshold(shift)
+    if not adjacency.nnz or math.isinf(limit):
+        return
+    data = adjacency.data
+    if float(data.max()) >= limit:  # parallel links whose sum alone overflows
+        k = int(np.argmax(data))
+        a = int(np.searchsorted(adjacency.indptr, k, side="right") - 1)
+        b = int(adjacency.indices[k])
+        rows = np.flatnonzero(((i == a) & (j == b)) | ((i == b) & (j == a))).tolist()
+        shown = _where(rows[:_ROWS_SHOWN], origin)
+        more = f" and {len(rows) - _ROWS_SHOWN} more" if len(rows) > _ROWS_SHOWN else ""
+        raise _refusal(
+            f"the links on {shown}{more} join the same two nodes ({ends.end_id(rows[0], 0)!r} "
+            f"and {ends.end_id(rows[0], 1)!r}), and parallel links are summed: their weights "
+            f"sum past the largest float64 number ({np.finfo(np.float64).max:.3g}); divide "
+            "the weight column by a power of ten (zones do not change when every weight is "
+            "divided by the same number)",
+            rows[0],
+            origin,
+        )
+    total = float(data.sum())
+    if total >= limit:
+        k = int(np.argmax(w))
+        decades = math.log10(total) + shift * math.log10(2.0)
+        power = max(1, math.ceil(decades - 300))
+        shown = f"{10.0 ** (decades - math.floor(decades)):.2g}e+{math.floor(decades)}"
+        raise _refusal(
+            f"the largest weight, {w[k]:.3g} on {_where([k], origin)}, makes the network's "
+            f"total volume (twice the sum of the weights, about {shown}) larger than "
+            f"the largest float64 number ({np.finfo(np.float64).max:.3g}), so zone volumes "
+            f"cannot be written in these units; divide the weight column by 1e{power} (zones "
+            "do not change when every weight is divided by the same number)",
+            k,
+            origin,
+        )
 
 
 def _checked_rows(ends: LinkEnds) -> tuple[np.ndarray, np.ndarray]:
@@ -654,12 +901,23 @@ def _checked_rows(ends: LinkEnds) -> tuple[np.ndarray, np.ndarray]:
 
 
 def _adjacency_from_links(
-    i: np.ndarray, j: np.ndarray, w: np.ndarray, n: int, *, directed: bool = False
+    i: np.ndarray,
+    j: np.ndarray,
+    w: np.ndarray,
+    n: int,
+    *,
+    directed: bool = False,
+    negligible: np.ndarray | None = None,
 ) -> tuple[sp.csr_array, dict[str, int]]:
-    """Symmetric adjacency (or, directed, the arcs) with the input policies, and their counts."""
+    """Symmetric adjacency (or, directed, the arcs) with the input policies, and their counts.
+
+    ``negligible`` marks links left out as negligible beside the largest
+    (:func:`~specgraph._scale.negligible_mask`); they are counted apart.
+    """
     loops = i == j
-    zero = (w == 0) & ~loops
-    keep = ~loops & ~zero
+    small = np.zeros(w.shape, dtype=bool) if negligible is None else negligible & ~loops
+    zero = (w == 0) & ~loops & ~small  # a negligible link may be 0 at the safe scale
+    keep = ~loops & ~zero & ~small
     if directed:
         lo, hi = i[keep], j[keep]
     else:
@@ -676,6 +934,8 @@ def _adjacency_from_links(
         "zero_weight_links_dropped": int(zero.sum()),
         "duplicate_links_merged": int(keep.sum() - upper.nnz),
     }
+    if small.any():
+        counts["negligible_weight_links_dropped"] = int(small.sum())
     if directed:
         return upper, counts
     return (upper + upper.T).tocsr(), counts
@@ -689,6 +949,7 @@ def _rebuild_network(
     links: Any,
     notes: dict[str, Any],
     arcs: Any,
+    weight_exponent: int = 0,
 ) -> Network:
     """Unpickle a :class:`Network` (see :meth:`Network.__reduce__`)."""
     return Network(
@@ -699,4 +960,5 @@ def _rebuild_network(
         links=links,
         notes=notes,
         arcs=arcs,
+        weight_exponent=weight_exponent,
     )

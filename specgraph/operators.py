@@ -138,7 +138,10 @@ class GraphOperator:
         columns for an operator with no known null space (``bethe_hessian``),
         which may then be indefinite.
     degrees : ndarray of shape (n,)
-        Weighted degrees of the network.
+        Weighted degrees of the network, at its scale (the stored affinities:
+        :attr:`Network.weight_exponent`). The normalized kinds do not depend on
+        that scale; the eigenvalues of ``'combinatorial'`` are in its units
+        (multiply by ``2**weight_exponent`` for the units given).
     component_labels : ndarray of shape (n,), optional
         Connected component of each node; the operator is block diagonal in
         them. When None, components are read off ``null_basis``.
@@ -272,6 +275,10 @@ def _regularized(network: Network, tau: float | None) -> GraphOperator:
     n = network.n_nodes
     if tau is None:
         tau = float(d.sum() / n) if n else 0.0
+    else:  # given in the units of the affinities as read: to the network's scale
+        tau = float(
+            np.ldexp(check_positive_float(tau, "tau", allow_zero=True), -network.weight_exponent)
+        )
     tau = check_positive_float(tau, "tau", allow_zero=True)
     d_tau = d + tau
     s = _inverse_sqrt(d_tau)
@@ -281,7 +288,8 @@ def _regularized(network: Network, tau: float | None) -> GraphOperator:
     sizes = np.bincount(labels, minlength=network.n_components)
     low_rank = s * np.sqrt(tau / sizes[labels]) if tau > 0 else None
     basis = _component_basis(network, np.sqrt(d_tau))
-    return GraphOperator(matrix, "regularized", 2.0, basis, d, labels, low_rank, 0.0, {"tau": tau})
+    recorded = {"tau": float(network.user_units(tau))}  # in the units given
+    return GraphOperator(matrix, "regularized", 2.0, basis, d, labels, low_rank, 0.0, recorded)
 
 
 def bethe_radius(network: Network) -> float:

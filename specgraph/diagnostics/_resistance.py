@@ -131,6 +131,14 @@ class LinkResistances:
         Rows of the sign matrix used (0 when nothing was sketched).
     max_residual : float
         Largest relative residual of the sketch solves (0 when none).
+    unavailable : int, default=0
+        Links whose resistance could not be computed (NaN): the weights of
+        their piece span more than a float64 inverse can resolve.
+    warning : str, default=''
+        Why, when ``unavailable`` is not 0.
+
+    ``weight`` and ``resistance`` are in the units of the affinities as given
+    (the network may hold them scaled, :attr:`Network.weight_exponent`).
     """
 
     source: np.ndarray
@@ -141,6 +149,8 @@ class LinkResistances:
     method: str
     sketch_rows: int
     max_residual: float
+    unavailable: int = 0
+    warning: str = ""
 
     @property
     def leverage(self) -> np.ndarray:
@@ -247,7 +257,8 @@ def _resistances(
         ids, blocks = groups.stacked(pieces_adj, size)
         if ids.size == 0:
             continue
-        pinv = np.linalg.inv(_stacked_laplacians(blocks, "combinatorial") + 1.0 / size) - 1.0 / size
+        shifted = _stacked_laplacians(blocks, "combinatorial") + 1.0 / size
+        pinv = _stacked_inverse(shifted) - 1.0 / size
         slot = np.full(count, -1, dtype=np.int64)
         slot[ids] = np.arange(ids.size)
         links = inner[slot[link_piece] >= 0]
@@ -267,16 +278,51 @@ def _resistances(
             estimated[links] = True
             worst = max(worst, residual)
             used.add("sketch")
+    # A resistance is positive; NaN, infinite or not positive is an inverse that
+    # float64 could not resolve (weights 2^53 and more apart in one piece).
+    lost = ~(resistance > 0) | ~np.isfinite(resistance)
+    resistance[lost] = np.nan
+    unavailable = int(np.count_nonzero(lost))
     return LinkResistances(
         source=source,
         target=target,
-        weight=weight,
-        resistance=resistance,
+        weight=network.user_units(weight),
+        # R scales as 1/w: at the network's scale it is 2**weight_exponent times too big.
+        resistance=np.ldexp(resistance, -network.weight_exponent),
         estimated=estimated,
         method="+".join(sorted(used)) or "none",
         sketch_rows=q if "sketch" in used else 0,
         max_residual=worst,
+        unavailable=unavailable,
+        warning=_unavailable_warning(unavailable),
     )
+
+
+def _unavailable_warning(unavailable: int) -> str:
+    """The warning for resistances left empty ('' when none)."""
+    if not unavailable:
+        return ""
+    links = "1 link" if unavailable == 1 else f"{unavailable:,} links"
+    return (
+        f"the effective resistance (and leverage) of {links} could not be computed and is "
+        "left empty: the link weights around them span more than a float64 inverse can "
+        "resolve (weights 2^53 or more apart in one piece); their bridges and cut figures "
+        "are exact"
+    )
+
+
+def _stacked_inverse(stack: np.ndarray) -> np.ndarray:
+    """Inverses of a stack of matrices; NaN for a matrix float64 finds singular."""
+    try:
+        return np.linalg.inv(stack)
+    except np.linalg.LinAlgError:
+        out = np.full_like(stack, np.nan)
+        for i, matrix in enumerate(stack):
+            try:
+                out[i] = np.linalg.inv(matrix)
+            except np.linalg.LinAlgError:
+                continue
+        return out
 
 
 def _exact_piece(block: sp.csr_array, a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -284,7 +330,7 @@ def _exact_piece(block: sp.csr_array, a: np.ndarray, b: np.ndarray) -> np.ndarra
     m = block.shape[0]
     dense = -block.toarray()
     dense[np.diag_indices(m)] += block.sum(axis=1)
-    pinv = np.linalg.inv(dense + 1.0 / m) - 1.0 / m
+    pinv = _stacked_inverse((dense + 1.0 / m)[None])[0] - 1.0 / m
     return pinv[a, a] + pinv[b, b] - 2.0 * pinv[a, b]
 
 

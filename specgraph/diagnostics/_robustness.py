@@ -49,7 +49,13 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 
 from .._labels import code_labels
-from .._validation import check_choice, check_int, check_positive_float, check_rng, parameter_error
+from .._validation import (
+    check_choice,
+    check_int,
+    check_rng,
+    check_tol,
+    parameter_error,
+)
 from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..network import Network
 from ..operators import laplacian
@@ -289,7 +295,7 @@ def robustness(
     0.2984
     """
     top = check_int(top, "top", minimum=0)
-    tol = check_positive_float(tol, "tol")
+    tol = check_tol(tol)
     check_choice(resistance, "resistance", RESISTANCE_METHODS)
     check_choice(eigen_method, "eigen_method", METHODS)
     sketch_rows = check_int(sketch_rows, "sketch_rows", minimum=1)
@@ -314,7 +320,7 @@ def robustness(
 
     ids = network.node_ids
     bridges = _bridge_table(network, cuts)
-    links = _link_table(ids, cuts, resistances, combinatorial.vector, top)
+    links = _link_table(network, cuts, resistances, combinatorial.vector, top)
     carried, renamed = carried_link_columns(
         network, (bridges, links), taken=(*bridges.columns, *links.columns)
     )
@@ -333,15 +339,19 @@ def robustness(
             s.max_residual for s in (combinatorial, normalized, *zone_spectra)
         ),
         "tol": tol,
+        "resistance_unavailable": resistances.unavailable,
+        "warnings": [resistances.warning] if resistances.warning else [],
     }
     if zone_labels is not None:
         record["unassigned_nodes"] = int(np.count_nonzero(zone_labels < 0))
     if renamed:
         record["renamed_link_columns"] = renamed
+    # The combinatorial eigenvalues scale with the weights: in the units given.
+    comb_values = network.user_units(combinatorial.values)
     return Robustness(
-        algebraic_connectivity=_whole(network, combinatorial.values),
+        algebraic_connectivity=_whole(network, comb_values),
         normalized_connectivity=_whole(network, normalized.values),
-        components=_component_table(network, cuts, combinatorial.values, normalized.values),
+        components=_component_table(network, cuts, comb_values, normalized.values),
         zones=zones,
         bridges=bridges,
         nodes=_node_table(network, cuts),
@@ -429,7 +439,10 @@ def _zone_table(
         single = np.flatnonzero(pieces == 1)
         first_piece = np.full(k, -1, dtype=np.int64)
         first_piece[zone_of_piece[zoned]] = zoned
-        value[single] = spec.values[first_piece[single]]
+        # The combinatorial eigenvalues scale with the weights: in the units given.
+        scaled = name == "algebraic_connectivity"
+        values = network.user_units(spec.values) if scaled else spec.values
+        value[single] = values[first_piece[single]]
         value[pieces > 1] = 0.0  # a disconnected zone (Fiedler 1973)
         columns[name] = value
     table = pd.DataFrame(
@@ -457,7 +470,7 @@ def _bridge_table(network: Network, cuts: CutStructure) -> pd.DataFrame:
         {
             "source": ids[cuts.link_source[rows]],
             "target": ids[cuts.link_target[rows]],
-            "weight": cuts.link_weight[rows],
+            "weight": network.user_units(cuts.link_weight[rows]),
             "cut_nodes": cuts.cut_nodes[rows],
             "cut_size": cuts.cut_size[rows],
             "cut_end": ids[cuts.cut_end[rows]],
@@ -481,12 +494,14 @@ def _node_table(network: Network, cuts: CutStructure) -> pd.DataFrame:
 
 
 def _link_table(
-    ids: np.ndarray,
+    network: Network,
     cuts: CutStructure,
     res: LinkResistances,
     fiedler: np.ndarray,
     top: int,
 ) -> pd.DataFrame:
+    """The links ranked; weights and resistances in the units given (leverage has none)."""
+    ids = network.node_ids
     leverage = res.leverage
     index = np.arange(leverage.size)
     order = np.lexsort(
@@ -498,9 +513,9 @@ def _link_table(
         {
             "source": ids[src],
             "target": ids[dst],
-            "weight": cuts.link_weight[rows],
+            "weight": network.user_units(cuts.link_weight[rows]),
             "leverage": leverage[rows],
-            "resistance": res.resistance[rows],
+            "resistance": res.resistance[rows],  # in the units given
             "bridge": cuts.is_bridge[rows],
             "cut_nodes": cuts.cut_nodes[rows],
             "cut_size": cuts.cut_size[rows],

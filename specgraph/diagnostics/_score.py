@@ -33,7 +33,7 @@ import pandas as pd
 from .. import _figures
 from .._figures import UNASSIGNED
 from .._labels import code_labels, named
-from .._validation import check_choice, check_positive_float, check_rng, parameter_error
+from .._validation import check_choice, check_rng, check_tol, parameter_error
 from ..eigen import DEFAULT_TOL, METHODS, smallest_eigenpairs
 from ..exceptions import InputError, ParameterError
 from ..network import Network
@@ -439,7 +439,7 @@ def score(
     0.357143
     """
     codes, names = _check_user_labels(network, labels)
-    tol = check_positive_float(tol, "tol")
+    tol = check_tol(tol)
     check_choice(eigen_method, "eigen_method", METHODS)
     generator = check_rng(rng)
     assigned = codes >= 0
@@ -515,19 +515,23 @@ def _zone_frame(
         q_terms = figures.internal_weight[:k] / total_weight - (volume / (2.0 * total_weight)) ** 2
     else:
         q_terms = np.zeros(k)
+    # Every entry of figures.volume (the unassigned nodes' too) is one part of
+    # the network: their exclusive sums are the complements, with no subtraction.
+    complement = _figures.complement_volumes(figures.volume)[:k]
+    user = network.user_units  # sums written in the units given (Network.weight_exponent)
     zones = pd.DataFrame(
         {
             "zone": numbers,
             "nodes": figures.nodes[:k],
             "size": figures.size[:k],
-            "internal_weight": figures.internal_weight[:k],
-            "boundary_weight": cut,
+            "internal_weight": user(figures.internal_weight[:k]),
+            "boundary_weight": user(cut),
             "boundary_links": figures.boundary_links[:k],
-            "conductance": _figures.conductance(cut, volume, total_volume),
+            "conductance": _figures.conductance(cut, volume, total_volume, complement=complement),
             "ncut_share": ncut_terms / ncut if ncut > 0 else np.zeros(k),
             "modularity_share": q_terms,
             "connected": figures.connected[:k],
-            "volume": volume,
+            "volume": user(volume),
         }
     )
     return zones, {"ncut": ncut_terms, "modularity": q_terms}
@@ -555,7 +559,8 @@ def _overall(
     k = len(zones)
     # Crossing links: zone-zone ones appear in two zones' boundaries, zone-outside
     # ones in one zone's boundary and in the outside row.
-    out_weight = float(figures.boundary_weight[k])
+    # Weights in the units given (exact: a power of two, Network.weight_exponent).
+    out_weight = float(network.user_units(figures.boundary_weight[k]))
     out_links = int(figures.boundary_links[k])
     return {
         "zones": k,
@@ -565,7 +570,7 @@ def _overall(
         "modularity": float(terms["modularity"].sum()),
         "max_conductance": float(zones["conductance"].max()),
         "mean_conductance": float(zones["conductance"].mean()),
-        "boundary_weight": (float(figures.boundary_weight[:k].sum()) + out_weight) / 2.0,
+        "boundary_weight": (float(zones["boundary_weight"].sum()) + out_weight) / 2.0,
         "boundary_links": (int(zones["boundary_links"].sum()) + out_links) // 2,
         "boundary_weight_to_unassigned": out_weight,
         "boundary_links_to_unassigned": out_links,

@@ -506,6 +506,7 @@ def build_network(
         extra=edges[extra].reset_index(drop=True) if extra else None,
         notes=record,
         directed=directed,
+        origin=edge_origin,
     )
 
 

@@ -609,15 +609,18 @@ def read_geojson_lines(
     affinity, weight_record = _weights(parsed, keep, lengths, weight, distance, path)
     report = _report(path, len(features), parsed, nodes, tolerance, _crs_name(document), renamed)
     links = int(keep.sum())
-    network = Network.from_links(
-        nodes.end_node[:links],
-        nodes.end_node[links:],
-        affinity,
-        node_ids=[str(i) for i in range(nodes.xy.shape[0])],
-        coordinates=nodes.xy,
-        extra=extra,
-        notes={**weight_record, "geojson": report.to_dict()},
-    )
+    try:
+        network = Network.from_links(
+            nodes.end_node[:links],
+            nodes.end_node[links:],
+            affinity,
+            node_ids=[str(i) for i in range(nodes.xy.shape[0])],
+            coordinates=nodes.xy,
+            extra=extra,
+            notes={**weight_record, "geojson": report.to_dict()},
+        )
+    except InputError as exc:  # weights past float64 (rows are the links, in feature order)
+        raise InputError(exc.reason, path=path) from exc
     return network, report
 
 

@@ -83,6 +83,7 @@ def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Netw
             sizes=network.sizes,
             notes=notes,
             arcs=arcs,
+            weight_exponent=network.weight_exponent,
         )
     upper = sp.triu(network.adjacency, k=1, format="coo")
     data = upper.data * np.exp(spread * generator.standard_normal(upper.data.size))
@@ -100,6 +101,7 @@ def perturb_weights(network: Network, *, spread: float, rng: Any = None) -> Netw
         coordinates=network.coordinates,
         sizes=network.sizes,
         notes=notes,
+        weight_exponent=network.weight_exponent,
     )
 
 

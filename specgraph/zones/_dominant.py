@@ -45,7 +45,7 @@ from scipy.sparse.csgraph import connected_components, minimum_spanning_tree
 
 from .._sparse import int32_indexed
 from .._wording import count, plural
-from ..network import Network
+from ..network import Network, weight_notes
 from ._arrays import as_csr
 from ._contract import contract_links
 from ._rules import ResolvedConstraints
@@ -159,6 +159,10 @@ def weight_range(adjacency: Any) -> dict[str, Any]:
     100.0
     """
     return _range_of(_links(adjacency).data)
+
+
+#: Figures of :func:`weight_range` in affinity units (the ratios have none).
+_ABSOLUTE = ("min", "median", "max")
 
 
 def _range_of(w: np.ndarray) -> dict[str, Any]:
@@ -349,18 +353,21 @@ def dominant_contraction(
 
     def shown(i: int) -> list[Any]:
         a, b = found.pairs[i]
-        return [str(ids[a]), str(ids[b]), float(found.weights[i])]
+        return [str(ids[a]), str(ids[b]), float(network.user_units(found.weights[i]))]
 
+    # The spread in the units given (the network may hold its affinities scaled).
+    figures = figures | {key: network.user_units(figures[key]) for key in _ABSOLUTE if figures[key]}
     decision: dict[str, Any] = {
         "choice": treatment,
         **figures,
+        "weight_scale_exponent": network.weight_exponent,
         "dominant_gap": DOMINANT_GAP,
         "dominant": int(found.weights.size),
         "contracted": int(keep.sum()),
         "contracted_links": [shown(i) for i in np.flatnonzero(keep)[:DOMINANT_SHOWN].tolist()],
         "left_links": [[*shown(i), why] for i, why in left[:DOMINANT_SHOWN]],
     }
-    decision["reason"] = _reason(decision)
+    decision["reason"] = "; ".join([_reason(decision), *weight_notes(network)])
     decision["warning"] = _warning(decision)
     pairs = found.pairs[keep] if keep.any() else none
     return pairs, decision

@@ -550,4 +550,7 @@ def _sweep(
         "seeded",
         "excess",
     ]
-    return pd.DataFrame(rows, columns=columns)
+    frame = pd.DataFrame(rows, columns=columns)
+    for column in ("volume", "boundary_weight"):  # in the units given (Network.weight_exponent)
+        frame[column] = network.user_units(frame[column].to_numpy())
+    return frame

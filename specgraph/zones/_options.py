@@ -9,7 +9,7 @@ import numpy as np
 
 from .._validation import (
     OPEN_UNIT,
-    POSITIVE,
+    TOLERANCE,
     Boolean,
     Constraint,
     InstanceOf,
@@ -58,7 +58,7 @@ ZONING_CONSTRAINTS: dict[str, list[Constraint]] = {
     "constraints": [InstanceOf((ZoneConstraints,), "a ZoneConstraints"), NoneOk()],
     "refine": [Boolean()],
     "eigen_method": [Options(METHODS)],
-    "tol": [POSITIVE],
+    "tol": [TOLERANCE],
     "maxiter": [Interval(int, 1, None), NoneOk()],
     "damping": [OPEN_UNIT],
     "progress": [IsCallable(), NoneOk()],

@@ -308,8 +308,10 @@ def _best_move(
         cb, vb, wb = state[0, b], state[1, b], weight[b]
         if vb > floor:
             gain_b = (2.0 * vb * wb - d * (vb - cb) + (q - d) * cb) / (vb * (vb + q))
-        else:
+        elif vb + q > 0.0:  # not when rounding left vb at -q (weights 2^53 apart)
             gain_b = -(cb + d - 2.0 * wb) / (vb + q)
+        else:
+            gain_b = 0.0
         gain = gain_a + gain_b
         if gain > best_gain or (gain == best_gain and b < best):
             best_gain, best = gain, b

@@ -98,9 +98,13 @@ def sweep_order(adjacency: sp.sparray, degree: np.ndarray, key: np.ndarray) -> S
     coo = sp.triu(adjacency, k=1, format="coo")
     later = np.where(rank[coo.row] > rank[coo.col], coo.row, coo.col)
     earlier_weight = np.bincount(later, weights=coo.data, minlength=degree.size)
-    cut = np.cumsum(degree[order] - 2.0 * earlier_weight[order])[:-1]
-    vol = np.cumsum(degree[order])[:-1]
-    smaller = np.minimum(vol, degree.sum() - vol)
+    ordered = degree[order]
+    cut = np.cumsum(ordered - 2.0 * earlier_weight[order])[:-1]
+    vol = np.cumsum(ordered)[:-1]
+    # The rest's volume summed from the end, not total - prefix: that difference
+    # loses every digit when one link outweighs the rest by 2^53 or more.
+    rest = np.cumsum(ordered[::-1])[::-1][1:]
+    smaller = np.minimum(vol, rest)
     with np.errstate(divide="ignore", invalid="ignore"):
         profile = np.where(smaller > 0, cut / smaller, np.inf)
     return SweepOrder(order, rank, vol, profile)
