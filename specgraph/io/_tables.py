@@ -31,6 +31,7 @@ from ..network import Network
 from ._arrow_csv import read_plain_csv
 from ._frames import PANDAS_RELEASE, Columns, Origin, build_network
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
+from ._sources import refuse_unseekable, shown_name
 
 __all__ = ["read_edges", "read_table"]
 
@@ -182,6 +183,7 @@ def _checked_path(path: Any) -> Path:
         raise InputError(_NO_FILE, path=path)
     if path.is_dir():
         raise InputError(_FOLDER, path=path)
+    refuse_unseekable(path)
     return path
 
 
@@ -371,7 +373,9 @@ def _read_csv(path: Path, delimiter: str | None) -> _Table:
     header = _read_header(path, delimiter)
     _check_header(path, header)
     if header.detected:
-        logger.info("%s: no comma in the header; using delimiter %r", path, header.delimiter)
+        logger.info(
+            "%s: no comma in the header; using delimiter %r", shown_name(path), header.delimiter
+        )
     frame = _parse_csv(path, header)
     record = {
         "path": str(path),
@@ -566,7 +570,7 @@ def read_edges(
             logger.warning(
                 "%s: %d edges are marked directed; they are read as undirected links (read "
                 "with --directed, directed=True in Python, to keep their direction)",
-                path,
+                shown_name(path),
                 marked,
             )
     else:
