@@ -19,6 +19,8 @@ from .._links import LinkEnds, arrow_text, encode_links, first_repeated, missing
 from .._validation import Boolean, Constraint, InstanceOf, NoneOk, check_params, parameter_error
 from ..exceptions import InputError, ParameterError
 from ..network import Network, affinity_from_distance, network_from_ends
+from ._ids import warn_suspect_ids
+from ._sources import shown_name
 
 __all__ = ["Columns", "Origin", "build_network", "network_from_frames"]
 
@@ -495,6 +497,8 @@ def build_network(
     table = None if nodes is None else _node_table(nodes, columns, node_origin, link_ids)
     # The ids are encoded once: the ends' rows serve the checks and the network.
     ends = encode_links(*link_ids) if table is None else table.ends
+    origin = edge_origin if table is None else node_origin
+    warn_suspect_ids(ends.node_ids, record, where=shown_name(origin.path or "node ids"))
     record["isolated_nodes"] = (
         0 if table is None else _check_ends(edges, ends, names, [edge_origin, node_origin])
     )
