@@ -125,7 +125,7 @@ def _stdin_stream() -> BinaryIO:
             "(specgraph zones - < edges.csv), or give the file's path",
             path=STDIN_SHOWN,
         )
-    return getattr(stream, "buffer", stream)  # type: ignore[no-any-return]
+    return getattr(stream, "buffer", stream)
 
 
 def _copy(stream: Any, target: Path, shown: str) -> None:
@@ -245,6 +245,6 @@ def spooled_sources(sources: Mapping[str, str | None]) -> Iterator[dict[str, str
             _renamed(exc, copies)
             raise
     finally:
-        for copy in copies:
-            _SHOWN.pop(copy, None)
+        for name in copies:
+            _SHOWN.pop(name, None)
         shutil.rmtree(folder, ignore_errors=True)
