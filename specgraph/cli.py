@@ -133,7 +133,8 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
         "edges",
         metavar="EDGES",
         help="edge table (CSV or Parquet), a GraphML file holding nodes and edges, or a "
-        "GeoJSON file of lines (.geojson: line ends become nodes)",
+        "GeoJSON file of lines (.geojson: line ends become nodes); - reads standard input "
+        "(format from its first bytes: Parquet, GraphML, GeoJSON, else CSV)",
     )
     group.add_argument(
         "--nodes", metavar="NODES", help="node table (ids, coordinates, sizes); not with GraphML"
