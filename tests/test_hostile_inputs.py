@@ -159,6 +159,23 @@ def test_stdin_dash_sniffs_parquet(
     assert (out / "zones.csv").read_bytes() == (reference / "zones.csv").read_bytes()
 
 
+def test_stdin_dash_as_zone_file(
+    tmp_path: Path, reference: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    # score EDGES - : the zone file from standard input scores as the same file does.
+    edges = tmp_path / "ring.csv"  # written by the reference fixture
+    from_file, from_stdin = tmp_path / "file", tmp_path / "stdin"
+    zones = reference / "zones.csv"
+    assert main(["score", str(edges), str(zones), "--out", str(from_file), "--quiet"]) == 0
+    _stdin(monkeypatch, zones.read_bytes())
+    code = _in_thread(lambda: main(["score", str(edges), "-", "--out", str(from_stdin), "--quiet"]))
+    assert code == EXIT_OK
+    names = sorted(p.name for p in from_file.glob("*.csv"))
+    assert names
+    for name in names:
+        assert (from_stdin / name).read_bytes() == (from_file / name).read_bytes(), name
+
+
 def test_stdin_empty_refused_naming_stdin(
     tmp_path: Path, capsys: pytest.CaptureFixture[str], monkeypatch: pytest.MonkeyPatch
 ) -> None:
