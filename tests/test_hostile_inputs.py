@@ -437,3 +437,16 @@ def test_parquet_integer_ids_read_as_their_digits(tmp_path: Path) -> None:
     assert (tmp_path / "a" / "zones.csv").read_bytes() == (
         tmp_path / "b" / "zones.csv"
     ).read_bytes()
+
+
+def test_parquet_list_ids_refused_in_a_rule_list(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str], reference: Path
+) -> None:
+    # The supply list's node column holds lists (an Arrow nested type): refused by name.
+    pa = pytest.importorskip("pyarrow")
+    pq = pytest.importorskip("pyarrow.parquet")
+    supply = tmp_path / "supply.parquet"
+    pq.write_table(pa.table({"node": pa.array([["J0"], ["J6"]])}), supply)
+    out = tmp_path / "out"
+    code = _zones(out, tmp_path / "ring.csv", "--supply-list", supply)
+    _refused(capsys, out, code, "supply.parquet", "column 'node'", "list")
