@@ -18,6 +18,7 @@ from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
+from . import export
 from ._guard import check_memory, check_table_memory, note_stage
 from ._progress import stage_progress
 from ._validation import check_tol, parameter_error
@@ -35,7 +36,6 @@ from .export import (
     FRAGMENTS_FILE,
     eigen_record,
     eigen_table,
-    input_record,
     jsonable,
     parquet_available,
     run_record,
@@ -55,6 +55,7 @@ from .io import (
     read_link_list,
     read_node_list,
     read_zone_file,
+    shown_name,
 )
 from .network import Network, negligible_warning
 from .operators import laplacian
@@ -79,6 +80,11 @@ REPORT_FILE = "report.html"
 GEOJSON_FILES = ["zones.geojson", "zone_summary.geojson", "boundary.geojson"]
 #: Suffixes (lower case) of edge files read as GeoJSON line networks.
 GEOJSON_SUFFIXES = frozenset({".geojson"})
+
+
+def input_record(role: str, path: str | Path, *, shown: str | None = None) -> dict[str, str]:
+    """:func:`specgraph.export.input_record`, naming a copied pipe or standard input as given."""
+    return export.input_record(role, path, shown=shown_name(path) if shown is None else shown)
 
 
 def holds_nodes(path: str) -> bool:

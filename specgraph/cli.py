@@ -41,6 +41,7 @@ from .export import (
 )
 from .io import (
     DEFAULT_SNAP_TOLERANCE,
+    spooled_sources,
 )
 from .studies import DEFAULT_REPEATS, DEFAULT_SPREAD
 from .walks import DEFAULT_DAMPING
@@ -132,7 +133,8 @@ def _add_reading(parser: argparse.ArgumentParser) -> None:
         "edges",
         metavar="EDGES",
         help="edge table (CSV or Parquet), a GraphML file holding nodes and edges, or a "
-        "GeoJSON file of lines (.geojson: line ends become nodes)",
+        "GeoJSON file of lines (.geojson: line ends become nodes); - reads standard input "
+        "(format from its first bytes: Parquet, GraphML, GeoJSON, else CSV)",
     )
     group.add_argument(
         "--nodes", metavar="NODES", help="node table (ids, coordinates, sizes); not with GraphML"
@@ -805,6 +807,30 @@ def _print_error(
     print(json.dumps(error_object(kind, message, exit_code, error), indent=2))
 
 
+#: Arguments that name an input file, and how a refusal names them.
+_FILE_ARGUMENTS = {
+    "edges": "EDGES",
+    "nodes": "--nodes",
+    "supply_list": "--supply-list",
+    "keep_list": "--keep-list",
+    "fixed": "--fixed",
+    "zones_file": "the zones file",
+    "zones_a": "ZONES_A",
+    "zones_b": "ZONES_B",
+}
+
+
+@contextlib.contextmanager
+def _spooled(args: argparse.Namespace) -> Iterator[None]:
+    """Read ``-`` (standard input) and pipes once, into temporary files the command reads."""
+    given = {label: getattr(args, name, None) for name, label in _FILE_ARGUMENTS.items()}
+    with spooled_sources(given) as paths:
+        for name, label in _FILE_ARGUMENTS.items():
+            if label in paths:
+                setattr(args, name, paths[label])
+        yield
+
+
 def _dispatch(
     args: argparse.Namespace, argv: list[str], options: Mapping[str, str] | None = None
 ) -> tuple[int, dict[str, Any] | None]:
@@ -822,7 +848,7 @@ def _dispatch(
         logger.info("caution: %s", CAUTION)
     as_json = bool(getattr(args, "json", False))
     try:
-        with compile_notice(enabled=getattr(args, "compile_notice", False)):
+        with compile_notice(enabled=getattr(args, "compile_notice", False)), _spooled(args):
             summary = COMMANDS[args.command](args, argv)
     except ConvergenceError as exc:
         message = for_command_line(exc, options or {})  # advice in this command's options

@@ -8,12 +8,14 @@ from ._frames import network_from_frames
 from ._geojson import DEFAULT_SNAP_TOLERANCE, SkippedPart, SnapReport, read_geojson_lines
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
 from ._lists import flag_mask, flagged_links, read_link_list, read_node_list, read_zone_file
+from ._sources import STDIN, shown_name, spooled_sources
 from ._tables import read_edges, read_table
 from ._thresholds import links_at_least
 
 __all__ = [
     "DEFAULT_SNAP_TOLERANCE",
     "GRAPHML_SUFFIXES",
+    "STDIN",
     "SkippedPart",
     "SnapReport",
     "flag_mask",
@@ -27,4 +29,6 @@ __all__ = [
     "read_node_list",
     "read_table",
     "read_zone_file",
+    "shown_name",
+    "spooled_sources",
 ]

@@ -19,6 +19,8 @@ from .._links import LinkEnds, arrow_text, encode_links, first_repeated, missing
 from .._validation import Boolean, Constraint, InstanceOf, NoneOk, check_params, parameter_error
 from ..exceptions import InputError, ParameterError
 from ..network import Network, affinity_from_distance, network_from_ends
+from ._ids import warn_suspect_ids
+from ._sources import shown_name
 
 __all__ = ["Columns", "Origin", "build_network", "network_from_frames"]
 
@@ -245,8 +247,32 @@ def _first(mask: np.ndarray) -> int | None:
     return int(hits[0]) if hits.size else None
 
 
+#: Key of a frame's ``attrs`` naming columns that could not be read as text (the
+#: Parquet reader sets it: :data:`specgraph.io._tables.NOT_TEXT`).
+NOT_TEXT = "specgraph_not_text"
+
+
+def refuse_not_text(frame: pd.DataFrame, names: tuple[Hashable, ...], origin: Origin) -> None:
+    """Refuse node ids from a column of lists, structs, maps or non-UTF-8 bytes.
+
+    Such a value is not one id: written as text it would become an id such as
+    ``"[1 2]"`` that matches nothing the user wrote.
+    """
+    types = frame.attrs.get(NOT_TEXT) or {}
+    for name in names:
+        if name in types:
+            raise origin.error(
+                f"node ids must be single values (text or whole numbers), but this column "
+                f"holds values of type {types[name]}; store one id per cell as text or "
+                "integers (in pyarrow: a string or int64 column), or choose another column",
+                frame=frame,
+                column=name,
+            )
+
+
 def _check_ids(frame: pd.DataFrame, names: tuple[Hashable, ...], origin: Origin, what: str) -> None:
     """Refuse the first empty or missing id of the columns ``names`` (row, then column)."""
+    refuse_not_text(frame, names, origin)
     firsts = [(_first(missing_or_empty(frame[name])), name) for name in names]
     bad = [(row, name) for row, name in firsts if row is not None]
     if bad:
@@ -495,6 +521,8 @@ def build_network(
     table = None if nodes is None else _node_table(nodes, columns, node_origin, link_ids)
     # The ids are encoded once: the ends' rows serve the checks and the network.
     ends = encode_links(*link_ids) if table is None else table.ends
+    origin = edge_origin if table is None else node_origin
+    warn_suspect_ids(ends.node_ids, record, where=shown_name(origin.path or "node ids"))
     record["isolated_nodes"] = (
         0 if table is None else _check_ends(edges, ends, names, [edge_origin, node_origin])
     )

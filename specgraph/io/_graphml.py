@@ -90,6 +90,12 @@ class _Key:
     name: str
     domain: str
     default: str | None = None
+    line: int | None = None
+    key_id: str = ""
+
+
+#: The tables a key's domain (its ``for`` attribute) gives a column in.
+_TABLES_OF_DOMAIN = {"node": {"node"}, "edge": {"edge"}, "all": {"node", "edge"}}
 
 
 @dataclass
@@ -177,8 +183,38 @@ class _Handler(ContentHandler):
         key_id = self._required(attrs, "id", "key")
         domain = attrs.get("for", "all")
         name = attrs.get("attr.name") or key_id
-        self._key = _Key(name=name, domain=domain)
+        line = self._line()
+        earlier = self.state.keys.get(key_id)
+        if earlier is not None:
+            raise self._fail(
+                f"<key id={key_id!r}> is declared again (first on line {earlier.line}); key "
+                "ids must be unique in a GraphML file (GraphML specification); give this key "
+                "another id, or remove one of the two"
+            )
+        self._refuse_same_name(key_id, name, domain)
+        self._key = _Key(name=name, domain=domain, line=line, key_id=key_id)
         self.state.keys[key_id] = self._key
+
+    def _refuse_same_name(self, key_id: str, name: str, domain: str) -> None:
+        """Refuse a second key whose attribute name fills a column of the same table.
+
+        Two keys named alike for edges (or one for edges, one for all) would give
+        one column two meanings, and only one of them could be kept: the file is
+        ambiguous. The GraphML specification identifies keys by their ``id``;
+        ``attr.name`` is the attribute's name for programs that read the data
+        (GraphML Primer, section "GraphML-Attributes").
+        """
+        tables = _TABLES_OF_DOMAIN.get(domain, set())
+        for other in self.state.keys.values():
+            shared = tables & _TABLES_OF_DOMAIN.get(other.domain, set())
+            if other.name == name and shared:
+                what = "edges" if "edge" in shared else "nodes"
+                raise self._fail(
+                    f"<key id={key_id!r}> declares the {what}' attribute {name!r}, which "
+                    f"<key id={other.key_id!r}> on line {other.line} declares already; "
+                    "their values would fill one column and only one could be kept. Give "
+                    "each key its own attr.name, or merge the two keys into one"
+                )
 
     def _start_graph(self, attrs: dict[str, str], parent: str) -> None:
         if parent != "graphml":

@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ..network import Network
-from ._frames import Origin, _ids
+from ._frames import Origin, _ids, refuse_not_text
 from ._tables import _load_table
 
 __all__ = [
@@ -129,7 +129,9 @@ def _refuse_unknown(
     )
 
 
-def _read_ids(frame: pd.DataFrame, column: Hashable) -> tuple[np.ndarray, np.ndarray]:
+def _read_ids(
+    frame: pd.DataFrame, column: Hashable, origin: Origin | None = None
+) -> tuple[np.ndarray, np.ndarray]:
     """Ids of a list or zone table, with the spreadsheet guard of our own exports undone.
 
     specgraph writes a text cell that starts with ``=``, ``+``, ``-``, ``@``, tab or
@@ -139,6 +141,8 @@ def _read_ids(frame: pd.DataFrame, column: Hashable) -> tuple[np.ndarray, np.nda
     """
     from .._guard import restore_text
 
+    if origin is not None:
+        refuse_not_text(frame, (column,), origin)
     ids, empty = _ids(frame, column)
     restored = restore_text(pd.Series(ids, dtype=object)).to_numpy(dtype=object)
     return restored, empty
@@ -255,7 +259,7 @@ def read_node_list(
     frame = table.frame
     _require_column(frame, node, origin, "the node column option")
     _refuse_no_rows(frame, origin, option, "node")
-    ids, empty = _read_ids(frame, node)
+    ids, empty = _read_ids(frame, node, origin)
     chosen = (
         np.ones(len(frame), dtype=bool) if flag is None else flag_mask(frame, flag, origin=origin)
     )
@@ -322,7 +326,7 @@ def read_link_list(
         _require_column(frame, column, origin, "--source/--target")
     _refuse_no_rows(frame, origin, option, "link")
     for column in (source, target):
-        ids, empty = _read_ids(frame, column)
+        ids, empty = _read_ids(frame, column, origin)
         _refuse_empty(empty, frame=frame, column=column, origin=origin)
         _refuse_unknown(ids, network, frame=frame, column=column, origin=origin, option=option)
         ends.append(ids)
@@ -424,7 +428,7 @@ def read_zone_file(
     frame = table.frame
     for column in (node, zone):
         _require_column(frame, column, origin, "the node or zone column option")
-    ids, empty = _read_ids(frame, node)
+    ids, empty = _read_ids(frame, node, origin)
     _refuse_empty(empty, frame=frame, column=node, origin=origin)
     repeated = pd.Series(ids).duplicated().to_numpy()
     if repeated.any():

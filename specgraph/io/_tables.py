@@ -29,8 +29,10 @@ from .._validation import Constraint, InstanceOf, NoneOk, check_param, parameter
 from ..exceptions import InputError
 from ..network import Network
 from ._arrow_csv import read_plain_csv
+from ._frames import NOT_TEXT as FRAME_NOT_TEXT
 from ._frames import PANDAS_RELEASE, Columns, Origin, build_network
 from ._graphml import GRAPHML_SUFFIXES, read_graphml
+from ._sources import refuse_unseekable, shown_name
 
 __all__ = ["read_edges", "read_table"]
 
@@ -182,6 +184,7 @@ def _checked_path(path: Any) -> Path:
         raise InputError(_NO_FILE, path=path)
     if path.is_dir():
         raise InputError(_FOLDER, path=path)
+    refuse_unseekable(path)
     return path
 
 
@@ -371,7 +374,9 @@ def _read_csv(path: Path, delimiter: str | None) -> _Table:
     header = _read_header(path, delimiter)
     _check_header(path, header)
     if header.detected:
-        logger.info("%s: no comma in the header; using delimiter %r", path, header.delimiter)
+        logger.info(
+            "%s: no comma in the header; using delimiter %r", shown_name(path), header.delimiter
+        )
     frame = _parse_csv(path, header)
     record = {
         "path": str(path),
@@ -407,20 +412,47 @@ def _read_parquet(path: Path) -> _Table:
             f"the table names a column more than once: {duplicated}; rename the copies",
             path=path,
         )
-    frame = pd.DataFrame({name: _parquet_text(table.column(name)) for name in names})
+    columns = {name: _parquet_text(table.column(name)) for name in names}
+    frame = pd.DataFrame({name: column for name, (column, _) in columns.items()})
+    frame.attrs[NOT_TEXT] = {
+        name: _type_words(table.column(name).type)
+        for name, (_, is_text) in columns.items()
+        if not is_text
+    }
     return _Table(frame, _NoLines(), {"path": str(path), "format": "parquet"})
 
 
-def _parquet_text(column: Any) -> pd.Series:
-    """A Parquet column as exact text (missing values as ''), or as is if not textual."""
+#: Key of a Parquet frame's ``attrs``: the columns whose values cannot be read as
+#: text (lists, structs, maps, bytes that are not UTF-8), each with its Arrow type in
+#: words; node ids are refused from them (:func:`specgraph.io._frames.refuse_not_text`).
+NOT_TEXT = FRAME_NOT_TEXT
+
+
+def _type_words(arrow_type: Any) -> str:
+    import pyarrow as pa
+
+    if pa.types.is_binary(arrow_type) or pa.types.is_large_binary(arrow_type):
+        return f"{arrow_type} (bytes that are not all UTF-8 text)"
+    return str(arrow_type)
+
+
+def _parquet_text(column: Any) -> tuple[pd.Series, bool]:
+    """A Parquet column as exact text (missing values as ''), or as is if it cannot be.
+
+    Returns the column and whether it was read as text. Binary values are text
+    when every one is UTF-8 (the cast checks it), as string values are;
+    dictionary-encoded values are read through their dictionary; list, struct
+    and map values cannot be cast to text (Apache Arrow's cast table) and stay
+    as they are (see :data:`NOT_TEXT`).
+    """
     import pyarrow as pa
     import pyarrow.compute as pc
 
     try:
         text = pc.cast(column, pa.string()).fill_null("")
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
-        return column.to_pandas()
-    return text.to_pandas()
+        return column.to_pandas(), False
+    return text.to_pandas(), True
 
 
 # ------------------------------------------------------------ GraphML
@@ -566,7 +598,7 @@ def read_edges(
             logger.warning(
                 "%s: %d edges are marked directed; they are read as undirected links (read "
                 "with --directed, directed=True in Python, to keep their direction)",
-                path,
+                shown_name(path),
                 marked,
             )
     else:
