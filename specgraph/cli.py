@@ -35,6 +35,7 @@ from .eigen import DEFAULT_TOL, METHODS
 from .exceptions import ConvergenceError, OutputError, ParameterError, SpecgraphError
 from .export import (
     CAUTION,
+    NOT_CONVERGED_FILE,
     checked_folder,
     not_converged_record,
     write_outputs,
@@ -867,11 +868,6 @@ def _debug_traceback(args: argparse.Namespace) -> None:
     """With ``--debug``, the traceback of the error being handled, on stderr."""
     if args.debug:
         traceback.print_exc(file=sys.stderr)
-
-
-#: The only file a run whose eigen-solve missed its tolerance writes: the
-#: partial figures, for the record, next to (never in place of) earlier results.
-NOT_CONVERGED_FILE = "not-converged.json"
 
 
 def _record_not_converged(
