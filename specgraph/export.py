@@ -151,14 +151,15 @@ _BACKUP_PATTERN = re.compile(r"^\..+\.(?P<pid>\d+)\.[^.]+\.backup$")
 #: recovers and commits, so two writers into one folder commit one after the other.
 LOCK_FILE = ".specgraph.lock"
 #: Seconds a writer waits for another writer's commit in the same folder before
-#: refusing (OutputError). A commit holds the lock only while it renames files
-#: (the files are written before): 1-30 ms measured for the five files of a
-#: 10,000-node zoning and about 0.2 s for 1,000,000 nodes with GeoJSON and
-#: figures, on a shared 2-core machine (tests/test_commit_safety.py). A wait of a
+#: refusing (OutputError). A commit holds the lock only while it recovers and
+#: renames (the files are written before): measured 3 ms for the files of a
+#: 10,000-row result and 8-14 ms for a 1,000,000-row one with GeoJSON and
+#: figures (8 files, about 90 MB) on a shared 2-core machine. A wait of a
 #: minute is thus a writer that is stuck (stopped, or on a hung network file
-#: system), not a busy one: queueing serves concurrent writers (the later
-#: commit wins, both calls succeed), and the timeout keeps a stuck one from
-#: hanging the next run for ever.
+#: system), not a busy one. Queueing rather than refusing, because concurrent
+#: writers (threads of a batch script, two runs started together) are not
+#: mistakes: both calls succeed and the folder holds the later commit whole; the
+#: timeout keeps a stuck writer from hanging the next one for ever.
 LOCK_TIMEOUT = 60.0
 #: Seconds between two tries of a lock held by another writer (a commit takes
 #: milliseconds, so a waiter starts within about this much of its end).
