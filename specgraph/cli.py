@@ -72,7 +72,9 @@ _EXIT_CODES = """\
 exit codes:
   0  success
   2  bad usage or bad input (the message names the file, line and column),
-     or too little memory (the message names the stage and what would fit)
+     or too little memory (the message names the stage and what would fit),
+     or an output folder that cannot take the results (the message names the
+     path and what to do; the folder keeps its previous files)
   3  the eigen-solve did not reach its tolerance; no zones were written, only
      not-converged.json with the partial figures
   1  unexpected internal error (please report it with --debug output)
