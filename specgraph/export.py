@@ -894,12 +894,11 @@ def _recover(folder: Path) -> list[Path]:
         match = _JOURNAL_PATTERN.match(name)
         if match is None:
             continue
-        pid = int(match["pid"])
-        # Under the lock no live writer is committing: our own journal is one
-        # whose undo failed earlier; a live process's is that of an old,
-        # unlocking specgraph, left alone.
-        if pid == os.getpid() or _process_gone(pid):
-            finished += _recover_journal(folder, folder / name)
+        # Every writer holds the lock from its journal's creation to its
+        # deletion, so under the lock every journal is one whose writer died
+        # (its pid may even be in use again by another process) or whose undo
+        # failed: each is resolved.
+        finished += _recover_journal(folder, folder / name)
     # Temporary and backup files of a journal left in place (unreadable, or of a
     # live process) are that journal's to resolve: kept.
     held = {match["pid"] for match in map(_JOURNAL_PATTERN.match, os.listdir(folder)) if match}
@@ -914,14 +913,15 @@ def _recover(folder: Path) -> list[Path]:
 def recover_outputs(folder: str | Path) -> list[Path]:
     """Finish or undo what killed writers left in ``folder``.
 
-    With the folder's lock held, each commit journal of a
-    process that no longer runs is resolved: a commit killed before its first
+    With the folder's lock held (so no writer is committing), each commit
+    journal is resolved: a commit killed before its first
     move is undone (the previous files, renamed to hidden backups, are put
     back); one killed after it is finished (the remaining moves are done, the
     backups and the files of earlier runs it removes are deleted; if a move
     fails, the commit is undone instead). Then the stale hidden ``.partial``
-    and ``.backup`` files of processes that no longer run are deleted. Files
-    of running processes are left alone. :func:`write_outputs` calls this
+    and ``.backup`` files of processes that no longer run are deleted; the
+    temporary files of running processes (writers still staging) are left
+    alone. :func:`write_outputs` calls this
     first; call it before reading a folder that a killed run may have written.
 
     Parameters
