@@ -864,6 +864,8 @@ def _recover_journal(folder: Path, journal: Path) -> list[Path]:
             try:
                 finished = _roll_forward(folder, moves, backups)
             except OSError:
+                if not backups:  # format 1 kept no previous files: nothing to undo to
+                    raise
                 _roll_back(folder, moves, backups)
                 finished = []
         else:

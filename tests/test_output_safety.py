@@ -355,6 +355,25 @@ def test_recover_finishes_a_committed_set_and_drops_stale_temporaries(tmp_path: 
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["a.csv", "b.csv", live.name])
 
 
+def test_an_old_journal_that_cannot_be_finished_is_reported_and_kept(tmp_path: Path) -> None:
+    # A journal of the earlier format (no backups) whose move meets a folder: it can
+    # be neither finished nor undone, so recovery names it and changes nothing.
+    from specgraph.exceptions import OutputError
+
+    dead = _dead_pid()
+    (tmp_path / "a.csv").mkdir()
+    staged = tmp_path / f".a.csv.{dead}.k3j9x1ab.partial"
+    staged.write_text("new a\n")
+    (tmp_path / "b.csv").write_text("new b\n")
+    journal = tmp_path / f".specgraph-commit.{dead}.json"
+    journal.write_text(json.dumps({"specgraph_commit": 1, "moves": [[staged.name, "a.csv"]]}))
+    before = sorted(p.name for p in tmp_path.iterdir())
+    with pytest.raises(OutputError, match="unfinished commit"):
+        write_outputs(tmp_path, {"c.csv": pd.DataFrame({"x": [1]})})
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+    assert staged.read_text() == "new a\n"
+
+
 def test_remove_drops_an_earlier_optional_table_in_the_same_commit(tmp_path: Path) -> None:
     table = pd.DataFrame({"node": ["a"], "zone": [0]})
     write_outputs(tmp_path, {"zones.csv": table, "unassigned.csv": table})
