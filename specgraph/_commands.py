@@ -40,7 +40,6 @@ from .export import (
     parquet_available,
     run_record,
     scorecard_tables,
-    write_figures,
     write_outputs,
     zoning_geojson,
     zoning_parquet,
@@ -376,8 +375,7 @@ def _zone_and_write(
         zoning, record, args, argv, sources, supply=tuple(constraints.sources)
     )
     figures = _figure_files(args, zoning, sources=sources)
-    written = write_outputs(args.out, files, remove=stale)
-    written += write_figures(args.out, figures)
+    written = write_outputs(args.out, files, remove=stale, figures=figures)
     _warn(record["warnings"])
     for name, decision in zoning.decisions.items():
         logger.info("%s: %s", name, decision["reason"])
@@ -796,8 +794,8 @@ def _cmd_stability(args: argparse.Namespace, argv: list[str]) -> dict[str, Any]:
             title="Zoning stability report",
         )
     figures = _figure_files(args, reference, sources=constraints.sources, stability=result)
-    written = write_outputs(args.out, files, remove=() if args.report else (REPORT_FILE,))
-    written += write_figures(args.out, figures)
+    stale = () if args.report else (REPORT_FILE,)
+    written = write_outputs(args.out, files, remove=stale, figures=figures)
     _warn(warnings)
     overall = result.overall
     logger.info("reference: %s", _zoning_summary(reference))

@@ -35,6 +35,7 @@ from .eigen import DEFAULT_TOL, METHODS
 from .exceptions import ConvergenceError, OutputError, ParameterError, SpecgraphError
 from .export import (
     CAUTION,
+    NOT_CONVERGED_FILE,
     checked_folder,
     not_converged_record,
     write_outputs,
@@ -72,7 +73,9 @@ _EXIT_CODES = """\
 exit codes:
   0  success
   2  bad usage or bad input (the message names the file, line and column),
-     or too little memory (the message names the stage and what would fit)
+     or too little memory (the message names the stage and what would fit),
+     or an output folder that cannot take the results (the message names the
+     path and what to do; the folder keeps its previous files)
   3  the eigen-solve did not reach its tolerance; no zones were written, only
      not-converged.json with the partial figures
   1  unexpected internal error (please report it with --debug output)
@@ -894,11 +897,6 @@ def _debug_traceback(args: argparse.Namespace) -> None:
     """With ``--debug``, the traceback of the error being handled, on stderr."""
     if args.debug:
         traceback.print_exc(file=sys.stderr)
-
-
-#: The only file a run whose eigen-solve missed its tolerance writes: the
-#: partial figures, for the record, next to (never in place of) earlier results.
-NOT_CONVERGED_FILE = "not-converged.json"
 
 
 def _record_not_converged(

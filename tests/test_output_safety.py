@@ -252,7 +252,12 @@ DRIVER = textwrap.dedent(
     """
 )
 
-HIDDEN = re.compile(r"^\.(.+\.\d+\.[^.]+\.partial|specgraph-commit\.\d+\.json)$")
+#: The hidden files a writer may leave when killed: temporary files, backups of
+#: previous files, the commit journal, and the folder's lock file (kept: no result).
+HIDDEN = re.compile(
+    r"^\.(.+\.\d+\.[^.]+\.(partial|backup)|specgraph-commit\.\d+(\.[0-9a-f]+)?\.json"
+    r"|specgraph\.lock)$"
+)
 
 
 def road_edges(path: Path, n: int, seed: int) -> None:
@@ -267,19 +272,26 @@ def road_edges(path: Path, n: int, seed: int) -> None:
     ).to_csv(path, index=False)
 
 
+def shown(snapshot: dict) -> dict:
+    """The files a user sees: the snapshot without hidden names."""
+    return {k: v for k, v in snapshot.items() if not k.startswith(".")}
+
+
 def check_trials(report: list[dict], old: dict, new: dict) -> None:
     """Each kill left the complete previous or complete new result (POSIX rename atomicity)."""
+    old, new = shown(old), shown(new)
     for trial in report:
-        raw, recovered = trial["raw"], trial["recovered"]
-        visible = {k: v for k, v in raw.items() if not k.startswith(".")}
+        raw, recovered = trial["raw"], shown(trial["recovered"])
+        visible = shown(raw)
         hidden = [k for k in raw if k.startswith(".")]
         assert all(HIDDEN.match(name) for name in hidden), hidden
         committing = any(name.startswith(".specgraph-commit.") for name in hidden)
         if committing:
-            # Killed between the journal and the last move: every visible file is a
-            # complete old or new one, and recovery completes the new result.
+            # Killed between the journal and its deletion: every visible file is a
+            # complete old or new one (others are set aside as backups), and recovery
+            # undoes the commit (killed before the first move) or finishes it.
             assert all(visible[k] in (old[k], new[k]) for k in visible), trial
-            assert recovered == new, trial
+            assert recovered in (old, new), trial
         else:
             assert visible in (old, new), trial
             assert recovered == visible, trial
@@ -341,6 +353,25 @@ def test_recover_finishes_a_committed_set_and_drops_stale_temporaries(tmp_path: 
     assert recover_outputs(tmp_path) == [tmp_path / "b.csv"]
     assert (tmp_path / "b.csv").read_text() == "new b\n"
     assert sorted(p.name for p in tmp_path.iterdir()) == sorted(["a.csv", "b.csv", live.name])
+
+
+def test_an_old_journal_that_cannot_be_finished_is_reported_and_kept(tmp_path: Path) -> None:
+    # A journal of the earlier format (no backups) whose move meets a folder: it can
+    # be neither finished nor undone, so recovery names it and changes nothing.
+    from specgraph.exceptions import OutputError
+
+    dead = _dead_pid()
+    (tmp_path / "a.csv").mkdir()
+    staged = tmp_path / f".a.csv.{dead}.k3j9x1ab.partial"
+    staged.write_text("new a\n")
+    (tmp_path / "b.csv").write_text("new b\n")
+    journal = tmp_path / f".specgraph-commit.{dead}.json"
+    journal.write_text(json.dumps({"specgraph_commit": 1, "moves": [[staged.name, "a.csv"]]}))
+    before = sorted(p.name for p in tmp_path.iterdir())
+    with pytest.raises(OutputError, match="unfinished commit"):
+        write_outputs(tmp_path, {"c.csv": pd.DataFrame({"x": [1]})})
+    assert sorted(p.name for p in tmp_path.iterdir()) == before
+    assert staged.read_text() == "new a\n"
 
 
 def test_remove_drops_an_earlier_optional_table_in_the_same_commit(tmp_path: Path) -> None:
