@@ -261,7 +261,7 @@ def report(pairs: list[tuple[Shape, list[Run]]], argv: list[str]) -> str:
     lines = [
         f"`python benchmarks/bench_shapes.py {' '.join(argv)}`",
         "",
-        f"{dt.datetime.now(dt.timezone.utc):%Y-%m-%d %H:%M} UTC, {os.cpu_count()} cores, "
+        f"{dt.datetime.now(dt.UTC):%Y-%m-%d %H:%M} UTC, {os.cpu_count()} cores, "
         f"load average {os.getloadavg()[0]:.1f}; times are medians (shared machine: noisy), "
         "peaks the largest over repeats.",
         "",
