@@ -304,3 +304,17 @@ def test_larger_generated_shapes_keep_the_zoning_invariants(links, asked: int) -
     net = _network(links)
     asked = min(asked, net.n_nodes)  # more zones than nodes is refused (a ParameterError)
     _check_zoning(links, find_zones(net, asked, rng=0), asked)
+
+
+def test_a_long_path_brings_the_shift_down_to_its_eigenvalues(caplog) -> None:
+    """A 100,000-node path: wanted values far below the shift; the shift follows them.
+
+    The values against the closed form 1 - cos(pi k / (n - 1)) (Chung 1997, as above).
+    """
+    n = 100_000
+    op = laplacian(_network(_path_links(n)))
+    with caplog.at_level("INFO", logger="specgraph.eigen._lanczos"):
+        result = smallest_eigenpairs(op, 9, method="lanczos", rng=0)
+    assert "crowd below the shift" in caplog.text
+    expected = 1.0 - np.cos(np.pi * np.arange(9) / (n - 1))
+    np.testing.assert_allclose(result.values, expected, rtol=1e-6, atol=1e-14)
