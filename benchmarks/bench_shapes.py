@@ -43,10 +43,8 @@ import argparse
 import datetime as dt
 import os
 import statistics
-import subprocess
 import sys
 import tempfile
-import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -61,6 +59,9 @@ from scipy.sparse.csgraph import connected_components
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 from specgraph._guard import estimate_memory  # noqa: E402
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from bench_real import timed  # noqa: E402  (the one timer of the command benchmarks)
 
 #: Growth goal of issue 20: from the smaller to the larger size, time and peak
 #: memory grow at most this many times the growth in links.
@@ -196,19 +197,6 @@ def write(edges: Edges, path: Path) -> tuple[int, int]:
         columns["weight"] = w
     pq.write_table(pa.table(columns), path)
     return int(max(src.max(), dst.max())) + 1, int(src.size)
-
-
-def timed(command: list[str]) -> tuple[float, float, int, str]:
-    """Wall seconds, the child's peak RSS in MiB, its exit code and the end of stderr."""
-    with tempfile.TemporaryFile() as err:
-        start = time.perf_counter()
-        child = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=err)
-        _, status, usage = os.wait4(child.pid, 0)
-        seconds = time.perf_counter() - start
-        code = os.waitstatus_to_exitcode(status)
-        err.seek(0)
-        tail = err.read().decode("utf-8", "replace").strip().splitlines()[-1:]
-    return seconds, usage.ru_maxrss / 1024, code, (tail or [""])[0]
 
 
 def zone_check(edges: Edges, nodes: int, out: Path) -> tuple[int, int]:
